@@ -1,0 +1,323 @@
+//! The Model IR: a fully resolved, typed description of one network.
+//!
+//! Only [`crate::check`] builds a [`Model`] from source; every back end (emit, report, engine)
+//! reads it and none re-validates it. `check` guarantees these invariants:
+//!
+//! - `name`, every layer name and every class name is a lower_snake identifier (`[a-z][a-z0-9_]*`)
+//!   that is not a Rust keyword, and layer names are unique (and differ from the input name);
+//! - there is at least one layer; the last layer is the output; every width is in `1..=65535`;
+//! - `Softmax` appears only on the output layer, with at least 2 units;
+//! - `Loss::CrossEntropy` only with a `Sigmoid` or `Softmax` output;
+//! - `classes`, when present, has exactly as many names as the output has units (or 2 names for a
+//!   one-unit sigmoid output), all distinct, and the loss is cross-entropy;
+//! - the total parameter count is at most 16 Mi;
+//! - every hyper-parameter is finite and in its documented range;
+//! - the model fits its `budget`, if any.
+
+use serde::Serialize;
+
+mod dump;
+pub use dump::dump;
+
+/// The floating-point type of parameters and arithmetic.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Scalar {
+    /// IEEE 754 binary32.
+    F32,
+    /// IEEE 754 binary64.
+    F64,
+}
+
+impl Scalar {
+    /// Size of one value in bytes.
+    pub fn bytes(self) -> u64 {
+        match self {
+            Scalar::F32 => 4,
+            Scalar::F64 => 8,
+        }
+    }
+
+    /// The Rust type name (`f32` / `f64`).
+    pub fn rust_name(self) -> &'static str {
+        match self {
+            Scalar::F32 => "f32",
+            Scalar::F64 => "f64",
+        }
+    }
+}
+
+/// An activation function `a = g(z)`, applied element-wise except for `Softmax`.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Activation {
+    /// g(z) = z; g'(z) = 1.
+    Identity,
+    /// g(z) = 1 / (1 + e^-z); g'(z) = a (1 - a).
+    Sigmoid,
+    /// g(z) = tanh z; g'(z) = 1 - a^2.
+    Tanh,
+    /// g(z) = max(0, z); g'(z) = 1 if z > 0 else 0.
+    Relu,
+    /// g(z) = z if z > 0 else alpha z; g'(z) = 1 if z > 0 else alpha. `alpha` is in [0, 1).
+    LeakyRelu(f64),
+    /// g(z)_j = e^{z_j} / sum_k e^{z_k}, computed as e^{z_j - max z}; Jacobian
+    /// d a_j / d z_k = a_j (delta_jk - a_k). Output layer only.
+    Softmax,
+}
+
+impl Activation {
+    /// The spec keyword (without the `leaky_relu` parameter).
+    pub fn keyword(self) -> &'static str {
+        match self {
+            Activation::Identity => "identity",
+            Activation::Sigmoid => "sigmoid",
+            Activation::Tanh => "tanh",
+            Activation::Relu => "relu",
+            Activation::LeakyRelu(_) => "leaky_relu",
+            Activation::Softmax => "softmax",
+        }
+    }
+}
+
+/// The per-sample loss.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Loss {
+    /// With a sigmoid output (per-unit logistic):
+    /// `sum_j softplus(z_j) - y_j z_j`, i.e. `-sum_j [y_j ln a_j + (1 - y_j) ln(1 - a_j)]`.
+    /// With a softmax output (categorical): `sum_j y_j (lse(z) - z_j)`, i.e. `-sum_j y_j ln a_j`.
+    /// Both are computed from the logits z. Output error: `delta = a - y`.
+    CrossEntropy,
+    /// `1/2 sum_j (a_j - y_j)^2`. Output error: `delta = (a - y) .* g'(z)` (the softmax Jacobian
+    /// for a softmax output).
+    SquaredError,
+}
+
+/// The penalty on weights (never on biases), added to the batch cost of m samples.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[serde(rename_all = "snake_case", tag = "kind", content = "lambda")]
+pub enum Penalty {
+    /// No penalty.
+    None,
+    /// `(lambda / 2m) sum W^2`; gradient `(lambda / m) W`.
+    L2(f64),
+    /// `(lambda / m) sum |W|`; gradient `(lambda / m) sign(W)`, with sign(0) = 0.
+    L1(f64),
+}
+
+/// How weights are drawn before training; biases always start at zero.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[serde(rename_all = "snake_case", tag = "kind")]
+pub enum Init {
+    /// Uniform on `[-eps, eps]`.
+    Uniform {
+        /// Half-width of the interval.
+        eps: f64,
+    },
+    /// Glorot and Bengio (2010) uniform: `[-r, r]`, `r = sqrt(6 / (fan_in + fan_out))`.
+    Glorot,
+    /// He et al. (2015): normal with mean 0 and standard deviation `sqrt(2 / fan_in)`.
+    He,
+}
+
+/// The optimizer named on the `train` line.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[serde(rename_all = "snake_case", tag = "kind")]
+pub enum Optimizer {
+    /// Gradient descent with optional classical momentum:
+    /// `v <- momentum v - rate g; w <- w + v` (momentum 0 gives plain `w <- w - rate g`).
+    Sgd {
+        /// Learning rate, > 0.
+        rate: f64,
+        /// Momentum in [0, 1).
+        momentum: f64,
+    },
+    /// Adam (Kingma and Ba 2015) with bias correction.
+    Adam {
+        /// Learning rate, > 0.
+        rate: f64,
+        /// First-moment decay in (0, 1); default 0.9.
+        beta1: f64,
+        /// Second-moment decay in (0, 1); default 0.999.
+        beta2: f64,
+        /// Denominator guard; fixed at 1e-8 (not settable in spec v1).
+        epsilon: f64,
+    },
+}
+
+/// Training settings.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Train {
+    /// The optimizer and its hyper-parameters.
+    pub optimizer: Optimizer,
+    /// Samples per mini-batch, >= 1.
+    pub batch: u32,
+    /// Passes over the training set, >= 1.
+    pub epochs: u32,
+}
+
+/// Optional memory limits in bytes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize)]
+pub struct Budget {
+    /// Limit on flash (parameter bytes), if given.
+    pub flash: Option<u64>,
+    /// Limit on RAM (training RAM when the model is trained on device; see `report`), if given.
+    pub ram: Option<u64>,
+}
+
+/// The input vector.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Input {
+    /// Name from the spec.
+    pub name: String,
+    /// Number of features.
+    pub width: usize,
+    /// When true the model holds a per-feature mean and standard deviation and computes
+    /// `x' = (x - mean) / std` before the first layer.
+    pub standardize: bool,
+}
+
+/// A dense layer `z = W a_prev + b`, `a = g(z)`. The last layer of a model is its output.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Layer {
+    /// Name from the spec (`layer NAME ...` or `output NAME ...`).
+    pub name: String,
+    /// Units in this layer (rows of W).
+    pub width: usize,
+    /// Units feeding it (columns of W): the input width or the previous layer's width.
+    pub fan_in: usize,
+    /// Its activation.
+    pub activation: Activation,
+}
+
+impl Layer {
+    /// Weights plus biases.
+    pub fn parameters(&self) -> usize {
+        self.width * self.fan_in + self.width
+    }
+}
+
+/// A checked network.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Model {
+    /// lower_snake name; the generated module's name.
+    pub name: String,
+    /// Scalar type.
+    pub scalar: Scalar,
+    /// The input.
+    pub input: Input,
+    /// Hidden layers in order, then the output layer (always at least one layer).
+    pub layers: Vec<Layer>,
+    /// Class names of a classifying output, if given.
+    pub classes: Option<Vec<String>>,
+    /// The loss.
+    pub loss: Loss,
+    /// The penalty.
+    pub penalty: Penalty,
+    /// Weight initialisation.
+    pub init: Init,
+    /// Seed of the initialisation PRNG (SplitMix64).
+    pub seed: u64,
+    /// Training settings.
+    pub train: Train,
+    /// Memory limits.
+    pub budget: Budget,
+}
+
+/// Defaults applied by `check` where the spec is silent; listed once, here.
+pub mod defaults {
+    use super::*;
+    /// `scalar f32`.
+    pub const SCALAR: Scalar = Scalar::F32;
+    /// `penalty none`.
+    pub const PENALTY: Penalty = Penalty::None;
+    /// `init glorot`.
+    pub const INIT: Init = Init::Glorot;
+    /// `seed 0`.
+    pub const SEED: u64 = 0;
+    /// Adam's default first-moment decay (Kingma and Ba 2015).
+    pub const BETA1: f64 = 0.9;
+    /// Adam's default second-moment decay (Kingma and Ba 2015).
+    pub const BETA2: f64 = 0.999;
+    /// Adam's epsilon (Kingma and Ba 2015).
+    pub const ADAM_EPSILON: f64 = 1e-8;
+    /// SGD momentum when not given.
+    pub const MOMENTUM: f64 = 0.0;
+    /// `train adam rate 0.001 batch 32 epochs 100` when there is no `train` line.
+    pub const TRAIN: Train = Train {
+        optimizer: Optimizer::Adam { rate: 0.001, beta1: BETA1, beta2: BETA2, epsilon: ADAM_EPSILON },
+        batch: 32,
+        epochs: 100,
+    };
+}
+
+impl Model {
+    /// The output layer.
+    pub fn output(&self) -> &Layer {
+        // `check` guarantees at least one layer.
+        &self.layers[self.layers.len() - 1]
+    }
+
+    /// Hidden layers (all but the output).
+    pub fn hidden(&self) -> &[Layer] {
+        &self.layers[..self.layers.len() - 1]
+    }
+
+    /// Total number of trainable parameters (weights and biases).
+    pub fn parameters(&self) -> usize {
+        self.layers.iter().map(Layer::parameters).sum()
+    }
+
+    /// True when the output is read as class scores (cross-entropy loss).
+    pub fn is_classifier(&self) -> bool {
+        self.loss == Loss::CrossEntropy
+    }
+
+    /// The shape signature hashed into the fingerprint: scalar, input width and scaling, then each
+    /// layer's width and activation (with its parameter). Names, loss and training settings are
+    /// not part of it: weights trained under another loss still fit.
+    pub fn signature(&self) -> String {
+        let mut s = format!(
+            "sinew-shape-1;{};in={}{}",
+            self.scalar.rust_name(),
+            self.input.width,
+            if self.input.standardize { "+std" } else { "" }
+        );
+        for l in &self.layers {
+            s.push_str(&format!(";{}:{}", l.width, l.activation.keyword()));
+            if let Activation::LeakyRelu(a) = l.activation {
+                s.push_str(&format!("({:016x})", a.to_bits()));
+            }
+        }
+        s
+    }
+
+    /// 64-bit FNV-1a hash of [`Model::signature`] (Fowler, Noll, Vo; offset basis
+    /// 0xcbf29ce484222325, prime 0x100000001b3).
+    pub fn fingerprint(&self) -> u64 {
+        fnv1a64(self.signature().as_bytes())
+    }
+}
+
+/// 64-bit FNV-1a.
+pub fn fnv1a64(bytes: &[u8]) -> u64 {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    for &b in bytes {
+        h ^= u64::from(b);
+        h = h.wrapping_mul(0x0000_0100_0000_01b3);
+    }
+    h
+}
+
+#[cfg(test)]
+mod tests {
+    use super::fnv1a64;
+
+    #[test]
+    fn fnv1a64_published_vectors() {
+        // Test vectors from the FNV reference page (Noll): "" and "a" (values from memory).
+        assert_eq!(fnv1a64(b""), 0xcbf29ce484222325);
+        assert_eq!(fnv1a64(b"a"), 0xaf63dc4c8601ec8c);
+    }
+}

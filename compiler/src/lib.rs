@@ -1,0 +1,17 @@
+//! sinew: a compiler for small neural networks.
+//!
+//! ```text
+//! spec text --(pest, grammar/sinew.pest)--> syntax::Spec (AST with byte spans)
+//! syntax::Spec --(check)--> ir::Model + diagnostics (all findings at once)
+//! ir::Model --> emit   : Rust source (quote -> syn::File -> prettyplease) calling sinew-runtime
+//!           --> report : parameters, flash bytes, RAM bytes, multiply-adds
+//!           --> engine : host evaluation and training with the same runtime kernels
+//! ```
+//! One IR feeds every back end; nothing after `check` re-parses or re-validates.
+
+#![deny(missing_docs)]
+
+pub mod diag;
+pub mod ir;
+pub mod report;
+pub mod span;
