@@ -12,6 +12,12 @@
 #![deny(missing_docs)]
 
 pub mod diag;
+pub mod engine;
+pub mod fsutil;
 pub mod ir;
 pub mod report;
 pub mod span;
+pub mod summary;
+pub mod syntax;
+pub mod check;
+pub use check::{check_source, Checked};

@@ -1,0 +1,74 @@
+//! `sinew-runtime`: the `no_std` kernels behind the code sinew generates, and behind its host
+//! engine.
+//!
+//! No heap, no `std`, no `unsafe`, no panicking paths; the only dependency is `libm`, which
+//! supplies every transcendental function on the host and on the device alike. The host engine
+//! calls the slice forms, generated code calls the const-generic array forms, and each array form
+//! flattens and calls the slice form, so both perform the same operations in the same order and
+//! produce the same bits. The accumulation order of every reduction is documented on the kernel
+//! and is part of the contract.
+//!
+//! Slices of mismatched lengths never panic: operands are paired with `zip` (and matrix rows with
+//! `chunks_exact`), so the shortest operand decides and surplus elements are left untouched.
+//!
+//! # Kernels
+//!
+//! | module | kernels |
+//! | --- | --- |
+//! | [`real`] | [`Real`]: the scalar trait (`f32`, `f64`) over libm |
+//! | [`linalg`] | [`affine`] `z = W x + b`, [`back`] `out = W^T d`, [`outer_acc`] `G += d a^T`, [`add_acc`] `g += d`, [`standardize`] `(x - mean) / std`, each with an `_n` array form where shapes matter |
+//! | [`act`] | [`act::identity`], [`act::sigmoid`], [`act::tanh`], [`act::relu`], [`act::leaky_relu`], [`act::softmax`] and their `_grad` forms; [`act::Activation`] |
+//! | [`loss`] | [`loss::softplus`], [`loss::log_sum_exp`], [`loss::logistic_cross_entropy`], [`loss::softmax_cross_entropy`], [`loss::squared_error`], [`loss::output_error`] |
+//! | [`penalty`] | [`penalty::Penalty`] (none, L2, L1: cost term and gradient), [`penalty::finish_bias`] |
+//! | [`optim`] | [`optim::sgd`], [`optim::momentum`], [`optim::adam`] |
+//! | [`rng`] | [`rng::SplitMix64`] with uniform and normal draws; [`rng::fill_uniform`], [`rng::fill_normal`], [`rng::glorot_limit`], [`rng::he_std`] |
+//!
+//! # Examples
+//!
+//! One sigmoid layer, forward and backward, as generated code does it:
+//!
+//! ```
+//! use sinew_runtime as rt;
+//!
+//! let w = [[0.5_f64, -0.5], [1.0, 1.0]];
+//! let b = [0.0, -1.0];
+//! let x = [1.0, 1.0];
+//! let y = [1.0, 0.0];
+//!
+//! let mut a = [0.0; 2];
+//! rt::affine_n(&w, &b, &x, &mut a); // z = (0, 1)
+//! rt::act::sigmoid(&mut a);
+//! assert_eq!(a[0], 0.5);
+//!
+//! let loss = rt::loss::squared_error(&a, &y);
+//! let mut d = [0.0; 2];
+//! rt::loss::output_error(&a, &y, &mut d);
+//! rt::act::sigmoid_grad(&a, &mut d);
+//!
+//! let mut gw = [[0.0; 2]; 2];
+//! let mut gb = [0.0; 2];
+//! rt::outer_acc_n(&mut gw, &d, &x);
+//! rt::add_acc(&mut gb, &d);
+//! assert_eq!(gw[0], [-0.125, -0.125]); // (0.5 - 1) * 0.5 * 0.5 * x
+//! assert!(loss > 0.0);
+//! ```
+
+#![no_std]
+#![forbid(unsafe_code)]
+#![deny(missing_docs)]
+
+#[cfg(test)]
+extern crate std;
+
+pub mod act;
+pub mod linalg;
+pub mod loss;
+pub mod optim;
+pub mod penalty;
+pub mod real;
+pub mod rng;
+
+pub use linalg::{
+    add_acc, affine, affine_n, back, back_n, outer_acc, outer_acc_n, standardize, standardize_n,
+};
+pub use real::Real;

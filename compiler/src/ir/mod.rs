@@ -94,6 +94,16 @@ pub enum Loss {
     SquaredError,
 }
 
+impl Loss {
+    /// The spec keyword.
+    pub fn keyword(self) -> &'static str {
+        match self {
+            Loss::CrossEntropy => "cross_entropy",
+            Loss::SquaredError => "squared_error",
+        }
+    }
+}
+
 /// The penalty on weights (never on biases), added to the batch cost of m samples.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 #[serde(rename_all = "snake_case", tag = "kind", content = "lambda")]

@@ -1,0 +1,450 @@
+//! Host engine: evaluates and trains a [`Model`] over slices with the runtime's kernels.
+//!
+//! The engine calls the same `sinew-runtime` functions, in the same order, as the code that
+//! `emit` generates (the order is written out in `DEVELOPERS.md`), so for equal parameters and
+//! inputs its outputs, costs and gradients are bit-identical to the generated code. Tests in the
+//! tests crate prove it on every fixture.
+//!
+//! - [`Params`]: per-layer row-major weights and biases (and the standardization statistics);
+//!   the same type holds gradients.
+//! - [`Net`]: a model bound to its scalar type, with per-sample [`Net::predict`],
+//!   [`Net::loss`], [`Net::backprop`], and batch [`Net::finish`], [`Net::cost`].
+//! - [`batch`]: the batch gradient over many samples, multi-threaded with a result that does not
+//!   depend on the thread count (it equals the sequential sum bit for bit).
+//! - [`train`]: the trainers (gradient descent, momentum, Adam, L-BFGS), early stopping and
+//!   divergence detection; [`eval`]: metrics; [`gradcheck`]: finite differences.
+
+use crate::ir::{self, Init, Loss, Model, Optimizer};
+use sinew_runtime::{self as rt, act::Activation, penalty::Penalty, rng::SplitMix64, Real};
+
+pub mod batch;
+pub mod eval;
+pub mod gradcheck;
+pub mod train;
+
+/// One layer's parameters (or gradients): `weights` is row-major, `width` rows of `fan_in`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LayerParams<T> {
+    /// Row j holds the weights into unit j.
+    pub weights: Vec<T>,
+    /// One bias per unit.
+    pub bias: Vec<T>,
+}
+
+/// All parameters of a model (or a gradient of the same shape, whose scaling is empty).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Params<T> {
+    /// Per layer, in order, the output last.
+    pub layers: Vec<LayerParams<T>>,
+    /// Standardization means (empty without `standardize`).
+    pub mean: Vec<T>,
+    /// Standardization standard deviations (empty without `standardize`).
+    pub std: Vec<T>,
+}
+
+impl<T: Real> Params<T> {
+    /// All weights and biases zero; with `standardize`, mean 0 and std 1.
+    pub fn zeroed(model: &Model) -> Self {
+        let (mean, std) = if model.input.standardize {
+            (vec![T::ZERO; model.input.width], vec![T::ONE; model.input.width])
+        } else {
+            (Vec::new(), Vec::new())
+        };
+        Params { layers: Self::zero_layers(model), mean, std }
+    }
+
+    /// A zero gradient of the model's shape (no scaling).
+    pub fn zero_gradient(model: &Model) -> Self {
+        Params { layers: Self::zero_layers(model), mean: Vec::new(), std: Vec::new() }
+    }
+
+    fn zero_layers(model: &Model) -> Vec<LayerParams<T>> {
+        model
+            .layers
+            .iter()
+            .map(|l| LayerParams {
+                weights: vec![T::ZERO; l.width * l.fan_in],
+                bias: vec![T::ZERO; l.width],
+            })
+            .collect()
+    }
+
+    /// The spec's initialisation: one SplitMix64 seeded with `seed`; each layer's weights drawn
+    /// row-major in layer order; biases zero; standardization mean 0, std 1.
+    pub fn init(model: &Model, seed: u64) -> Self {
+        let mut p = Self::zeroed(model);
+        let mut rng = SplitMix64::new(seed);
+        for (l, lp) in model.layers.iter().zip(&mut p.layers) {
+            match model.init {
+                Init::Uniform { eps } => rt::rng::fill_uniform(&mut lp.weights, eps, &mut rng),
+                Init::Glorot => rt::rng::fill_uniform(
+                    &mut lp.weights,
+                    rt::rng::glorot_limit(l.fan_in, l.width),
+                    &mut rng,
+                ),
+                Init::He => rt::rng::fill_normal(&mut lp.weights, rt::rng::he_std(l.fan_in), &mut rng),
+            }
+        }
+        p
+    }
+
+    /// Sets every value to zero (scaling untouched).
+    pub fn clear(&mut self) {
+        for l in &mut self.layers {
+            l.weights.iter_mut().for_each(|v| *v = T::ZERO);
+            l.bias.iter_mut().for_each(|v| *v = T::ZERO);
+        }
+    }
+
+    /// Converts from f64 values (as stored in a weights file), rounding to `T`.
+    /// `layers` holds (row-major weights, bias) per layer; shapes are the caller's contract
+    /// (use [`crate::weights`] to validate a file first).
+    pub fn from_f64(layers: &[(Vec<f64>, Vec<f64>)], scaling: Option<(&[f64], &[f64])>) -> Self {
+        let conv = |v: &[f64]| v.iter().map(|&x| T::from_f64(x)).collect::<Vec<T>>();
+        Params {
+            layers: layers
+                .iter()
+                .map(|(w, b)| LayerParams { weights: conv(w), bias: conv(b) })
+                .collect(),
+            mean: scaling.map(|(m, _)| conv(m)).unwrap_or_default(),
+            std: scaling.map(|(_, s)| conv(s)).unwrap_or_default(),
+        }
+    }
+
+    /// The values widened to f64: (row-major weights, bias) per layer.
+    pub fn layers_f64(&self) -> Vec<(Vec<f64>, Vec<f64>)> {
+        let conv = |v: &[T]| v.iter().map(|x| x.to_f64()).collect::<Vec<f64>>();
+        self.layers.iter().map(|l| (conv(&l.weights), conv(&l.bias))).collect()
+    }
+
+    /// The standardization statistics widened to f64, if any.
+    pub fn scaling_f64(&self) -> Option<(Vec<f64>, Vec<f64>)> {
+        if self.mean.is_empty() {
+            None
+        } else {
+            Some((
+                self.mean.iter().map(|x| x.to_f64()).collect(),
+                self.std.iter().map(|x| x.to_f64()).collect(),
+            ))
+        }
+    }
+
+    /// Every weight and bias, layer by layer (weights then bias), as f64.
+    pub fn flat_f64(&self) -> Vec<f64> {
+        let mut v = Vec::new();
+        for l in &self.layers {
+            v.extend(l.weights.iter().map(|x| x.to_f64()));
+            v.extend(l.bias.iter().map(|x| x.to_f64()));
+        }
+        v
+    }
+
+    /// Overwrites every weight and bias from `flat` (the order of [`Params::flat_f64`]).
+    pub fn set_flat_f64(&mut self, flat: &[f64]) {
+        let mut it = flat.iter();
+        for l in &mut self.layers {
+            for v in l.weights.iter_mut().chain(l.bias.iter_mut()) {
+                if let Some(&x) = it.next() {
+                    *v = T::from_f64(x);
+                }
+            }
+        }
+    }
+}
+
+/// Per-sample working buffers, reused across samples.
+#[derive(Debug, Clone)]
+pub struct Scratch<T> {
+    /// Standardized input (empty without `standardize`).
+    pub x0: Vec<T>,
+    /// Activations per layer.
+    pub a: Vec<Vec<T>>,
+    /// Output logits z(L), kept for the loss.
+    pub z_out: Vec<T>,
+    /// Error terms per layer.
+    pub d: Vec<Vec<T>>,
+}
+
+impl<T: Real> Scratch<T> {
+    /// Buffers sized for `model`.
+    pub fn new(model: &Model) -> Self {
+        let widths = || model.layers.iter().map(|l| vec![T::ZERO; l.width]).collect::<Vec<_>>();
+        Scratch {
+            x0: if model.input.standardize { vec![T::ZERO; model.input.width] } else { Vec::new() },
+            a: widths(),
+            z_out: vec![T::ZERO; model.output().width],
+            d: widths(),
+        }
+    }
+}
+
+/// A model bound to a scalar type, with its activations and penalty converted once.
+#[derive(Debug, Clone)]
+pub struct Net<'m, T> {
+    /// The model.
+    pub model: &'m Model,
+    acts: Vec<Activation<T>>,
+    penalty: Penalty<T>,
+}
+
+/// Converts an IR activation to the runtime's.
+pub fn activation<T: Real>(a: ir::Activation) -> Activation<T> {
+    match a {
+        ir::Activation::Identity => Activation::Identity,
+        ir::Activation::Sigmoid => Activation::Sigmoid,
+        ir::Activation::Tanh => Activation::Tanh,
+        ir::Activation::Relu => Activation::Relu,
+        ir::Activation::LeakyRelu(alpha) => Activation::LeakyRelu(T::from_f64(alpha)),
+        ir::Activation::Softmax => Activation::Softmax,
+    }
+}
+
+/// Converts an IR penalty to the runtime's.
+pub fn penalty<T: Real>(p: ir::Penalty) -> Penalty<T> {
+    match p {
+        ir::Penalty::None => Penalty::None,
+        ir::Penalty::L2(l) => Penalty::L2(T::from_f64(l)),
+        ir::Penalty::L1(l) => Penalty::L1(T::from_f64(l)),
+    }
+}
+
+impl<'m, T: Real> Net<'m, T> {
+    /// Binds `model` to `T`.
+    pub fn new(model: &'m Model) -> Self {
+        Net {
+            model,
+            acts: model.layers.iter().map(|l| activation(l.activation)).collect(),
+            penalty: penalty(model.penalty),
+        }
+    }
+
+    /// Forward pass into `s.a`; with `keep_logits` the output's z is copied to `s.z_out` before
+    /// the output activation.
+    pub fn forward(&self, p: &Params<T>, x: &[T], s: &mut Scratch<T>, keep_logits: bool) {
+        let input: &[T] = if self.model.input.standardize {
+            rt::standardize(x, &p.mean, &p.std, &mut s.x0);
+            &s.x0
+        } else {
+            x
+        };
+        let last = s.a.len().saturating_sub(1);
+        for (l, (lp, act)) in p.layers.iter().zip(&self.acts).enumerate() {
+            let (done, rest) = s.a.split_at_mut(l);
+            let Some(out) = rest.first_mut() else { break };
+            let prev: &[T] = match done.last() {
+                Some(a) => a,
+                None => input,
+            };
+            rt::affine(&lp.weights, &lp.bias, prev, out);
+            if keep_logits && l == last {
+                s.z_out.copy_from_slice(out);
+            }
+            act.forward(out);
+        }
+    }
+
+    /// Network output for one sample, written to `out` (the generated `predict_into`).
+    pub fn predict(&self, p: &Params<T>, x: &[T], s: &mut Scratch<T>, out: &mut [T]) {
+        self.forward(p, x, s, false);
+        if let Some(a) = s.a.last() {
+            out.iter_mut().zip(a).for_each(|(o, &v)| *o = v);
+        }
+    }
+
+    fn sample_loss(&self, s: &Scratch<T>, y: &[T]) -> T {
+        let a_out = s.a.last().map(Vec::as_slice).unwrap_or(&[]);
+        match (self.model.loss, self.model.output().activation) {
+            (Loss::CrossEntropy, ir::Activation::Softmax) => {
+                rt::loss::softmax_cross_entropy(&s.z_out, y)
+            }
+            (Loss::CrossEntropy, _) => rt::loss::logistic_cross_entropy(&s.z_out, y),
+            (Loss::SquaredError, _) => rt::loss::squared_error(a_out, y),
+        }
+    }
+
+    /// The loss of one sample (no penalty).
+    pub fn loss(&self, p: &Params<T>, x: &[T], y: &[T], s: &mut Scratch<T>) -> T {
+        self.forward(p, x, s, true);
+        self.sample_loss(s, y)
+    }
+
+    /// Forward pass and error terms of one sample, leaving activations in `s.a` and errors in
+    /// `s.d`; returns the sample's loss. No gradient is accumulated.
+    pub fn deltas(&self, p: &Params<T>, x: &[T], y: &[T], s: &mut Scratch<T>) -> T {
+        self.forward(p, x, s, true);
+        let loss = self.sample_loss(s, y);
+        let n = s.d.len();
+        // Output error.
+        if let (Some(a_out), Some(d_out)) = (s.a.last(), s.d.last_mut()) {
+            rt::loss::output_error(a_out, y, d_out);
+            if self.model.loss == Loss::SquaredError {
+                if let Some(act) = self.acts.last() {
+                    act.backward(a_out, d_out);
+                }
+            }
+        }
+        // Hidden errors, from the last hidden layer down to the first.
+        for l in (1..n).rev() {
+            let (lower, upper) = s.d.split_at_mut(l);
+            if let (Some(d_prev), Some(d_l), Some(lp), Some(a_prev), Some(act)) =
+                (lower.last_mut(), upper.first(), p.layers.get(l), s.a.get(l - 1), self.acts.get(l - 1))
+            {
+                rt::back(&lp.weights, d_l, d_prev);
+                act.backward(a_prev, d_prev);
+            }
+        }
+        loss
+    }
+
+    /// The input the first layer sees (standardized copy or `x`).
+    pub fn layer_input<'a>(&self, x: &'a [T], s: &'a Scratch<T>, l: usize) -> &'a [T] {
+        if l == 0 {
+            if self.model.input.standardize {
+                &s.x0
+            } else {
+                x
+            }
+        } else {
+            s.a.get(l - 1).map(Vec::as_slice).unwrap_or(&[])
+        }
+    }
+
+    /// Per-sample backprop: accumulates this sample's gradient into `grad` and returns its loss.
+    pub fn backprop(
+        &self,
+        p: &Params<T>,
+        x: &[T],
+        y: &[T],
+        grad: &mut Params<T>,
+        s: &mut Scratch<T>,
+    ) -> T {
+        let loss = self.deltas(p, x, y, s);
+        for l in (0..grad.layers.len()).rev() {
+            let (Some(g), Some(d)) = (grad.layers.get_mut(l), s.d.get(l)) else { continue };
+            rt::outer_acc(&mut g.weights, d, self.layer_input(x, s, l));
+            rt::add_acc(&mut g.bias, d);
+        }
+        loss
+    }
+
+    /// Batch finish: divides by `m` and adds the penalty gradient to the weights (never biases).
+    pub fn finish(&self, grad: &mut Params<T>, p: &Params<T>, m: usize) {
+        let m = T::from_usize(m);
+        for (g, w) in grad.layers.iter_mut().zip(&p.layers) {
+            self.penalty.finish_weights(&mut g.weights, &w.weights, m);
+            rt::penalty::finish_bias(&mut g.bias, m);
+        }
+    }
+
+    /// The penalty term of J for a batch of `m` samples.
+    pub fn penalty_cost(&self, p: &Params<T>, m: usize) -> T {
+        let mut sum = T::ZERO;
+        for l in &p.layers {
+            sum += self.penalty.sum(&l.weights);
+        }
+        self.penalty.cost(sum, T::from_usize(m))
+    }
+
+    /// J = (1/m) sum loss + penalty over samples stored row-major in `xs` / `ys`
+    /// (ZERO for an empty batch).
+    pub fn cost(&self, p: &Params<T>, xs: &[T], ys: &[T]) -> T {
+        let (n_in, n_out) = (self.model.input.width, self.model.output().width);
+        let mut s = Scratch::new(self.model);
+        let mut sum = T::ZERO;
+        let mut m = 0;
+        for (x, y) in xs.chunks_exact(n_in).zip(ys.chunks_exact(n_out)) {
+            sum += self.loss(p, x, y, &mut s);
+            m += 1;
+        }
+        if m == 0 {
+            return T::ZERO;
+        }
+        sum / T::from_usize(m) + self.penalty_cost(p, m)
+    }
+
+    /// The optimizer update of the spec's `train` line (or `optimizer`), over every weight and
+    /// bias array in layer order (weights, then bias), as the generated trainer does.
+    pub fn update(&self, optimizer: Optimizer, p: &mut Params<T>, g: &Params<T>, state: &mut OptState<T>) {
+        match optimizer {
+            Optimizer::Sgd { rate, momentum } if momentum == 0.0 => {
+                let rate = T::from_f64(rate);
+                for (pl, gl) in p.layers.iter_mut().zip(&g.layers) {
+                    rt::optim::sgd(&mut pl.weights, &gl.weights, rate);
+                    rt::optim::sgd(&mut pl.bias, &gl.bias, rate);
+                }
+            }
+            Optimizer::Sgd { rate, momentum } => {
+                let (rate, mu) = (T::from_f64(rate), T::from_f64(momentum));
+                let v = state.first.get_or_insert_with(|| Params::zero_gradient(self.model));
+                for ((pl, gl), vl) in p.layers.iter_mut().zip(&g.layers).zip(&mut v.layers) {
+                    rt::optim::momentum(&mut pl.weights, &gl.weights, &mut vl.weights, rate, mu);
+                    rt::optim::momentum(&mut pl.bias, &gl.bias, &mut vl.bias, rate, mu);
+                }
+            }
+            Optimizer::Adam { rate, beta1, beta2, epsilon } => {
+                let (rate, b1, b2, eps) =
+                    (T::from_f64(rate), T::from_f64(beta1), T::from_f64(beta2), T::from_f64(epsilon));
+                state.t = state.t.saturating_add(1);
+                let t = state.t;
+                let model = self.model;
+                let m = state.first.get_or_insert_with(|| Params::zero_gradient(model));
+                let v = state.second.get_or_insert_with(|| Params::zero_gradient(model));
+                for (((pl, gl), ml), vl) in
+                    p.layers.iter_mut().zip(&g.layers).zip(&mut m.layers).zip(&mut v.layers)
+                {
+                    rt::optim::adam(&mut pl.weights, &gl.weights, &mut ml.weights, &mut vl.weights, t, rate, b1, b2, eps);
+                    rt::optim::adam(&mut pl.bias, &gl.bias, &mut ml.bias, &mut vl.bias, t, rate, b1, b2, eps);
+                }
+            }
+        }
+    }
+}
+
+/// Optimizer state: momentum's velocity or Adam's moments, and the step count.
+#[derive(Debug, Clone, Default)]
+pub struct OptState<T> {
+    /// Velocity (momentum) or first moment (Adam).
+    pub first: Option<Params<T>>,
+    /// Second moment (Adam).
+    pub second: Option<Params<T>>,
+    /// Steps taken (Adam's t).
+    pub t: u32,
+}
+
+/// The on-host twin of the generated `Trainer`: params, gradient, optimizer state.
+#[derive(Debug, Clone)]
+pub struct Trainer<'m, T> {
+    /// The bound model.
+    pub net: Net<'m, T>,
+    /// Current parameters.
+    pub params: Params<T>,
+    /// The last batch gradient.
+    pub grad: Params<T>,
+    /// Optimizer state.
+    pub state: OptState<T>,
+    /// The optimizer (the spec's unless overridden).
+    pub optimizer: Optimizer,
+}
+
+impl<'m, T: Real + Send + Sync> Trainer<'m, T> {
+    /// A trainer starting from `params` with the spec's optimizer.
+    pub fn new(model: &'m Model, params: Params<T>) -> Self {
+        Trainer {
+            net: Net::new(model),
+            params,
+            grad: Params::zero_gradient(model),
+            state: OptState { first: None, second: None, t: 0 },
+            optimizer: model.train.optimizer,
+        }
+    }
+
+    /// One step over the samples in `xs` / `ys` (row-major): returns J before the update. An
+    /// empty batch returns ZERO and changes nothing.
+    pub fn step(&mut self, xs: &[T], ys: &[T]) -> T {
+        let Some(cost) = batch::gradient_into(&self.net, &self.params, xs, ys, &mut self.grad) else {
+            return T::ZERO;
+        };
+        self.net.update(self.optimizer, &mut self.params, &self.grad, &mut self.state);
+        cost
+    }
+}

@@ -1,0 +1,349 @@
+//! The syntax tree of a spec: plain data with a byte span on every node.
+//!
+//! Invariant: the tree knows nothing of sizes or ranges. Numbers are kept as the text the user
+//! wrote (already known to have the right form), names as written; `check` converts and
+//! validates them, so every user-facing error about meaning is raised there.
+
+use crate::span::{Span, Spanned};
+
+/// A name as written (not yet validated as an identifier).
+pub type Name = Spanned<String>;
+
+/// A number as written: decimal or exponent form, optionally signed (`0.01`, `-2`, `1e-3`).
+pub type Number = Spanned<String>;
+
+/// A whole number as written: decimal digits only, any length.
+pub type Integer = Spanned<String>;
+
+/// A parsed spec: its statements in source order.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Spec {
+    /// One entry per non-blank line, in order; lines with syntax errors appear as
+    /// [`Item::Invalid`] so that later stages know a section was attempted there.
+    pub statements: Vec<Statement>,
+}
+
+/// One statement (one line of the spec, without its comment).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Statement {
+    /// The statement's first word.
+    pub keyword: Span,
+    /// The whole statement, from its first word to its last.
+    pub span: Span,
+    /// What it says.
+    pub item: Item,
+}
+
+/// The sections of a spec, in the order they must appear.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub enum Section {
+    /// `model`
+    Model,
+    /// `scalar`
+    Scalar,
+    /// `input`
+    Input,
+    /// `layer` (the only section that may repeat)
+    Layer,
+    /// `output`
+    Output,
+    /// `loss`
+    Loss,
+    /// `penalty`
+    Penalty,
+    /// `init`
+    Init,
+    /// `train`
+    Train,
+    /// `budget`
+    Budget,
+}
+
+impl Section {
+    /// Every section, in the required order.
+    pub const ALL: [Section; 10] = [
+        Section::Model,
+        Section::Scalar,
+        Section::Input,
+        Section::Layer,
+        Section::Output,
+        Section::Loss,
+        Section::Penalty,
+        Section::Init,
+        Section::Train,
+        Section::Budget,
+    ];
+
+    /// The keyword that starts the section's line.
+    pub fn keyword(self) -> &'static str {
+        match self {
+            Section::Model => "model",
+            Section::Scalar => "scalar",
+            Section::Input => "input",
+            Section::Layer => "layer",
+            Section::Output => "output",
+            Section::Loss => "loss",
+            Section::Penalty => "penalty",
+            Section::Init => "init",
+            Section::Train => "train",
+            Section::Budget => "budget",
+        }
+    }
+
+    /// The section started by `word`, if it is a section keyword.
+    pub fn from_keyword(word: &str) -> Option<Section> {
+        Section::ALL.into_iter().find(|s| s.keyword() == word)
+    }
+
+    /// How the section's line is written, for hints.
+    pub fn form(self) -> &'static str {
+        match self {
+            Section::Model => "model NAME",
+            Section::Scalar => "scalar f32|f64",
+            Section::Input => "input NAME WIDTH [standardize]",
+            Section::Layer => "layer NAME WIDTH ACTIVATION",
+            Section::Output => "output NAME WIDTH ACTIVATION [classes A, B, ...]",
+            Section::Loss => "loss cross_entropy|squared_error",
+            Section::Penalty => "penalty none | penalty l2 LAMBDA | penalty l1 LAMBDA",
+            Section::Init => "init uniform EPS|glorot|he [seed N]",
+            Section::Train => {
+                "train sgd rate R [momentum M] [batch N] [epochs N] \
+                 | train adam rate R [beta1 B1] [beta2 B2] [batch N] [epochs N]"
+            }
+            Section::Budget => "budget [flash N UNIT] [ram N UNIT] (UNIT is B, KiB or MiB)",
+        }
+    }
+}
+
+/// What one statement says.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Item {
+    /// `model NAME`
+    Model {
+        /// The model's name.
+        name: Name,
+    },
+    /// `scalar f32|f64`
+    Scalar {
+        /// The type.
+        kind: Spanned<ScalarKind>,
+    },
+    /// `input NAME WIDTH [standardize]`
+    Input {
+        /// The input's name.
+        name: Name,
+        /// Number of features.
+        width: Integer,
+        /// Where `standardize` was written, if it was.
+        standardize: Option<Span>,
+    },
+    /// `layer NAME WIDTH ACTIVATION`
+    Layer(LayerDecl),
+    /// `output NAME WIDTH ACTIVATION [classes ...]`
+    Output {
+        /// Name, width and activation.
+        layer: LayerDecl,
+        /// The class names, if given.
+        classes: Option<Classes>,
+    },
+    /// `loss KIND`
+    Loss {
+        /// The loss.
+        kind: Spanned<LossKind>,
+    },
+    /// `penalty none | l2 LAMBDA | l1 LAMBDA`
+    Penalty {
+        /// The penalty.
+        kind: Spanned<PenaltyKind>,
+    },
+    /// `init KIND [seed N]`
+    Init {
+        /// The initialisation.
+        kind: Spanned<InitKind>,
+        /// The seed, if given.
+        seed: Option<Integer>,
+    },
+    /// `train OPTIMIZER [batch N] [epochs N]`
+    Train {
+        /// The optimizer and its settings.
+        optimizer: Spanned<OptimizerKind>,
+        /// Samples per batch, if given.
+        batch: Option<Integer>,
+        /// Passes over the data, if given.
+        epochs: Option<Integer>,
+    },
+    /// `budget [flash N UNIT] [ram N UNIT]`
+    Budget {
+        /// The flash limit, if given.
+        flash: Option<Size>,
+        /// The RAM limit, if given.
+        ram: Option<Size>,
+    },
+    /// A line with a syntax error (already reported by the parser).
+    Invalid {
+        /// The section the line was meant to be, when that is clear from its first word.
+        meant: Option<Section>,
+    },
+}
+
+impl Item {
+    /// The section this item belongs to (`None` for an invalid line of unknown kind).
+    pub fn section(&self) -> Option<Section> {
+        Some(match self {
+            Item::Model { .. } => Section::Model,
+            Item::Scalar { .. } => Section::Scalar,
+            Item::Input { .. } => Section::Input,
+            Item::Layer(_) => Section::Layer,
+            Item::Output { .. } => Section::Output,
+            Item::Loss { .. } => Section::Loss,
+            Item::Penalty { .. } => Section::Penalty,
+            Item::Init { .. } => Section::Init,
+            Item::Train { .. } => Section::Train,
+            Item::Budget { .. } => Section::Budget,
+            Item::Invalid { meant } => return *meant,
+        })
+    }
+}
+
+/// Name, width and activation of a layer.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LayerDecl {
+    /// The layer's name.
+    pub name: Name,
+    /// Its number of units.
+    pub width: Integer,
+    /// Its activation.
+    pub activation: Spanned<ActivationKind>,
+}
+
+/// The `classes` clause of an output line.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Classes {
+    /// From `classes` to the last name.
+    pub span: Span,
+    /// The names in order.
+    pub names: Vec<Name>,
+}
+
+/// `f32` or `f64`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ScalarKind {
+    /// `f32`
+    F32,
+    /// `f64`
+    F64,
+}
+
+/// An activation as written.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ActivationKind {
+    /// `identity`
+    Identity,
+    /// `sigmoid`
+    Sigmoid,
+    /// `tanh`
+    Tanh,
+    /// `relu`
+    Relu,
+    /// `leaky_relu ALPHA`
+    LeakyRelu {
+        /// The slope below zero.
+        alpha: Number,
+    },
+    /// `softmax`
+    Softmax,
+}
+
+/// A loss as written.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum LossKind {
+    /// `cross_entropy`
+    CrossEntropy,
+    /// `squared_error`
+    SquaredError,
+}
+
+/// A penalty as written.
+#[derive(Debug, Clone, PartialEq)]
+pub enum PenaltyKind {
+    /// `none`
+    None,
+    /// `l2 LAMBDA`
+    L2 {
+        /// Its strength.
+        lambda: Number,
+    },
+    /// `l1 LAMBDA`
+    L1 {
+        /// Its strength.
+        lambda: Number,
+    },
+}
+
+/// An initialisation as written.
+#[derive(Debug, Clone, PartialEq)]
+pub enum InitKind {
+    /// `uniform EPS`
+    Uniform {
+        /// Half-width of the interval.
+        eps: Number,
+    },
+    /// `glorot`
+    Glorot,
+    /// `he`
+    He,
+}
+
+/// An optimizer as written.
+#[derive(Debug, Clone, PartialEq)]
+pub enum OptimizerKind {
+    /// `sgd rate R [momentum M]`
+    Sgd {
+        /// The learning rate.
+        rate: Number,
+        /// The momentum, if given.
+        momentum: Option<Number>,
+    },
+    /// `adam rate R [beta1 B1] [beta2 B2]`
+    Adam {
+        /// The learning rate.
+        rate: Number,
+        /// First-moment decay, if given.
+        beta1: Option<Number>,
+        /// Second-moment decay, if given.
+        beta2: Option<Number>,
+    },
+}
+
+/// A memory amount `N UNIT`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Size {
+    /// The whole amount, from the number to the unit.
+    pub span: Span,
+    /// The number.
+    pub amount: Integer,
+    /// The unit.
+    pub unit: Spanned<Unit>,
+}
+
+/// A unit of memory.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Unit {
+    /// `B`: one byte.
+    B,
+    /// `KiB`: 1024 bytes.
+    KiB,
+    /// `MiB`: 1024 * 1024 bytes.
+    MiB,
+}
+
+impl Unit {
+    /// Bytes in one unit.
+    pub fn bytes(self) -> u64 {
+        match self {
+            Unit::B => 1,
+            Unit::KiB => 1024,
+            Unit::MiB => 1024 * 1024,
+        }
+    }
+}

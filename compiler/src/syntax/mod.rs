@@ -1,0 +1,11 @@
+//! Syntax: spec text to a syntax tree with byte spans.
+//!
+//! The grammar is `grammar/sinew.pest`; [`parse`] is the entry point. This module knows nothing
+//! of sizes or ranges: everything about meaning is checked in [`crate::check`].
+
+pub mod ast;
+mod parse;
+
+pub use ast::Spec;
+pub use parse::{parse, Rule, SpecParser};
+pub(crate) use parse::{quote, suggest, ACTIVATIONS};

@@ -1,0 +1,473 @@
+//! Activation functions and their derivatives.
+//!
+//! Forward functions work in place on a buffer that holds the pre-activations `z` and afterwards
+//! the activations `a = g(z)`. Backward functions work in place on an error buffer `d` given the
+//! layer's activations `a` (not `z`): each derivative is written in terms of the output, which is
+//! what a layer keeps. Slices of different lengths are paired by `zip`: surplus elements are left
+//! untouched.
+
+use crate::Real;
+
+/// Identity `g(z) = z`: leaves `v` as it is.
+///
+/// # Examples
+///
+/// ```
+/// let mut v = [-1.0, 2.0];
+/// sinew_runtime::act::identity(&mut v);
+/// assert_eq!(v, [-1.0, 2.0]);
+/// ```
+#[inline]
+pub fn identity<T: Real>(v: &mut [T]) {
+    let _ = v;
+}
+
+/// Derivative of the identity, `g'(z) = 1`: leaves `d` as it is.
+///
+/// # Examples
+///
+/// ```
+/// let mut d = [0.5];
+/// sinew_runtime::act::identity_grad(&[3.0], &mut d);
+/// assert_eq!(d, [0.5]);
+/// ```
+#[inline]
+pub fn identity_grad<T: Real>(a: &[T], d: &mut [T]) {
+    let _ = (a, d);
+}
+
+/// Logistic sigmoid `g(z) = 1 / (1 + e^-z)`, in place.
+///
+/// Computed so that the exponential never overflows: for `z >= 0` as `1 / (1 + e^-z)`, for
+/// `z < 0` as `e^z / (1 + e^z)`. Saturates to exactly 0 or 1 for large `|z|`, never NaN for finite
+/// or infinite input.
+///
+/// # Examples
+///
+/// ```
+/// let mut v = [0.0_f64, 1000.0, -1000.0];
+/// sinew_runtime::act::sigmoid(&mut v);
+/// assert_eq!(v, [0.5, 1.0, 0.0]);
+/// ```
+pub fn sigmoid<T: Real>(v: &mut [T]) {
+    for x in v.iter_mut() {
+        let z = *x;
+        *x = if z >= T::ZERO {
+            T::ONE / (T::ONE + (-z).exp())
+        } else {
+            let e = z.exp();
+            e / (T::ONE + e)
+        };
+    }
+}
+
+/// Derivative of the sigmoid from its output, `g'(z) = a (1 - a)`: `d_j *= a_j * (1 - a_j)`.
+///
+/// # Examples
+///
+/// ```
+/// let mut d = [1.0];
+/// sinew_runtime::act::sigmoid_grad(&[0.5], &mut d);
+/// assert_eq!(d, [0.25]);
+/// ```
+pub fn sigmoid_grad<T: Real>(a: &[T], d: &mut [T]) {
+    for (dj, aj) in d.iter_mut().zip(a) {
+        *dj *= *aj * (T::ONE - *aj);
+    }
+}
+
+/// Hyperbolic tangent `g(z) = tanh z` (libm), in place.
+///
+/// # Examples
+///
+/// ```
+/// let mut v = [0.0_f32, 50.0];
+/// sinew_runtime::act::tanh(&mut v);
+/// assert_eq!(v, [0.0, 1.0]);
+/// ```
+pub fn tanh<T: Real>(v: &mut [T]) {
+    for x in v.iter_mut() {
+        *x = x.tanh();
+    }
+}
+
+/// Derivative of tanh from its output, `g'(z) = 1 - a^2`: `d_j *= 1 - a_j * a_j`.
+///
+/// # Examples
+///
+/// ```
+/// let mut d = [2.0];
+/// sinew_runtime::act::tanh_grad(&[0.5], &mut d);
+/// assert_eq!(d, [1.5]);
+/// ```
+pub fn tanh_grad<T: Real>(a: &[T], d: &mut [T]) {
+    for (dj, aj) in d.iter_mut().zip(a) {
+        *dj *= T::ONE - *aj * *aj;
+    }
+}
+
+/// Rectified linear unit `g(z) = max(z, 0)`, in place: values below zero become zero (NaN passes
+/// through).
+///
+/// # Examples
+///
+/// ```
+/// let mut v = [-2.0, 0.0, 3.0];
+/// sinew_runtime::act::relu(&mut v);
+/// assert_eq!(v, [0.0, 0.0, 3.0]);
+/// ```
+pub fn relu<T: Real>(v: &mut [T]) {
+    for x in v.iter_mut() {
+        if *x < T::ZERO {
+            *x = T::ZERO;
+        }
+    }
+}
+
+/// Derivative of relu, `g'(z) = 1 if z > 0 else 0`: `d_j` is kept where `a_j > 0` and set to zero
+/// elsewhere (`a_j > 0` exactly when `z_j > 0`; the derivative at 0 is taken as 0).
+///
+/// # Examples
+///
+/// ```
+/// let mut d = [5.0, 5.0, 5.0];
+/// sinew_runtime::act::relu_grad(&[0.0, 1.0, 0.0], &mut d);
+/// assert_eq!(d, [0.0, 5.0, 0.0]);
+/// ```
+pub fn relu_grad<T: Real>(a: &[T], d: &mut [T]) {
+    for (dj, aj) in d.iter_mut().zip(a) {
+        *dj = if *aj > T::ZERO { *dj } else { T::ZERO };
+    }
+}
+
+/// Leaky rectified linear unit `g(z) = z if z >= 0 else alpha z`, in place: values below zero are
+/// multiplied by `alpha`.
+///
+/// # Examples
+///
+/// ```
+/// let mut v = [-2.0, 3.0];
+/// sinew_runtime::act::leaky_relu(&mut v, 0.25);
+/// assert_eq!(v, [-0.5, 3.0]);
+/// ```
+pub fn leaky_relu<T: Real>(v: &mut [T], alpha: T) {
+    for x in v.iter_mut() {
+        if *x < T::ZERO {
+            *x *= alpha;
+        }
+    }
+}
+
+/// Derivative of leaky relu, `g'(z) = 1 if z > 0 else alpha`: `d_j *= alpha` unless `a_j > 0`.
+///
+/// Reading the sign from the output is valid for `alpha` in `[0, 1)` (then `a > 0` exactly when
+/// `z > 0`); the derivative at 0 is taken as `alpha`.
+///
+/// # Examples
+///
+/// ```
+/// let mut d = [4.0, 4.0];
+/// sinew_runtime::act::leaky_relu_grad(&[-0.5, 3.0], &mut d, 0.25);
+/// assert_eq!(d, [1.0, 4.0]);
+/// ```
+pub fn leaky_relu_grad<T: Real>(a: &[T], d: &mut [T], alpha: T) {
+    for (dj, aj) in d.iter_mut().zip(a) {
+        if *aj > T::ZERO {
+            continue;
+        }
+        *dj *= alpha;
+    }
+}
+
+/// Softmax `a_j = e^(z_j) / sum_k e^(z_k)`, in place, computed stably.
+///
+/// Steps: `m = max_k z_k` (fold from the first element with [`Real::max`]); `v_j = e^(z_j - m)`;
+/// `s = sum_j v_j` starting at `ZERO` in increasing `j`; `v_j = v_j / s`. The largest exponent is
+/// 0, so nothing overflows for finite input (entries of `-inf` give 0 as long as one entry is
+/// finite); a `+inf` or NaN entry makes the result NaN. An empty slice is left alone.
+///
+/// # Examples
+///
+/// ```
+/// let mut v = [1000.0_f64, 1000.0];
+/// sinew_runtime::act::softmax(&mut v);
+/// assert_eq!(v, [0.5, 0.5]);
+/// ```
+pub fn softmax<T: Real>(v: &mut [T]) {
+    let Some(first) = v.first() else {
+        return;
+    };
+    let mut m = *first;
+    for x in v.iter() {
+        m = m.max(*x);
+    }
+    let mut s = T::ZERO;
+    for x in v.iter_mut() {
+        *x = (*x - m).exp();
+        s += *x;
+    }
+    for x in v.iter_mut() {
+        *x /= s;
+    }
+}
+
+/// Softmax Jacobian-vector product, in place: with `s = sum_k d_k a_k` (from `ZERO`, increasing
+/// `k`), `d_j = a_j (d_j - s)`.
+///
+/// This is `J^T d` for the full Jacobian `da_j / dz_i = a_j (delta_ij - a_i)` (it is symmetric).
+/// `s` is taken over the zip of `d` and `a`.
+///
+/// # Examples
+///
+/// ```
+/// let mut d = [1.0, 0.0];
+/// sinew_runtime::act::softmax_grad(&[0.5, 0.5], &mut d);
+/// assert_eq!(d, [0.25, -0.25]);
+/// ```
+pub fn softmax_grad<T: Real>(a: &[T], d: &mut [T]) {
+    let mut s = T::ZERO;
+    for (dk, ak) in d.iter().zip(a) {
+        s += *dk * *ak;
+    }
+    for (dj, aj) in d.iter_mut().zip(a) {
+        *dj = *aj * (*dj - s);
+    }
+}
+
+/// An activation chosen at run time (the host engine's form; generated code calls the functions of
+/// this module directly).
+///
+/// # Examples
+///
+/// ```
+/// use sinew_runtime::act::Activation;
+///
+/// let g = Activation::LeakyRelu(0.5_f64);
+/// let mut v = [-2.0, 2.0];
+/// g.forward(&mut v);
+/// assert_eq!(v, [-1.0, 2.0]);
+/// let mut d = [1.0, 1.0];
+/// g.backward(&v, &mut d);
+/// assert_eq!(d, [0.5, 1.0]);
+/// ```
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum Activation<T> {
+    /// `g(z) = z`, `g' = 1`.
+    Identity,
+    /// `g(z) = 1 / (1 + e^-z)`, `g' = a (1 - a)`.
+    Sigmoid,
+    /// `g(z) = tanh z`, `g' = 1 - a^2`.
+    Tanh,
+    /// `g(z) = max(z, 0)`, `g' = 1 if z > 0 else 0`.
+    Relu,
+    /// `g(z) = z if z >= 0 else alpha z`, `g' = 1 if z > 0 else alpha`; holds `alpha`.
+    LeakyRelu(T),
+    /// `a_j = e^(z_j) / sum_k e^(z_k)`, backward `d_j = a_j (d_j - sum_k d_k a_k)`.
+    Softmax,
+}
+
+impl<T: Real> Activation<T> {
+    /// Applies the activation in place: `v` holds `z` before and `a = g(z)` after.
+    pub fn forward(&self, v: &mut [T]) {
+        match *self {
+            Activation::Identity => identity(v),
+            Activation::Sigmoid => sigmoid(v),
+            Activation::Tanh => tanh(v),
+            Activation::Relu => relu(v),
+            Activation::LeakyRelu(alpha) => leaky_relu(v, alpha),
+            Activation::Softmax => softmax(v),
+        }
+    }
+
+    /// Multiplies the error `d` by the derivative at the activations `a`, in place (the matching
+    /// `*_grad` function; for softmax the Jacobian-vector product).
+    pub fn backward(&self, a: &[T], d: &mut [T]) {
+        match *self {
+            Activation::Identity => identity_grad(a, d),
+            Activation::Sigmoid => sigmoid_grad(a, d),
+            Activation::Tanh => tanh_grad(a, d),
+            Activation::Relu => relu_grad(a, d),
+            Activation::LeakyRelu(alpha) => leaky_relu_grad(a, d, alpha),
+            Activation::Softmax => softmax_grad(a, d),
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::rng::SplitMix64;
+    use std::vec::Vec;
+
+    fn apply(f: fn(&mut [f64]), z: f64) -> f64 {
+        let mut v = [z];
+        f(&mut v);
+        v[0]
+    }
+
+    /// g'(z) from the `_grad` function: d = 1 times the derivative at a = g(z).
+    fn slope(f: fn(&mut [f64]), grad: fn(&[f64], &mut [f64]), z: f64) -> f64 {
+        let a = [apply(f, z)];
+        let mut d = [1.0];
+        grad(&a, &mut d);
+        d[0]
+    }
+
+    /// Central difference (g(z + h) - g(z - h)) / (2h); error O(h^2) (common practice).
+    fn central(f: fn(&mut [f64]), z: f64) -> f64 {
+        let h = 1e-6;
+        (apply(f, z + h) - apply(f, z - h)) / (2.0 * h)
+    }
+
+    #[test]
+    fn derivatives_at_zero() {
+        // sigmoid'(0) = s(0)(1 - s(0)) = 1/4 and tanh'(0) = 1 - tanh(0)^2 = 1 (calculus; common
+        // practice).
+        assert_eq!(apply(sigmoid, 0.0), 0.5);
+        assert_eq!(slope(sigmoid, sigmoid_grad, 0.0), 0.25);
+        assert_eq!(slope(tanh, tanh_grad, 0.0), 1.0);
+        assert_eq!(slope(identity, identity_grad, 0.0), 1.0);
+    }
+
+    fn leaky(v: &mut [f64]) {
+        leaky_relu(v, 0.1);
+    }
+
+    fn leaky_grad(a: &[f64], d: &mut [f64]) {
+        leaky_relu_grad(a, d, 0.1);
+    }
+
+    #[test]
+    fn derivatives_match_central_differences() {
+        type Pair = (&'static str, fn(&mut [f64]), fn(&[f64], &mut [f64]));
+        let pairs: [Pair; 5] = [
+            ("identity", identity, identity_grad),
+            ("sigmoid", sigmoid, sigmoid_grad),
+            ("tanh", tanh, tanh_grad),
+            ("relu", relu, relu_grad),
+            ("leaky_relu", leaky, leaky_grad),
+        ];
+        // A grid over [-6, 6] that avoids the kink of relu at 0.
+        for k in -60..=60 {
+            let z = f64::from(k) * 0.1 + 0.013;
+            for (name, f, grad) in pairs {
+                let (got, want) = (slope(f, grad, z), central(f, z));
+                assert!((got - want).abs() < 1e-8, "{name}'({z}) = {got}, fd {want}");
+            }
+        }
+    }
+
+    #[test]
+    fn softmax_of_one_two_three() {
+        // softmax(1, 2, 3) = (0.09003057, 0.24472847, 0.66524096) (a common textbook example;
+        // values from memory), checked also against e^k / sum e^k with std's exp.
+        let mut v = [1.0_f64, 2.0, 3.0];
+        softmax(&mut v);
+        let e = [1.0_f64.exp(), 2.0_f64.exp(), 3.0_f64.exp()];
+        let s = e[0] + e[1] + e[2];
+        for ((got, memory), ek) in v.iter().zip([0.09003057, 0.24472847, 0.66524096]).zip(e) {
+            assert!((got - memory).abs() < 5e-9, "{got} vs {memory}");
+            assert!((got - ek / s).abs() < 1e-15, "{got} vs {}", ek / s);
+        }
+        // Shifting every logit leaves softmax unchanged (common practice), even at 1000.
+        let mut w = [1001.0_f64, 1002.0, 1003.0];
+        softmax(&mut w);
+        for (a, b) in v.iter().zip(&w) {
+            assert!((a - b).abs() < 1e-14);
+        }
+        let mut f = [1.0_f32, 2.0, 3.0];
+        softmax(&mut f);
+        for (a, b) in f.iter().zip(&v) {
+            assert!((f64::from(*a) - b).abs() < 1e-7);
+        }
+        let mut empty: [f64; 0] = [];
+        softmax(&mut empty);
+    }
+
+    #[test]
+    fn softmax_grad_is_the_jacobian_vector_product() {
+        // The i-th entry of J^T u is d/dz_i (u . softmax(z)); compare with central differences of
+        // that scalar function (common practice).
+        let mut rng = SplitMix64::new(21);
+        for n in 1..=7 {
+            let z: Vec<f64> = (0..n).map(|_| rng.uniform(-3.0, 3.0)).collect();
+            let u: Vec<f64> = (0..n).map(|_| rng.uniform(-1.0, 1.0)).collect();
+            let dot = |z: &[f64]| {
+                let mut a = z.to_vec();
+                softmax(&mut a);
+                a.iter().zip(&u).map(|(a, u)| a * u).sum::<f64>()
+            };
+            let mut a = z.clone();
+            softmax(&mut a);
+            let mut d = u.clone();
+            softmax_grad(&a, &mut d);
+            for i in 0..n {
+                let h = 1e-6;
+                let (mut zp, mut zm) = (z.clone(), z.clone());
+                zp[i] += h;
+                zm[i] -= h;
+                let fd = (dot(&zp) - dot(&zm)) / (2.0 * h);
+                assert!((d[i] - fd).abs() < 1e-9, "n {n} i {i}: {} vs {fd}", d[i]);
+            }
+        }
+    }
+
+    #[test]
+    fn sigmoid_is_stable_for_large_inputs() {
+        let mut v = [1000.0_f64, -1000.0, 40.0, -40.0, f64::INFINITY, f64::NEG_INFINITY];
+        sigmoid(&mut v);
+        assert!(v.iter().all(|x| !x.is_nan()));
+        assert_eq!([v[0], v[1], v[4], v[5]], [1.0, 0.0, 1.0, 0.0]);
+        // sigmoid(-40) = e^-40 / (1 + e^-40): positive, not flushed to zero.
+        assert!(v[3] > 0.0 && (v[3] - (-40.0_f64).exp()).abs() < 1e-30);
+        let mut f = [1000.0_f32, -1000.0, 88.0, -88.0];
+        sigmoid(&mut f);
+        assert!(f.iter().all(|x| !x.is_nan()));
+        assert_eq!([f[0], f[1]], [1.0, 0.0]);
+        let mut big = [1000.0_f64, -1000.0, 0.0];
+        softmax(&mut big);
+        assert_eq!(big, [1.0, 0.0, 0.0]);
+    }
+
+    #[test]
+    fn relu_family_by_hand() {
+        let mut v = [-3.0_f64, -0.5, 0.0, 0.5, 3.0];
+        relu(&mut v);
+        assert_eq!(v, [0.0, 0.0, 0.0, 0.5, 3.0]);
+        let mut d = [1.0; 5];
+        relu_grad(&v, &mut d);
+        assert_eq!(d, [0.0, 0.0, 0.0, 1.0, 1.0]);
+        let mut v = [-3.0_f64, 0.0, 3.0];
+        leaky_relu(&mut v, 0.01);
+        assert_eq!(v, [-0.03, 0.0, 3.0]);
+        let mut d = [2.0; 3];
+        leaky_relu_grad(&v, &mut d, 0.01);
+        assert_eq!(d, [0.02, 0.02, 2.0]);
+    }
+
+    #[test]
+    fn enum_dispatch_equals_the_functions() {
+        let z = [-2.5_f64, -0.1, 0.0, 0.7, 3.0];
+        let u = [0.3_f64, -1.0, 0.5, 2.0, -0.25];
+        type Fwd = fn(&mut [f64]);
+        type Bwd = fn(&[f64], &mut [f64]);
+        let cases: [(Activation<f64>, Fwd, Bwd); 6] = [
+            (Activation::Identity, identity, identity_grad),
+            (Activation::Sigmoid, sigmoid, sigmoid_grad),
+            (Activation::Tanh, tanh, tanh_grad),
+            (Activation::Relu, relu, relu_grad),
+            (Activation::LeakyRelu(0.1), leaky, leaky_grad),
+            (Activation::Softmax, softmax, softmax_grad),
+        ];
+        for (g, f, grad) in cases {
+            let (mut a1, mut a2) = (z, z);
+            g.forward(&mut a1);
+            f(&mut a2);
+            let (mut d1, mut d2) = (u, u);
+            g.backward(&a1, &mut d1);
+            grad(&a2, &mut d2);
+            assert_eq!(a1.map(f64::to_bits), a2.map(f64::to_bits), "{g:?}");
+            assert_eq!(d1.map(f64::to_bits), d2.map(f64::to_bits), "{g:?}");
+        }
+    }
+}

@@ -1,0 +1,169 @@
+//! The scalar trait every kernel is generic over, implemented for `f32` and `f64`.
+//!
+//! Every transcendental function goes through `libm`, on the host and on the device alike, so the
+//! same inputs give the same bits everywhere.
+
+use core::fmt::Debug;
+use core::ops::{Add, AddAssign, Div, DivAssign, Mul, MulAssign, Neg, Sub, SubAssign};
+
+/// A floating-point scalar: `f32` or `f64`.
+///
+/// The arithmetic operators are the IEEE 754 ones of the primitive type (round to nearest, no fused
+/// multiply-add); the functions below call `libm`:
+///
+/// | method  | `f32`     | `f64`   |
+/// | ------- | --------- | ------- |
+/// | `exp`   | `expf`    | `exp`   |
+/// | `ln`    | `logf`    | `log`   |
+/// | `ln_1p` | `log1pf`  | `log1p` |
+/// | `tanh`  | `tanhf`   | `tanh`  |
+/// | `sqrt`  | `sqrtf`   | `sqrt`  |
+/// | `abs`   | `fabsf`   | `fabs`  |
+/// | `powi`  | `powf`    | `pow`   |
+///
+/// # Examples
+///
+/// ```
+/// use sinew_runtime::Real;
+///
+/// fn half_square<T: Real>(x: T) -> T {
+///     T::HALF * x * x
+/// }
+/// assert_eq!(half_square(3.0_f32), 4.5);
+/// assert_eq!(Real::max(1.0_f64, 2.0), 2.0);
+/// assert_eq!(<f64 as Real>::from_usize(32), 32.0);
+/// ```
+pub trait Real:
+    Copy
+    + Default
+    + PartialEq
+    + PartialOrd
+    + Debug
+    + Add<Output = Self>
+    + Sub<Output = Self>
+    + Mul<Output = Self>
+    + Div<Output = Self>
+    + Neg<Output = Self>
+    + AddAssign
+    + SubAssign
+    + MulAssign
+    + DivAssign
+{
+    /// 0.
+    const ZERO: Self;
+    /// 1.
+    const ONE: Self;
+    /// 2.
+    const TWO: Self;
+    /// 1/2.
+    const HALF: Self;
+
+    /// `v` rounded to the nearest value of `Self` (exact for `f64`).
+    fn from_f64(v: f64) -> Self;
+    /// `self` as `f64` (always exact).
+    fn to_f64(self) -> f64;
+    /// `n` rounded to the nearest value of `Self` (one rounding, exact up to 2^24 for `f32` and
+    /// 2^53 for `f64`).
+    fn from_usize(n: usize) -> Self;
+    /// e^self.
+    fn exp(self) -> Self;
+    /// Natural logarithm ln(self).
+    fn ln(self) -> Self;
+    /// ln(1 + self), accurate for small `self`.
+    fn ln_1p(self) -> Self;
+    /// Hyperbolic tangent (e^x - e^-x) / (e^x + e^-x).
+    fn tanh(self) -> Self;
+    /// Square root.
+    fn sqrt(self) -> Self;
+    /// Absolute value |self|.
+    fn abs(self) -> Self;
+    /// self^n, computed as libm `pow(self, n as float)`.
+    fn powi(self, n: i32) -> Self;
+    /// The larger of `self` and `o`; NaN if either is NaN. On a tie (including `0.0` against `-0.0`)
+    /// it returns `o`.
+    fn max(self, o: Self) -> Self;
+}
+
+macro_rules! impl_real {
+    ($t:ty, $exp:path, $ln:path, $ln1p:path, $tanh:path, $sqrt:path, $abs:path, $pow:path) => {
+        impl Real for $t {
+            const ZERO: Self = 0.0;
+            const ONE: Self = 1.0;
+            const TWO: Self = 2.0;
+            const HALF: Self = 0.5;
+
+            #[inline]
+            fn from_f64(v: f64) -> Self {
+                v as $t
+            }
+            #[inline]
+            fn to_f64(self) -> f64 {
+                self as f64
+            }
+            #[inline]
+            fn from_usize(n: usize) -> Self {
+                n as $t
+            }
+            #[inline]
+            fn exp(self) -> Self {
+                $exp(self)
+            }
+            #[inline]
+            fn ln(self) -> Self {
+                $ln(self)
+            }
+            #[inline]
+            fn ln_1p(self) -> Self {
+                $ln1p(self)
+            }
+            #[inline]
+            fn tanh(self) -> Self {
+                $tanh(self)
+            }
+            #[inline]
+            fn sqrt(self) -> Self {
+                $sqrt(self)
+            }
+            #[inline]
+            fn abs(self) -> Self {
+                $abs(self)
+            }
+            #[inline]
+            fn powi(self, n: i32) -> Self {
+                $pow(self, n as $t)
+            }
+            #[inline]
+            fn max(self, o: Self) -> Self {
+                if self > o {
+                    self
+                } else if o >= self {
+                    o
+                } else {
+                    // Unordered: at least one is NaN, and so is their sum.
+                    self + o
+                }
+            }
+        }
+    };
+}
+
+impl_real!(
+    f32,
+    libm::expf,
+    libm::logf,
+    libm::log1pf,
+    libm::tanhf,
+    libm::sqrtf,
+    libm::fabsf,
+    libm::powf
+);
+impl_real!(
+    f64,
+    libm::exp,
+    libm::log,
+    libm::log1p,
+    libm::tanh,
+    libm::sqrt,
+    libm::fabs,
+    libm::pow
+);
