@@ -87,3 +87,78 @@ impl Diagnostic {
         self.severity == Severity::Error
     }
 }
+
+/// Renders diagnostics the way a compiler prints them: `file:line:col`, the source line, the
+/// span underlined with its label, secondary labels, and a `help:` line. `color` adds ANSI
+/// colours (use it only on a terminal).
+///
+/// Spans are byte ranges (as pest reports them), so positions stay exact on non-ASCII text;
+/// a span that falls outside `src` or inside a character is moved to the nearest valid place
+/// rather than causing a panic.
+///
+/// # Examples
+/// ```
+/// use sinew::diag::{render, Diagnostic};
+/// use sinew::span::Span;
+/// let src = "model demo\nlayer h 4 sigmod\n";
+/// let d = Diagnostic::error("S0102", "unknown activation `sigmod`", Span::new(21, 27))
+///     .label("not an activation")
+///     .with_help("did you mean `sigmoid`?");
+/// let text = render("demo.sinew", src, &[d], false);
+/// assert!(text.contains("demo.sinew:2:11"));
+/// assert!(text.contains("help: did you mean `sigmoid`?"));
+/// ```
+pub fn render(file_name: &str, src: &str, diags: &[Diagnostic], color: bool) -> String {
+    use codespan_reporting::diagnostic as cs;
+    use codespan_reporting::files::SimpleFile;
+    use codespan_reporting::term::{self, termcolor};
+
+    let file = SimpleFile::new(file_name, src);
+    let config = term::Config::default();
+    let fix = |span: Span| -> core::ops::Range<usize> {
+        let floor = |mut i: usize| {
+            i = i.min(src.len());
+            while !src.is_char_boundary(i) {
+                i -= 1;
+            }
+            i
+        };
+        let start = floor(span.start);
+        start..floor(span.end).max(start)
+    };
+    let mut out: Vec<u8> = Vec::new();
+    for d in diags {
+        let severity = match d.severity {
+            Severity::Error => cs::Severity::Error,
+            Severity::Warning => cs::Severity::Warning,
+        };
+        let mut labels =
+            vec![cs::Label::primary((), fix(d.primary.span)).with_message(d.primary.message.clone())];
+        labels.extend(
+            d.secondary
+                .iter()
+                .map(|l| cs::Label::secondary((), fix(l.span)).with_message(l.message.clone())),
+        );
+        let notes = d.help.iter().map(|h| format!("help: {h}")).collect();
+        let diagnostic = cs::Diagnostic::new(severity)
+            .with_code(d.code)
+            .with_message(d.message.clone())
+            .with_labels(labels)
+            .with_notes(notes);
+        let result = if color {
+            let mut w = termcolor::Ansi::new(&mut out);
+            term::emit(&mut w, &config, &file, &diagnostic)
+        } else {
+            let mut w = termcolor::NoColor::new(&mut out);
+            term::emit(&mut w, &config, &file, &diagnostic)
+        };
+        if result.is_err() {
+            // The renderer refused a location; fall back to a plain line so nothing is lost.
+            let at = fix(d.primary.span).start;
+            let kind = if d.is_error() { "error" } else { "warning" };
+            let line = format!("{kind}[{}]: {} ({file_name}, byte {at})\n", d.code, d.message);
+            out.extend_from_slice(line.as_bytes());
+        }
+    }
+    String::from_utf8_lossy(&out).into_owned()
+}

@@ -11,6 +11,7 @@
 
 #![deny(missing_docs)]
 
+pub mod data;
 pub mod diag;
 pub mod engine;
 pub mod fsutil;
@@ -18,6 +19,13 @@ pub mod ir;
 pub mod report;
 pub mod span;
 pub mod summary;
+pub mod weights;
+pub mod workflow;
+#[cfg(feature = "cli")]
+pub mod plot;
 pub mod syntax;
 pub mod check;
 pub use check::{check_source, Checked};
+pub mod emit;
+pub mod builder;
+pub use builder::Builder;

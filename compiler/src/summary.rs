@@ -159,3 +159,96 @@ fn budget_text(used: u64, limit: Option<u64>) -> String {
         None => human_bytes(used),
     }
 }
+
+/// The end-of-training summary: method, epochs, time, costs and the headline metric.
+pub fn training(model: &Model, o: &crate::workflow::TrainOutcome) -> String {
+    let mut s = String::new();
+    let h = &o.summary.history;
+    let _ = writeln!(
+        s,
+        "trained {} with {}: {} epoch{} in {:.2} s{}",
+        model.name,
+        o.summary.method,
+        h.len(),
+        if h.len() == 1 { "" } else { "s" },
+        o.elapsed.as_secs_f64(),
+        if o.summary.stopped_early {
+            format!(" (stopped early; kept epoch {})", o.summary.best_epoch)
+        } else {
+            String::new()
+        }
+    );
+    let line = |s: &mut String, name: &str, e: &crate::engine::eval::Evaluation| {
+        let _ = write!(s, "  {name:<10} {:>6} samples  cost {:.6}", e.samples, e.cost);
+        if let Some(a) = e.accuracy {
+            let _ = write!(s, "  accuracy {:.2}%", a * 100.0);
+        }
+        if let Some(r) = &e.rmse {
+            let _ = write!(s, "  rmse {}", join(r));
+        }
+        let _ = writeln!(s);
+    };
+    line(&mut s, "training", &o.train);
+    if let Some(v) = &o.validation {
+        line(&mut s, "validation", v);
+    }
+    s
+}
+
+fn join(v: &[f64]) -> String {
+    v.iter().map(|x| format!("{x:.4}")).collect::<Vec<_>>().join(", ")
+}
+
+/// The `sinew eval` report: cost, then accuracy and a confusion matrix for classifiers, or the
+/// mean absolute and root-mean-square error per output for regressors.
+pub fn evaluation(model: &Model, e: &crate::engine::eval::Evaluation) -> String {
+    let mut s = String::new();
+    let _ = writeln!(s, "{}: {} samples, cost {:.6}", model.name, e.samples, e.cost);
+    if let (Some(acc), Some(conf), Some(classes)) = (e.accuracy, &e.confusion, &e.classes) {
+        let _ = writeln!(s, "accuracy {:.2}%", acc * 100.0);
+        let w = classes.iter().map(|c| c.len()).max().unwrap_or(1).max(6);
+        let _ = writeln!(s, "confusion (rows: true class, columns: predicted)");
+        let _ = write!(s, "  {:<w$}", "");
+        for c in classes {
+            let _ = write!(s, " {c:>w$}");
+        }
+        let _ = writeln!(s);
+        for (c, row) in classes.iter().zip(conf) {
+            let _ = write!(s, "  {c:<w$}");
+            for n in row {
+                let _ = write!(s, " {n:>w$}");
+            }
+            let _ = writeln!(s);
+        }
+    }
+    if let (Some(mae), Some(rmse)) = (&e.mae, &e.rmse) {
+        let out = model.output();
+        for (j, (a, r)) in mae.iter().zip(rmse).enumerate() {
+            let _ = writeln!(s, "  {}[{j}]: mean absolute error {a:.6}, rms error {r:.6}", out.name);
+        }
+    }
+    s
+}
+
+/// The `sinew gradcheck` report and whether every layer passed.
+pub fn gradcheck(model: &Model, checks: &[crate::engine::gradcheck::LayerCheck], threshold: f64) -> (String, bool) {
+    let mut s = String::new();
+    let mut ok = true;
+    let _ = writeln!(s, "{}: backprop against central differences (f64)", model.name);
+    for c in checks {
+        let pass = c.worst_relative_error <= threshold;
+        ok &= pass;
+        let _ = writeln!(
+            s,
+            "  {:<16} {:>6}/{:<6} worst relative error {:.3e} at {}  {}",
+            c.layer,
+            c.checked,
+            c.total,
+            c.worst_relative_error,
+            c.worst_at,
+            if pass { "ok" } else { "FAIL" }
+        );
+    }
+    let _ = writeln!(s, "{} (threshold {threshold:.0e})", if ok { "passed" } else { "failed" });
+    (s, ok)
+}

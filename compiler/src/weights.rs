@@ -75,13 +75,12 @@
 //! | `F11` | the scalar type differs from the spec |
 //! | `F12` | standardization statistics are missing, unexpected, of the wrong length, or invalid |
 
+use crate::fsutil;
 use crate::ir::{fnv1a64, Model, Scalar};
 use serde::Deserialize;
 use std::fmt;
-use std::fs::{self, File, OpenOptions};
-use std::io::{self, Write};
+use std::fs;
 use std::path::Path;
-use std::sync::atomic::{AtomicU64, Ordering};
 
 /// The `format` tag of every weights file.
 pub const FORMAT: &str = "sinew-weights";
@@ -188,7 +187,13 @@ pub struct WeightsError {
 
 impl WeightsError {
     fn new(code: &'static str, file: &str, message: impl Into<String>) -> Self {
-        WeightsError { code, file: file.to_string(), location: None, message: message.into(), help: None }
+        WeightsError {
+            code,
+            file: file.to_string(),
+            location: None,
+            message: message.into(),
+            help: None,
+        }
     }
 
     fn help(mut self, help: impl Into<String>) -> Self {
@@ -257,8 +262,15 @@ impl Weights {
                     Some(l) => (l.name.clone(), l.fan_in),
                     None => (format!("layer{}", i + 1), w.len()),
                 };
-                let weights = round(w).chunks(fan_in.max(1)).map(<[f64]>::to_vec).collect();
-                LayerWeights { name, weights, bias: round(b) }
+                let weights = round(w)
+                    .chunks(fan_in.max(1))
+                    .map(<[f64]>::to_vec)
+                    .collect();
+                LayerWeights {
+                    name,
+                    weights,
+                    bias: round(b),
+                }
             })
             .collect();
         Weights {
@@ -266,15 +278,20 @@ impl Weights {
             fingerprint: model.fingerprint(),
             scalar: model.scalar,
             layers,
-            standardization: standardization
-                .map(|(mean, std)| Standardization { mean: round(mean), std: round(std) }),
+            standardization: standardization.map(|(mean, std)| Standardization {
+                mean: round(mean),
+                std: round(std),
+            }),
             provenance,
         }
     }
 
     /// Per-layer `(W row-major, b)`, the layout [`Weights::from_params`] takes.
     pub fn layers_flat(&self) -> Vec<(Vec<f64>, Vec<f64>)> {
-        self.layers.iter().map(|l| (l.weights.concat(), l.bias.clone())).collect()
+        self.layers
+            .iter()
+            .map(|l| (l.weights.concat(), l.bias.clone()))
+            .collect()
     }
 
     /// The pretty JSON form described in the [module documentation](self): one line per weight
@@ -288,7 +305,10 @@ impl Weights {
         s.push_str(&format!("  \"format\": {},\n", json_str(FORMAT)));
         s.push_str(&format!("  \"version\": {VERSION},\n"));
         s.push_str(&format!("  \"model\": {},\n", json_str(&self.model)));
-        s.push_str(&format!("  \"fingerprint\": \"{:016x}\",\n", self.fingerprint));
+        s.push_str(&format!(
+            "  \"fingerprint\": \"{:016x}\",\n",
+            self.fingerprint
+        ));
         s.push_str(&format!("  \"scalar\": \"{}\",\n", self.scalar.rust_name()));
         if self.layers.is_empty() {
             s.push_str("  \"layers\": [],\n");
@@ -328,10 +348,18 @@ impl Weights {
                 s.push_str("  \"provenance\": {\n");
                 s.push_str(&format!("    \"optimizer\": {},\n", json_str(&p.optimizer)));
                 s.push_str(&format!("    \"epochs\": {},\n", p.epochs));
-                s.push_str(&format!("    \"train_cost\": {},\n", json_number(p.train_cost)));
-                let v = p.validation_cost.map_or_else(|| "null".to_string(), json_number);
+                s.push_str(&format!(
+                    "    \"train_cost\": {},\n",
+                    json_number(p.train_cost)
+                ));
+                let v = p
+                    .validation_cost
+                    .map_or_else(|| "null".to_string(), json_number);
                 s.push_str(&format!("    \"validation_cost\": {v},\n"));
-                s.push_str(&format!("    \"data_file_hash\": {},\n", json_str(&p.data_file_hash)));
+                s.push_str(&format!(
+                    "    \"data_file_hash\": {},\n",
+                    json_str(&p.data_file_hash)
+                ));
                 s.push_str(&format!("    \"data_file\": {}\n", json_str(&p.data_file)));
                 s.push_str("  }\n");
             }
@@ -365,20 +393,24 @@ impl Weights {
                     name,
                     "not a sinew weights file: it has no `format` field",
                 )
-                .help(format!("a weights file starts with `\"format\": \"{FORMAT}\"`")))
+                .help(format!(
+                    "a weights file starts with `\"format\": \"{FORMAT}\"`"
+                )))
             }
         }
         match head.version {
             Some(serde_json::Value::Number(n)) if n.as_u64() == Some(VERSION) => {}
             Some(other) => {
+                let message =
+                    format!("unsupported version {other}, this sinew reads version {VERSION}");
+                return Err(WeightsError::new("F05", name, message));
+            }
+            None => {
                 return Err(WeightsError::new(
                     "F05",
                     name,
-                    format!("unsupported weights file version {other}, this sinew reads version {VERSION}"),
+                    "the weights file has no `version` field",
                 ))
-            }
-            None => {
-                return Err(WeightsError::new("F05", name, "the weights file has no `version` field"))
             }
         }
         let file: FileForm = serde_json::from_str(text).map_err(|e| json_error(name, &e))?;
@@ -400,9 +432,16 @@ impl Weights {
             layers: file
                 .layers
                 .into_iter()
-                .map(|l| LayerWeights { name: l.name, weights: l.weights, bias: l.bias })
+                .map(|l| LayerWeights {
+                    name: l.name,
+                    weights: l.weights,
+                    bias: l.bias,
+                })
                 .collect(),
-            standardization: file.standardization.map(|s| Standardization { mean: s.mean, std: s.std }),
+            standardization: file.standardization.map(|s| Standardization {
+                mean: s.mean,
+                std: s.std,
+            }),
             provenance: file.provenance.map(|p| Provenance {
                 optimizer: p.optimizer,
                 epochs: p.epochs,
@@ -422,13 +461,17 @@ impl Weights {
     /// Reads a weights file ([`Weights::from_json`] on its text).
     pub fn load(path: &Path) -> Result<Weights, WeightsError> {
         let name = path.display().to_string();
-        let bytes = fs::read(path)
-            .map_err(|e| WeightsError::new("F01", &name, format!("cannot read the weights file: {e}")))?;
+        let bytes = fs::read(path).map_err(|e| {
+            WeightsError::new("F01", &name, format!("cannot read the weights file: {e}"))
+        })?;
         let text = String::from_utf8(bytes).map_err(|e| {
             WeightsError::new(
                 "F02",
                 &name,
-                format!("not valid JSON: the file is not UTF-8 text (invalid byte at offset {})", e.utf8_error().valid_up_to()),
+                format!(
+                    "not valid JSON: the file is not UTF-8 text (invalid byte at offset {})",
+                    e.utf8_error().valid_up_to()
+                ),
             )
         })?;
         Weights::from_json(&name, &text)
@@ -437,20 +480,24 @@ impl Weights {
     /// [`Weights::load`], then [`Weights::check_against`] `model`, with errors naming the file.
     pub fn load_checked(path: &Path, model: &Model) -> Result<Weights, WeightsError> {
         let w = Weights::load(path)?;
-        w.check_against(model).map_err(|e| WeightsError { file: path.display().to_string(), ..e })?;
+        w.check_against(model).map_err(|e| WeightsError {
+            file: path.display().to_string(),
+            ..e
+        })?;
         Ok(w)
     }
 
-    /// Writes [`Weights::to_json`] to `path` atomically: the text goes to a temporary file in
-    /// the same directory, which is flushed to disk and then renamed over `path`. On any failure
-    /// the temporary file is removed and an existing file at `path` is left as it was.
+    /// Writes [`Weights::to_json`] to `path` atomically ([`fsutil::write_atomic`]): the text goes
+    /// to a temporary file in the same directory, which is flushed to disk and then renamed over
+    /// `path`. On any failure the temporary file is removed and an existing file at `path` is
+    /// left as it was.
     ///
     /// Refuses (`F06`) non-finite values and standard deviations that are not > 0 before writing
     /// anything.
     pub fn save(&self, path: &Path) -> Result<(), WeightsError> {
         let name = path.display().to_string();
         self.check_values(&name)?;
-        write_atomic(path, |f| f.write_all(self.to_json().as_bytes())).map_err(|e| {
+        fsutil::write_atomic(path, self.to_json().as_bytes()).map_err(|e| {
             WeightsError::new("F01", &name, format!("cannot write the weights file: {e}"))
         })
     }
@@ -593,7 +640,10 @@ impl Weights {
         self.for_each_value(|place, v| {
             let r = *v as f32;
             if v.is_finite() && !r.is_finite() && bad.is_none() {
-                bad = Some(format!("{place} = {v} is outside the f32 range of an f32 file"));
+                bad = Some(format!(
+                    "{place} = {} is outside the f32 range of an f32 file",
+                    json_number(*v)
+                ));
             }
             *v = f64::from(r);
         });
@@ -605,7 +655,7 @@ impl Weights {
 
     /// Refuses non-finite values and standard deviations that are not > 0.
     fn check_values(&self, name: &str) -> Result<(), WeightsError> {
-        let mut finite = |place: String, v: f64| -> Result<(), WeightsError> {
+        let finite = |place: String, v: f64| -> Result<(), WeightsError> {
             if v.is_finite() {
                 Ok(())
             } else {
@@ -616,7 +666,10 @@ impl Weights {
         for l in &self.layers {
             for (j, row) in l.weights.iter().enumerate() {
                 for (k, &v) in row.iter().enumerate() {
-                    finite(format!("layer `{}` weight row {} column {}", l.name, j + 1, k + 1), v)?;
+                    finite(
+                        format!("layer `{}` weight row {} column {}", l.name, j + 1, k + 1),
+                        v,
+                    )?;
                 }
             }
             for (j, &v) in l.bias.iter().enumerate() {
@@ -633,7 +686,11 @@ impl Weights {
                     return Err(WeightsError::new(
                         "F12",
                         name,
-                        format!("standardization std {} is {v}, it must be > 0", j + 1),
+                        format!(
+                            "standardization std {} is {}, it must be > 0",
+                            j + 1,
+                            json_number(v)
+                        ),
                     ));
                 }
             }
@@ -652,7 +709,10 @@ impl Weights {
         for l in &mut self.layers {
             for (j, row) in l.weights.iter_mut().enumerate() {
                 for (k, v) in row.iter_mut().enumerate() {
-                    f(&format_args!("layer `{}` weight row {} column {}", l.name, j + 1, k + 1), v);
+                    f(
+                        &format_args!("layer `{}` weight row {} column {}", l.name, j + 1, k + 1),
+                        v,
+                    );
                 }
             }
             for (j, v) in l.bias.iter_mut().enumerate() {
@@ -672,13 +732,14 @@ impl Weights {
 
 /// The fields read in the first pass of [`Weights::from_json`]; everything else is skipped.
 #[derive(Deserialize)]
+#[serde(expecting = "a JSON object")]
 struct Head {
     format: Option<serde_json::Value>,
     version: Option<serde_json::Value>,
 }
 
 #[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
+#[serde(deny_unknown_fields, expecting = "a weights object")]
 struct FileForm {
     #[allow(dead_code)]
     format: String,
@@ -700,7 +761,7 @@ enum ScalarForm {
 }
 
 #[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
+#[serde(deny_unknown_fields, expecting = "a layer object with `name`, `weights` and `bias`")]
 struct LayerForm {
     name: String,
     weights: Vec<Vec<f64>>,
@@ -708,14 +769,14 @@ struct LayerForm {
 }
 
 #[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
+#[serde(deny_unknown_fields, expecting = "null or an object with `mean` and `std`")]
 struct StandardizationForm {
     mean: Vec<f64>,
     std: Vec<f64>,
 }
 
 #[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
+#[serde(deny_unknown_fields, expecting = "null or a provenance object")]
 struct ProvenanceForm {
     optimizer: String,
     epochs: u64,
@@ -743,21 +804,36 @@ fn json_error(name: &str, e: &serde_json::Error) -> WeightsError {
         serde_json::error::Category::Eof => (
             "F03",
             format!("the file ends early ({what}): it is truncated"),
-            Some("the file was cut short, perhaps by an interrupted copy; write it again".to_string()),
+            Some(
+                "the file was cut short, perhaps by an interrupted copy; write it again"
+                    .to_string(),
+            ),
+        ),
+        serde_json::error::Category::Syntax if what == "number out of range" => (
+            "F06",
+            "a number is too large for an f64 (it would be infinite)".to_string(),
+            None,
         ),
         serde_json::error::Category::Syntax => ("F02", format!("not valid JSON: {what}"), None),
-        serde_json::error::Category::Io => ("F01", format!("cannot read the weights file: {what}"), None),
+        serde_json::error::Category::Io => {
+            ("F01", format!("cannot read the weights file: {what}"), None)
+        }
         serde_json::error::Category::Data => {
             let help = what.starts_with("invalid type: null").then(|| {
                 "JSON has no NaN or infinity: a `null` where a number belongs stands for a non-finite value".to_string()
             });
-            ("F04", format!("not a weights file of version {VERSION}: {what}"), help)
+            (
+                "F04",
+                format!("not a weights file of version {VERSION}: {what}"),
+                help,
+            )
         }
     };
     WeightsError {
         code,
         file: name.to_string(),
-        location: (e.line() > 0).then(|| (e.line(), e.column())),
+        // serde_json counts columns from 1, but reports 0 at the very start of a line.
+        location: (e.line() > 0).then(|| (e.line(), e.column().max(1))),
         message,
         help,
     }
@@ -777,92 +853,4 @@ fn json_number(v: f64) -> String {
 fn json_numbers(v: &[f64]) -> String {
     let items: Vec<String> = v.iter().map(|&x| json_number(x)).collect();
     format!("[{}]", items.join(", "))
-}
-
-/// Writes a file atomically: `fill` writes a new temporary file next to `path`, which is synced
-/// and renamed over `path`. On failure the temporary file is removed.
-fn write_atomic(path: &Path, fill: impl FnOnce(&mut File) -> io::Result<()>) -> io::Result<()> {
-    static COUNTER: AtomicU64 = AtomicU64::new(0);
-    let file_name = path.file_name().ok_or_else(|| {
-        io::Error::new(io::ErrorKind::InvalidInput, "the path does not name a file")
-    })?;
-    let dir = match path.parent() {
-        Some(p) if !p.as_os_str().is_empty() => p,
-        _ => Path::new("."),
-    };
-    let tmp = dir.join(format!(
-        ".{}.{}-{}.tmp",
-        file_name.to_string_lossy(),
-        std::process::id(),
-        COUNTER.fetch_add(1, Ordering::Relaxed)
-    ));
-    let mut file = OpenOptions::new().write(true).create_new(true).open(&tmp)?;
-    let written = fill(&mut file).and_then(|()| file.sync_all());
-    drop(file);
-    let result = written.and_then(|()| fs::rename(&tmp, path));
-    match result {
-        Ok(()) => {
-            // Make the rename itself durable where the platform allows syncing a directory;
-            // the file is complete either way.
-            if let Ok(d) = File::open(dir) {
-                let _ = d.sync_all();
-            }
-            Ok(())
-        }
-        Err(e) => {
-            let _ = fs::remove_file(&tmp);
-            Err(e)
-        }
-    }
-}
-
-#[cfg(test)]
-mod tests {
-    use super::write_atomic;
-    use std::fs;
-    use std::io::{self, Write};
-    use std::path::PathBuf;
-
-    fn scratch(name: &str) -> PathBuf {
-        let dir = std::env::temp_dir().join(format!("sinew-weights-unit-{}-{name}", std::process::id()));
-        let _ = fs::remove_dir_all(&dir);
-        fs::create_dir_all(&dir).unwrap();
-        dir
-    }
-
-    fn entries(dir: &std::path::Path) -> Vec<String> {
-        let mut v: Vec<String> = fs::read_dir(dir)
-            .unwrap()
-            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-            .collect();
-        v.sort();
-        v
-    }
-
-    #[test]
-    fn a_write_failing_halfway_leaves_the_old_file_and_no_temporary() {
-        let dir = scratch("halfway");
-        let target = dir.join("w.json");
-        fs::write(&target, "old contents").unwrap();
-        let err = write_atomic(&target, |f| {
-            f.write_all(b"{\"format\": \"sinew-we")?;
-            Err(io::Error::other("disk full (simulated)"))
-        })
-        .unwrap_err();
-        assert_eq!(err.to_string(), "disk full (simulated)");
-        assert_eq!(fs::read_to_string(&target).unwrap(), "old contents");
-        assert_eq!(entries(&dir), ["w.json"]);
-        fs::remove_dir_all(&dir).unwrap();
-    }
-
-    #[test]
-    fn a_successful_write_replaces_the_whole_file() {
-        let dir = scratch("replace");
-        let target = dir.join("w.json");
-        fs::write(&target, "a much longer old content than the new one").unwrap();
-        write_atomic(&target, |f| f.write_all(b"new")).unwrap();
-        assert_eq!(fs::read_to_string(&target).unwrap(), "new");
-        assert_eq!(entries(&dir), ["w.json"]);
-        fs::remove_dir_all(&dir).unwrap();
-    }
 }

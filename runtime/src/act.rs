@@ -414,7 +414,14 @@ mod tests {
 
     #[test]
     fn sigmoid_is_stable_for_large_inputs() {
-        let mut v = [1000.0_f64, -1000.0, 40.0, -40.0, f64::INFINITY, f64::NEG_INFINITY];
+        let mut v = [
+            1000.0_f64,
+            -1000.0,
+            40.0,
+            -40.0,
+            f64::INFINITY,
+            f64::NEG_INFINITY,
+        ];
         sigmoid(&mut v);
         assert!(v.iter().all(|x| !x.is_nan()));
         assert_eq!([v[0], v[1], v[4], v[5]], [1.0, 0.0, 1.0, 0.0]);

@@ -248,7 +248,9 @@ mod tests {
 
     /// Test data in [-1, 1) from the crate's generator (itself checked against reference outputs).
     fn data<T: Real>(len: usize, rng: &mut SplitMix64) -> Vec<T> {
-        (0..len).map(|_| T::from_f64(rng.uniform(-1.0, 1.0))).collect()
+        (0..len)
+            .map(|_| T::from_f64(rng.uniform(-1.0, 1.0)))
+            .collect()
     }
 
     fn bits<T: Real>(v: &[T]) -> Vec<u64> {
@@ -300,7 +302,11 @@ mod tests {
 
             let mut z = vec![T::ZERO; o];
             affine(&w, &b, &x, &mut z);
-            assert_eq!(bits(&z), bits(&naive_affine(&w, &b, &x, n, o)), "affine {n}x{o}");
+            assert_eq!(
+                bits(&z),
+                bits(&naive_affine(&w, &b, &x, n, o)),
+                "affine {n}x{o}"
+            );
 
             let mut out = vec![T::ONE; n];
             back(&w, &d, &mut out);
@@ -308,7 +314,11 @@ mod tests {
 
             let mut g = g0.clone();
             outer_acc(&mut g, &d, &x);
-            assert_eq!(bits(&g), bits(&naive_outer(&g0, &d, &x, n, o)), "outer {n}x{o}");
+            assert_eq!(
+                bits(&g),
+                bits(&naive_outer(&g0, &d, &x, n, o)),
+                "outer {n}x{o}"
+            );
 
             let mut gb = b.clone();
             add_acc(&mut gb, &d);
@@ -354,7 +364,8 @@ mod tests {
         let mut rng = SplitMix64::new(3);
         let x: [f64; N] = core::array::from_fn(|_| rng.uniform(-5.0, 5.0));
         let b: [f64; N] = core::array::from_fn(|_| rng.uniform(-5.0, 5.0));
-        let eye: [[f64; N]; N] = core::array::from_fn(|j| core::array::from_fn(|i| f64::from(u8::from(i == j))));
+        let eye: [[f64; N]; N] =
+            core::array::from_fn(|j| core::array::from_fn(|i| f64::from(u8::from(i == j))));
         let zero = [[0.0_f64; N]; N];
 
         // I x + 0 = x, I^T d = d, exactly.
@@ -389,7 +400,8 @@ mod tests {
 
     fn array_equals_slice<const I: usize, const O: usize>(seed: u64) {
         let mut rng = SplitMix64::new(seed);
-        let mut w: Box<[[f32; I]; O]> = vec![[0.0_f32; I]; O].into_boxed_slice().try_into().unwrap();
+        let mut w: Box<[[f32; I]; O]> =
+            vec![[0.0_f32; I]; O].into_boxed_slice().try_into().unwrap();
         for v in w.as_flattened_mut() {
             *v = rng.uniform(-1.0, 1.0) as f32;
         }

@@ -143,3 +143,149 @@ pub fn output_error<T: Real>(a: &[T], y: &[T], d: &mut [T]) {
         *dj = *aj - *yj;
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::rng::SplitMix64;
+    use std::vec::Vec;
+
+    #[test]
+    fn log_sum_exp_does_not_overflow() {
+        // ln(e^1000 + e^1000) = 1000 + ln 2 (algebra; e^1000 itself overflows f64).
+        assert_eq!(
+            log_sum_exp(&[1000.0_f64, 1000.0]),
+            1000.0 + core::f64::consts::LN_2
+        );
+        assert_eq!(
+            log_sum_exp(&[1000.0_f32, 1000.0]),
+            1000.0 + core::f32::consts::LN_2
+        );
+        assert_eq!(
+            log_sum_exp(&[-1000.0_f64, -1000.0]),
+            -1000.0 + core::f64::consts::LN_2
+        );
+        assert_eq!(log_sum_exp::<f64>(&[]), 0.0);
+        assert_eq!(log_sum_exp(&[f64::NEG_INFINITY; 2]), f64::NEG_INFINITY);
+        assert_eq!(log_sum_exp(&[1.0, f64::INFINITY]), f64::INFINITY);
+        // Normal range: equal to the naive ln(sum e^z) with std's functions.
+        let z = [0.5_f64, -1.25, 2.0, 0.0];
+        let naive = z.iter().map(|v| v.exp()).sum::<f64>().ln();
+        assert!((log_sum_exp(&z) - naive).abs() < 1e-14);
+    }
+
+    #[test]
+    fn softplus_is_stable() {
+        assert_eq!(softplus(1000.0_f64), 1000.0);
+        assert_eq!(softplus(1000.0_f32), 1000.0);
+        let s = softplus(-1000.0_f64);
+        assert!(s.is_finite() && (0.0..1e-300).contains(&s));
+        let s = softplus(-1000.0_f32);
+        assert!(s.is_finite() && (0.0..1e-30).contains(&s));
+        // Normal range: equal to the naive ln(1 + e^z).
+        for k in -30..=30 {
+            let z = f64::from(k) * 0.5;
+            let naive = (1.0 + z.exp()).ln();
+            assert!(
+                (softplus(z) - naive).abs() <= 1e-15 * naive.max(1.0),
+                "softplus({z})"
+            );
+        }
+    }
+
+    #[test]
+    fn logistic_cross_entropy_from_logits() {
+        // Saturated logits stay finite: the naive form would take ln(0).
+        let z = [1000.0_f64, -1000.0, 1000.0, -1000.0];
+        let y = [1.0, 0.0, 0.0, 1.0];
+        let l = logistic_cross_entropy(&z, &y);
+        assert!(l.is_finite());
+        assert_eq!(l, 2000.0);
+        let zf = [100.0_f32, -100.0];
+        assert!(logistic_cross_entropy(&zf, &[0.0, 1.0]).is_finite());
+        // Normal range: the naive -(y ln a + (1 - y) ln(1 - a)), a = 1/(1 + e^-z) (handbook
+        // definition of binary cross-entropy).
+        let mut rng = SplitMix64::new(5);
+        for _ in 0..200 {
+            let z = rng.uniform(-10.0, 10.0);
+            let y = rng.next_f64();
+            let a = 1.0 / (1.0 + (-z).exp());
+            let naive = -(y * a.ln() + (1.0 - y) * (1.0 - a).ln());
+            let got = logistic_cross_entropy(&[z], &[y]);
+            assert!((got - naive).abs() < 1e-9 * naive.max(1.0), "z {z} y {y}");
+        }
+    }
+
+    #[test]
+    fn softmax_cross_entropy_from_logits() {
+        // Saturated: the true class has logit -1000 while another has 1000; lse = 1000, loss 2000.
+        let z = [1000.0_f64, -1000.0, 0.0];
+        let l = softmax_cross_entropy(&z, &[0.0, 1.0, 0.0]);
+        assert!(l.is_finite());
+        assert_eq!(l, 2000.0);
+        assert_eq!(softmax_cross_entropy(&z, &[1.0, 0.0, 0.0]), 0.0);
+        // Normal range: the naive -sum y ln softmax(z).
+        let mut rng = SplitMix64::new(6);
+        for n in 1..=6 {
+            let z: Vec<f64> = (0..n).map(|_| rng.uniform(-5.0, 5.0)).collect();
+            let mut y: Vec<f64> = (0..n).map(|_| rng.next_f64()).collect();
+            let total: f64 = y.iter().sum();
+            y.iter_mut().for_each(|v| *v /= total);
+            let s: f64 = z.iter().map(|v| v.exp()).sum();
+            let naive: f64 = -z
+                .iter()
+                .zip(&y)
+                .map(|(z, y)| y * (z.exp() / s).ln())
+                .sum::<f64>();
+            let got = softmax_cross_entropy(&z, &y);
+            assert!(
+                (got - naive).abs() < 1e-12 * naive.max(1.0),
+                "{got} vs {naive}"
+            );
+        }
+    }
+
+    #[test]
+    fn squared_error_of_the_worked_backprop_example() {
+        // M. Mazur, "A Step by Step Backpropagation Example" (2015): outputs 0.75136507 and
+        // 0.772928465 against targets 0.01 and 0.99 give E_total = 0.298371109 (values from
+        // memory).
+        let e = squared_error(&[0.75136507_f64, 0.772928465], &[0.01, 0.99]);
+        assert!((e - 0.298371109).abs() < 5e-10, "{e}");
+        // By hand: 1/2 ((3 - 1)^2 + (0 - 2)^2) = 4.
+        assert_eq!(squared_error(&[3.0_f64, 0.0], &[1.0, 2.0]), 4.0);
+    }
+
+    #[test]
+    fn output_error_is_the_gradient_of_the_losses() {
+        // d loss / d z_j = a_j - y_j for cross-entropy with sigmoid or softmax (common practice);
+        // checked by central differences of the losses above.
+        let z = [0.3_f64, -1.2, 2.1];
+        let y = [0.0, 1.0, 0.0];
+        let h = 1e-6;
+        let mut sig = z;
+        crate::act::sigmoid(&mut sig);
+        let mut soft = z;
+        crate::act::softmax(&mut soft);
+        let (mut ds, mut dm) = ([0.0; 3], [0.0; 3]);
+        output_error(&sig, &y, &mut ds);
+        output_error(&soft, &y, &mut dm);
+        for j in 0..3 {
+            let (mut zp, mut zm) = (z, z);
+            zp[j] += h;
+            zm[j] -= h;
+            let fd_sig =
+                (logistic_cross_entropy(&zp, &y) - logistic_cross_entropy(&zm, &y)) / (2.0 * h);
+            let fd_soft =
+                (softmax_cross_entropy(&zp, &y) - softmax_cross_entropy(&zm, &y)) / (2.0 * h);
+            assert!((ds[j] - fd_sig).abs() < 1e-8);
+            assert!((dm[j] - fd_soft).abs() < 1e-8);
+            // Squared error: d/da_j = a_j - y_j.
+            let (mut ap, mut am) = (sig, sig);
+            ap[j] += h;
+            am[j] -= h;
+            let fd_sq = (squared_error(&ap, &y) - squared_error(&am, &y)) / (2.0 * h);
+            assert!((ds[j] - fd_sq).abs() < 1e-8);
+        }
+    }
+}

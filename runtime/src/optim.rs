@@ -84,3 +84,130 @@ pub fn adam<T: Real>(
         *pk -= rate * mhat / (vhat.sqrt() + eps);
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn sgd_by_hand() {
+        // p - rate g: 1 - 0.1 * 0.5 = 0.95, -2 - 0.1 * (-3) = -1.7.
+        let mut p = [1.0_f64, -2.0];
+        sgd(&mut p, &[0.5, -3.0], 0.1);
+        assert!((p[0] - 0.95).abs() < 1e-15 && (p[1] + 1.7).abs() < 1e-15);
+    }
+
+    #[test]
+    fn momentum_by_hand() {
+        // Classical momentum (Polyak 1964, in the form v = mu v - rate g, p = p + v of Sutskever
+        // et al. 2013, from memory), rate 0.1, mu 0.9, constant gradient 2, p0 = 1, v0 = 0:
+        // v1 = -0.2, p1 = 0.8; v2 = 0.9 (-0.2) - 0.2 = -0.38, p2 = 0.42;
+        // v3 = 0.9 (-0.38) - 0.2 = -0.542, p3 = -0.122.
+        let (mut p, mut v) = ([1.0_f64], [0.0_f64]);
+        let want = [(0.8, -0.2), (0.42, -0.38), (-0.122, -0.542)];
+        for (wp, wv) in want {
+            momentum(&mut p, &[2.0], &mut v, 0.1, 0.9);
+            assert!(
+                (p[0] - wp).abs() < 1e-15 && (v[0] - wv).abs() < 1e-15,
+                "{p:?} {v:?}"
+            );
+        }
+    }
+
+    const RATE: f64 = 0.001;
+    const B1: f64 = 0.9;
+    const B2: f64 = 0.999;
+    const EPS: f64 = 1e-8;
+
+    #[test]
+    fn adam_first_step_moves_by_the_rate() {
+        // Kingma and Ba (2015), Algorithm 1, default hyperparameters (rate 0.001, beta1 0.9,
+        // beta2 0.999, eps 1e-8), m0 = v0 = 0, t = 1:
+        //   m1 = 0.1 g, v1 = 0.001 g^2;
+        //   mhat = m1 / (1 - 0.9) = g, vhat = v1 / (1 - 0.999) = g^2;
+        //   step = rate * g / (|g| + eps) = 0.001 sign(g) / (1 + 1e-8 / |g|).
+        // So every parameter moves by about rate against the sign of its gradient, whatever the
+        // gradient's size (the paper's section 2.1 remark on the effective step size; from memory).
+        let g = [0.5_f64, -2.0, 1e-3, -40.0];
+        let mut p = [1.0_f64, 1.0, 1.0, 1.0];
+        let (mut m, mut v) = ([0.0; 4], [0.0; 4]);
+        adam(&mut p, &g, &mut m, &mut v, 1, RATE, B1, B2, EPS);
+        for ((pk, gk), (mk, vk)) in p.iter().zip(g).zip(m.iter().zip(&v)) {
+            let step = RATE * gk / (gk.abs() + EPS);
+            assert!((pk - (1.0 - step)).abs() < 1e-15, "{pk}");
+            assert!((pk - (1.0 - RATE * gk.signum())).abs() < 1e-8);
+            // 1 - 0.9 and 1 - 0.999 are not exact in binary: relative tolerance.
+            assert!((mk - 0.1 * gk).abs() < 1e-14 * gk.abs());
+            assert!((vk - 0.001 * gk * gk).abs() < 1e-14 * gk * gk);
+        }
+        // g = 0.5: step = 0.001 * 0.5 / 0.50000001 = 0.00099999998 (to 11 digits).
+        assert!((p[0] - (1.0 - 0.00099999998)).abs() < 1e-14);
+    }
+
+    #[test]
+    fn adam_second_step_by_hand() {
+        // Gradient +1 at t = 1, then -1 at t = 2, defaults, p0 = 0:
+        //   t = 1: m1 = 0.1, v1 = 0.001, mhat = 1, vhat = 1, p1 = -0.001 / (1 + 1e-8).
+        //   t = 2: m2 = 0.9 * 0.1 + 0.1 * (-1) = -0.01; v2 = 0.999 * 0.001 + 0.001 = 0.001999;
+        //          1 - 0.9^2 = 0.19, 1 - 0.999^2 = 0.001999;
+        //          mhat = -0.01 / 0.19 = -1/19, vhat = 0.001999 / 0.001999 = 1;
+        //          p2 = p1 + 0.001 / (19 (1 + 1e-8)).
+        //   p2 = -0.001 (1 - 1/19) / (1 + 1e-8) = -0.018 / 19 / (1 + 1e-8) = -0.000947368412...
+        let (mut p, mut m, mut v) = ([0.0_f64], [0.0], [0.0]);
+        adam(&mut p, &[1.0], &mut m, &mut v, 1, RATE, B1, B2, EPS);
+        assert!((p[0] + 0.001 / (1.0 + 1e-8)).abs() < 1e-17);
+        adam(&mut p, &[-1.0], &mut m, &mut v, 2, RATE, B1, B2, EPS);
+        assert!((m[0] + 0.01).abs() < 1e-16 && (v[0] - 0.001999).abs() < 1e-16);
+        let want = -0.018 / 19.0 / (1.0 + 1e-8);
+        assert!((p[0] - want).abs() < 1e-16, "{} vs {want}", p[0]);
+        assert!((p[0] + 0.000947368412).abs() < 1e-12);
+
+        // A constant gradient keeps mhat = g and vhat = g^2 at every step (both corrections
+        // undo the zero start), so each step moves by rate * 3 / (3 + eps).
+        let (mut p, mut m, mut v) = ([0.0_f64], [0.0], [0.0]);
+        for t in 1..=5 {
+            adam(&mut p, &[3.0], &mut m, &mut v, t, RATE, B1, B2, EPS);
+            let want = -f64::from(t) * RATE * 3.0 / (3.0 + EPS);
+            assert!((p[0] - want).abs() < 1e-15, "t {t}: {} vs {want}", p[0]);
+        }
+    }
+
+    #[test]
+    fn adam_in_f32_and_edge_cases() {
+        let (mut p, mut m, mut v) = ([1.0_f32, 1.0], [0.0_f32; 2], [0.0_f32; 2]);
+        adam(
+            &mut p,
+            &[0.25, -0.25],
+            &mut m,
+            &mut v,
+            1,
+            0.001,
+            0.9,
+            0.999,
+            1e-8,
+        );
+        assert!((p[0] - 0.999).abs() < 1e-6 && (p[1] - 1.001).abs() < 1e-6);
+        // t = 0 is treated as t = 1 (no division by zero).
+        let (mut q, mut m0, mut v0) = ([1.0_f32, 1.0], [0.0_f32; 2], [0.0_f32; 2]);
+        adam(
+            &mut q,
+            &[0.25, -0.25],
+            &mut m0,
+            &mut v0,
+            0,
+            0.001,
+            0.9,
+            0.999,
+            1e-8,
+        );
+        assert_eq!(p, q);
+        // A zero gradient leaves the parameter where it is; a huge t is fine.
+        let (mut p, mut m, mut v) = ([2.0_f64], [0.0], [0.0]);
+        adam(&mut p, &[0.0], &mut m, &mut v, u32::MAX, RATE, B1, B2, EPS);
+        assert_eq!(p, [2.0]);
+        // Mismatched lengths: only the zipped prefix is updated.
+        let mut p = [1.0_f64, 1.0, 1.0];
+        sgd(&mut p, &[1.0], 0.5);
+        assert_eq!(p, [0.5, 1.0, 1.0]);
+    }
+}

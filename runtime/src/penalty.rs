@@ -127,3 +127,151 @@ fn sign<T: Real>(w: T) -> T {
         w
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::rng::SplitMix64;
+    use std::vec::Vec;
+
+    /// The penalty term of J as a function of the weights.
+    fn term(pen: &Penalty<f64>, w: &[f64], m: f64) -> f64 {
+        pen.cost(pen.sum(w), m)
+    }
+
+    #[test]
+    fn gradient_is_the_derivative_of_the_cost_term() {
+        // dJ/dw_k by central differences of the cost term (common practice) must equal what
+        // finish_weights adds to a zero accumulated gradient.
+        let mut rng = SplitMix64::new(9);
+        // Keep the weights away from 0, where |w| has its kink.
+        let w: Vec<f64> = (0..12)
+            .map(|_| {
+                let v = rng.uniform(-2.0, 2.0);
+                if v.abs() < 0.1 {
+                    v + 0.5
+                } else {
+                    v
+                }
+            })
+            .collect();
+        for pen in [
+            Penalty::L2(0.01),
+            Penalty::L2(3.0),
+            Penalty::L1(0.05),
+            Penalty::L1(2.0),
+            Penalty::None,
+        ] {
+            for m in [1.0, 7.0, 32.0] {
+                let mut g = [0.0; 12];
+                pen.finish_weights(&mut g, &w, m);
+                for k in 0..w.len() {
+                    let h = 1e-6;
+                    let (mut wp, mut wm) = (w.clone(), w.clone());
+                    wp[k] += h;
+                    wm[k] -= h;
+                    let fd = (term(&pen, &wp, m) - term(&pen, &wm, m)) / (2.0 * h);
+                    assert!(
+                        (g[k] - fd).abs() < 1e-8,
+                        "{pen:?} m {m} k {k}: {} vs {fd}",
+                        g[k]
+                    );
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn cost_terms_by_hand() {
+        // w = (1, -2, 3), m = 4: sum w^2 = 14, L2 term 0.5 * 14 / 8 = 0.875;
+        // sum |w| = 6, L1 term 0.5 * 6 / 4 = 0.75.
+        let w = [1.0_f64, -2.0, 3.0];
+        assert_eq!(Penalty::L2(0.5).sum(&w), 14.0);
+        assert_eq!(Penalty::L2(0.5).cost(14.0, 4.0), 0.875);
+        assert_eq!(Penalty::L1(0.5).sum(&w), 6.0);
+        assert_eq!(Penalty::L1(0.5).cost(6.0, 4.0), 0.75);
+        assert_eq!(Penalty::None.sum(&w), 0.0);
+        assert_eq!(Penalty::<f64>::None.cost(14.0, 4.0), 0.0);
+    }
+
+    #[test]
+    fn finish_divides_the_accumulated_gradient_by_m() {
+        // g = (4, -8, 0), m = 4, w = (1, -2, 0), lambda = 0.5 (lambda / m = 0.125):
+        // L2: (1 + 0.125, -2 - 0.25, 0); L1: (1 + 0.125, -2 - 0.125, 0 + 0) as sign(0) = 0.
+        let w = [1.0_f64, -2.0, 0.0];
+        let mut g = [4.0, -8.0, 0.0];
+        Penalty::L2(0.5).finish_weights(&mut g, &w, 4.0);
+        assert_eq!(g, [1.125, -2.25, 0.0]);
+        let mut g = [4.0, -8.0, 0.0];
+        Penalty::L1(0.5).finish_weights(&mut g, &w, 4.0);
+        assert_eq!(g, [1.125, -2.125, 0.0]);
+        let mut g = [4.0, -8.0, 0.0];
+        Penalty::None.finish_weights(&mut g, &w, 4.0);
+        assert_eq!(g, [1.0, -2.0, 0.0]);
+    }
+
+    #[test]
+    fn bias_finish_divides_only() {
+        let mut rng = SplitMix64::new(10);
+        let g: Vec<f64> = (0..9).map(|_| rng.uniform(-5.0, 5.0)).collect();
+        for m in [1.0, 3.0, 32.0] {
+            let mut b = g.clone();
+            finish_bias(&mut b, m);
+            let want: Vec<u64> = g.iter().map(|v| (v / m).to_bits()).collect();
+            assert_eq!(b.iter().map(|v| v.to_bits()).collect::<Vec<_>>(), want);
+        }
+        let mut b = [3.0_f32, -6.0];
+        finish_bias(&mut b, 3.0);
+        assert_eq!(b, [1.0, -2.0]);
+    }
+
+    #[test]
+    fn finished_batch_gradient_of_a_linear_layer_matches_central_differences() {
+        // J(W, b) = (1/m) sum_s 1/2 |W x_s + b - y_s|^2 + P(W); the accumulated gradient
+        // (outer_acc, add_acc) finished by finish_weights / finish_bias must match central
+        // differences of J (gradient checking; common practice).
+        let mut rng = SplitMix64::new(12);
+        let (n, o, m) = (3, 2, 5);
+        let xs: Vec<f64> = (0..n * m).map(|_| rng.uniform(-1.0, 1.0)).collect();
+        let ys: Vec<f64> = (0..o * m).map(|_| rng.uniform(-1.0, 1.0)).collect();
+        let w: Vec<f64> = (0..n * o).map(|_| rng.uniform(0.2, 1.0)).collect();
+        let b: Vec<f64> = (0..o).map(|_| rng.uniform(-1.0, 1.0)).collect();
+        let cost = |pen: &Penalty<f64>, w: &[f64], b: &[f64]| {
+            let mut total = 0.0;
+            for (x, y) in xs.chunks_exact(n).zip(ys.chunks_exact(o)) {
+                let mut z = [0.0; 2];
+                crate::affine(w, b, x, &mut z);
+                total += crate::loss::squared_error(&z, y);
+            }
+            total / m as f64 + pen.cost(pen.sum(w), m as f64)
+        };
+        for pen in [Penalty::None, Penalty::L2(0.3), Penalty::L1(0.3)] {
+            let (mut gw, mut gb) = (std::vec![0.0; n * o], std::vec![0.0; o]);
+            for (x, y) in xs.chunks_exact(n).zip(ys.chunks_exact(o)) {
+                let mut z = [0.0; 2];
+                crate::affine(&w, &b, x, &mut z);
+                let mut d = [0.0; 2];
+                crate::loss::output_error(&z, y, &mut d);
+                crate::outer_acc(&mut gw, &d, x);
+                crate::add_acc(&mut gb, &d);
+            }
+            pen.finish_weights(&mut gw, &w, m as f64);
+            finish_bias(&mut gb, m as f64);
+            let h = 1e-6;
+            for k in 0..w.len() {
+                let (mut wp, mut wm) = (w.clone(), w.clone());
+                wp[k] += h;
+                wm[k] -= h;
+                let fd = (cost(&pen, &wp, &b) - cost(&pen, &wm, &b)) / (2.0 * h);
+                assert!((gw[k] - fd).abs() < 1e-8, "{pen:?} w{k}: {} vs {fd}", gw[k]);
+            }
+            for k in 0..b.len() {
+                let (mut bp, mut bm) = (b.clone(), b.clone());
+                bp[k] += h;
+                bm[k] -= h;
+                let fd = (cost(&pen, &w, &bp) - cost(&pen, &w, &bm)) / (2.0 * h);
+                assert!((gb[k] - fd).abs() < 1e-8, "{pen:?} b{k}: {} vs {fd}", gb[k]);
+            }
+        }
+    }
+}

@@ -167,3 +167,47 @@ impl_real!(
     libm::fabs,
     libm::pow
 );
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn check<T: Real>(tol: f64) {
+        let close = |a: T, b: f64| (a.to_f64() - b).abs() <= tol * b.abs().max(1.0);
+        // Handbook values: e, ln 2, tanh(1) = 0.7615941559557649, sqrt 2.
+        assert!(close(T::ONE.exp(), core::f64::consts::E));
+        assert!(close(T::TWO.ln(), core::f64::consts::LN_2));
+        assert!(close(T::ONE.ln_1p(), core::f64::consts::LN_2));
+        assert!(close(T::ONE.tanh(), 0.761_594_155_955_764_9));
+        assert!(close(T::TWO.sqrt(), core::f64::consts::SQRT_2));
+        // ln_1p keeps precision near 0 where ln(1 + x) would not: ln(1 + 1e-10) = 1e-10 - 5e-21.
+        assert!(close(T::from_f64(1e-10).ln_1p(), 1e-10));
+        assert_eq!((-T::HALF).abs(), T::HALF);
+        assert_eq!(
+            T::from_f64(0.9).powi(2),
+            T::from_f64(0.9) * T::from_f64(0.9)
+        );
+        assert_eq!(T::TWO.powi(-1), T::HALF);
+        assert_eq!(T::from_usize(1000).to_f64(), 1000.0);
+        assert_eq!(T::HALF + T::HALF, T::ONE);
+        assert_eq!(T::default(), T::ZERO);
+    }
+
+    #[test]
+    fn libm_functions_match_handbook_values() {
+        check::<f64>(1e-15);
+        check::<f32>(1e-7);
+    }
+
+    #[test]
+    fn max_returns_the_larger_and_propagates_nan() {
+        assert_eq!(Real::max(1.0_f64, 2.0), 2.0);
+        assert_eq!(Real::max(2.0_f64, 1.0), 2.0);
+        assert_eq!(Real::max(-1.0_f32, f32::NEG_INFINITY), -1.0);
+        assert!(Real::max(f64::NAN, 1.0).is_nan());
+        assert!(Real::max(1.0, f64::NAN).is_nan());
+        assert!(Real::max(f32::NAN, f32::NAN).is_nan());
+        // Tie: the second operand.
+        assert!(Real::max(0.0_f64, -0.0).is_sign_negative());
+    }
+}

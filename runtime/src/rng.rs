@@ -147,3 +147,136 @@ pub fn glorot_limit(fan_in: usize, fan_out: usize) -> f64 {
 pub fn he_std(fan_in: usize) -> f64 {
     libm::sqrt(2.0 / fan_in as f64)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::vec;
+    use std::vec::Vec;
+
+    #[test]
+    fn splitmix64_reference_outputs_for_seed_zero() {
+        // The first four outputs of the reference splitmix64.c (S. Vigna, public domain; Steele,
+        // Lea and Flood 2014) from state 0, the values that seed xoshiro256 in its reference code
+        // (from memory; several independent public test suites pin the same four values).
+        let mut r = SplitMix64::new(0);
+        let want = [
+            0xe220a8397b1dcdaf,
+            0x6e789e6aa1b965f4,
+            0x06c45d188009454f,
+            0xf88bb8a8724c81ec,
+        ];
+        for w in want {
+            assert_eq!(r.next_u64(), w);
+        }
+        // The state is a plain counter: seed s continues where seed 0 was after some steps.
+        let mut a = SplitMix64::new(0x9e37_79b9_7f4a_7c15);
+        assert_eq!(a.next_u64(), 0x6e789e6aa1b965f4);
+        // Deterministic, and `new` is usable in a const.
+        const START: SplitMix64 = SplitMix64::new(7);
+        let (mut x, mut y) = (START, SplitMix64::new(7));
+        for _ in 0..100 {
+            assert_eq!(x.next_u64(), y.next_u64());
+        }
+    }
+
+    #[test]
+    fn next_f64_is_in_the_unit_interval_on_a_53_bit_grid() {
+        let mut r = SplitMix64::new(1);
+        let mut r2 = SplitMix64::new(1);
+        for _ in 0..100_000 {
+            let u = r.next_f64();
+            assert!((0.0..1.0).contains(&u));
+            let k = u * (1u64 << 53) as f64;
+            assert_eq!(k, (r2.next_u64() >> 11) as f64);
+        }
+        // The largest possible draw is 1 - 2^-53 < 1.
+        assert!(((1u64 << 53) - 1) as f64 * TWO_POW_MINUS_53 < 1.0);
+    }
+
+    fn moments(v: &[f64]) -> (f64, f64) {
+        let n = v.len() as f64;
+        let mean = v.iter().sum::<f64>() / n;
+        let var = v.iter().map(|x| (x - mean) * (x - mean)).sum::<f64>() / n;
+        (mean, var)
+    }
+
+    #[test]
+    fn normal_draws_have_mean_zero_and_variance_one() {
+        // 100k draws: standard error of the mean 1/sqrt(n) = 0.0032, of the variance
+        // sqrt(2/n) = 0.0045; tolerances are about 5 standard errors. About 68.27% of a standard
+        // normal lies within one standard deviation (handbook value).
+        let mut r = SplitMix64::new(2024);
+        let v: Vec<f64> = (0..100_000).map(|_| r.normal()).collect();
+        assert!(v.iter().all(|x| x.is_finite()));
+        let (mean, var) = moments(&v);
+        assert!(mean.abs() < 0.016, "mean {mean}");
+        assert!((var - 1.0).abs() < 0.025, "variance {var}");
+        let within = v.iter().filter(|x| x.abs() < 1.0).count() as f64 / v.len() as f64;
+        assert!((within - 0.6827).abs() < 0.008, "within one sigma {within}");
+    }
+
+    #[test]
+    fn glorot_uniform_limit_and_variance() {
+        // Glorot and Bengio (2010): W ~ U[-l, l], l = sqrt(6 / (fan_in + fan_out)), so
+        // Var W = l^2 / 3 = 2 / (fan_in + fan_out).
+        assert_eq!(glorot_limit(6, 10), (6.0_f64 / 16.0).sqrt());
+        for (fan_in, fan_out) in [(784, 128), (6, 10), (1, 1)] {
+            let limit = glorot_limit(fan_in, fan_out);
+            let mut w = vec![0.0_f64; 100_352];
+            fill_uniform(&mut w, limit, &mut SplitMix64::new(7));
+            let max = w.iter().fold(0.0_f64, |m, x| m.max(x.abs()));
+            assert!(
+                max <= limit && max > 0.999 * limit,
+                "max {max} limit {limit}"
+            );
+            let (mean, var) = moments(&w);
+            let want = limit * limit / 3.0;
+            assert!((want - 2.0 / (fan_in + fan_out) as f64).abs() < 1e-15);
+            // Relative standard error of the variance is sqrt(4/5 - 4/9) * 3 / sqrt(n) ~ 0.6%.
+            assert!(
+                ((var - want) / want).abs() < 0.02,
+                "variance {var} want {want}"
+            );
+            assert!(mean.abs() < 0.01 * limit, "mean {mean}");
+            // The f32 fill is the f64 fill rounded once, and stays within the rounded limit.
+            let mut wf = vec![0.0_f32; 1000];
+            fill_uniform(&mut wf, limit, &mut SplitMix64::new(7));
+            for (a, b) in wf.iter().zip(&w) {
+                assert_eq!(*a, *b as f32);
+                assert!(a.abs() <= limit as f32);
+            }
+        }
+    }
+
+    #[test]
+    fn he_normal_standard_deviation() {
+        // He et al. (2015): W ~ N(0, 2 / fan_in).
+        assert_eq!(he_std(2), 1.0);
+        for fan_in in [784, 128, 3] {
+            let std = he_std(fan_in);
+            assert!((std * std - 2.0 / fan_in as f64).abs() < 1e-15);
+            let mut w = vec![0.0_f64; 100_352];
+            fill_normal(&mut w, std, &mut SplitMix64::new(8));
+            let (mean, var) = moments(&w);
+            let want = 2.0 / fan_in as f64;
+            assert!(
+                ((var - want) / want).abs() < 0.025,
+                "variance {var} want {want}"
+            );
+            assert!(mean.abs() < 0.016 * std, "mean {mean}");
+            let mut wf = vec![0.0_f32; 1000];
+            fill_normal(&mut wf, std, &mut SplitMix64::new(8));
+            for (a, b) in wf.iter().zip(&w) {
+                assert_eq!(*a, *b as f32);
+            }
+        }
+    }
+
+    #[test]
+    fn degenerate_fans_do_not_panic() {
+        assert_eq!(glorot_limit(0, 0), f64::INFINITY);
+        assert_eq!(he_std(0), f64::INFINITY);
+        assert!(glorot_limit(usize::MAX, usize::MAX) > 0.0);
+    }
+}

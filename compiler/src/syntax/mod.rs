@@ -7,5 +7,5 @@ pub mod ast;
 mod parse;
 
 pub use ast::Spec;
-pub use parse::{parse, Rule, SpecParser};
-pub(crate) use parse::{quote, suggest, ACTIVATIONS};
+pub use parse::parse;
+pub(crate) use parse::quote;

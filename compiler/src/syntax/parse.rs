@@ -10,10 +10,14 @@ use crate::span::{Span, Spanned};
 use pest::iterators::Pair;
 use pest::Parser;
 
-/// The parser generated from `grammar/sinew.pest`.
-#[derive(pest_derive::Parser)]
-#[grammar = "../../grammar/sinew.pest"]
-pub struct SpecParser;
+/// The parser generated from `grammar/sinew.pest` (private: rule names never reach users).
+mod generated {
+    #![allow(missing_docs)]
+    #[derive(pest_derive::Parser)]
+    #[grammar = "../../grammar/sinew.pest"]
+    pub struct SpecParser;
+}
+pub(crate) use generated::{Rule, SpecParser};
 
 /// Parses a whole spec.
 ///
@@ -331,7 +335,7 @@ fn expectation(rule: Rule) -> Option<Want> {
         Rule::budget_stmt | Rule::kw_budget => Word("budget"),
         Rule::flash_limit | Rule::kw_flash => Word("flash"),
         Rule::ram_limit | Rule::kw_ram => Word("ram"),
-        Rule::spec | Rule::single_line | Rule::line | Rule::EOI_ | Rule::word_char => {
+        Rule::spec | Rule::single_line | Rule::line | Rule::word_char | Rule::line_break | Rule::WHITESPACE | Rule::COMMENT | Rule::statement => {
             return None
         }
     })
@@ -437,6 +441,8 @@ fn syntax_error(
             }
         }
     }
+    // The end of the line reads best last: "expected `standardize` or end of line".
+    wants.sort_by_key(|w| *w == Want::End);
     let first = first_word(line);
     let meant = first.and_then(|f| Section::from_keyword(&line[f.range()]));
     let found = word_at(line, pos);
@@ -461,7 +467,7 @@ fn syntax_error(
     }
 
     let form_help = |section: Option<Section>| match section {
-        Some(s) => format!("a `{}` line reads `{}`", s.keyword(), s.form()),
+        Some(s) => format!("{} `{}` line reads `{}`", article(s.keyword()), s.keyword(), s.form()),
         None => "each line holds one statement".to_string(),
     };
     let describe = |w: &Want| match w {
@@ -471,13 +477,29 @@ fn syntax_error(
         Want::End => "end of line".to_string(),
     };
     let expected = join_or(&wants.iter().map(describe).collect::<Vec<_>>());
-    let after = previous_word(line, pos).map(|w| format!(" after {}", quote(w))).unwrap_or_default();
+    let previous = previous_word(line, pos);
+    let after = previous
+        .filter(|w| KEYWORDS.contains(w))
+        .map(|w| format!(" after `{w}`"))
+        .unwrap_or_default();
+    let after_comma = line.get(..pos).is_some_and(|b| b.trim_end_matches([' ', '\t']).ends_with(','));
 
+    if after_comma && wants == [Want::Value("a name")] {
+        let found = found_text.map_or("end of line".to_string(), quote);
+        let d = Diagnostic::error("S0104", format!("expected a class name after `,`, found {found}"), found.map_or(eol, at))
+            .label("expected a class name")
+            .with_help("remove the trailing comma, or add the missing class name");
+        return (d, meant);
+    }
     let (Some(span), Some(word)) = (found, found_text) else {
         // The line ends too early.
+        let help = match previous {
+            Some("leaky_relu") => "write the slope after `leaky_relu`, e.g. `leaky_relu 0.01`".to_string(),
+            _ => form_help(meant),
+        };
         let d = Diagnostic::error("S0104", format!("expected {expected}{after}, found end of line"), eol)
             .label(format!("expected {expected} here"))
-            .with_help(form_help(meant));
+            .with_help(help);
         return (d, meant);
     };
 
@@ -505,8 +527,20 @@ fn syntax_error(
                 _ => {}
             }
         }
+        let unknown = match wants.as_slice() {
+            [Want::OneOf(what, _)] => format!("unknown {what} {}", quote(word)),
+            _ => format!("unknown word {}", quote(word)),
+        };
+        if let (Some(g), true) = (unit_alias(word), wants.iter().any(|w| matches!(w, Want::OneOf("unit", _)))) {
+            let d = Diagnostic::error("S0103", unknown, at(span))
+                .label(format!("expected {expected}"))
+                .with_help(format!(
+                    "did you mean `{g}`? memory is counted in binary units: 1 KiB = 1024 B, 1 MiB = 1024 KiB"
+                ));
+            return (d, meant);
+        }
         if let Some(g) = suggest(word, &candidates) {
-            let d = Diagnostic::error("S0103", format!("unknown word {}", quote(word)), at(span))
+            let d = Diagnostic::error("S0103", unknown, at(span))
                 .label(format!("expected {expected}"))
                 .with_help(format!("did you mean `{g}`?"));
             return (d, meant);
@@ -518,13 +552,19 @@ fn syntax_error(
                 .with_help(form_help(meant));
             return (d, meant);
         }
-        let msg = match wants.as_slice() {
-            [Want::OneOf(what, _)] => format!("unknown {what} {}", quote(word)),
-            _ => format!("expected {expected}{after}, found {}", quote(word)),
+        let (msg, help) = match wants.as_slice() {
+            [Want::OneOf(what, words)] => (
+                unknown,
+                format!(
+                    "the {what}s are {}",
+                    join_or(&words.iter().map(|w| format!("`{w}`")).collect::<Vec<_>>()).replacen(" or ", " and ", 1)
+                ),
+            ),
+            _ => (format!("expected {expected}{after}, found {}", quote(word)), form_help(meant)),
         };
         let d = Diagnostic::error("S0103", msg, at(span))
             .label(format!("expected {expected}"))
-            .with_help(form_help(meant));
+            .with_help(help);
         return (d, meant);
     }
 
@@ -546,6 +586,23 @@ fn syntax_error(
         .label(format!("expected {expected}"))
         .with_help(help);
     (d, meant)
+}
+
+/// Every fixed word of the language, for "expected X after `rate`" messages.
+const KEYWORDS: [&str; 30] = [
+    "model", "scalar", "input", "standardize", "layer", "output", "classes", "leaky_relu", "loss",
+    "penalty", "none", "l2", "l1", "init", "uniform", "glorot", "he", "seed", "train", "sgd",
+    "adam", "rate", "momentum", "beta1", "beta2", "batch", "epochs", "budget", "flash", "ram",
+];
+
+/// The unit meant by a common spelling that sinew does not use.
+fn unit_alias(word: &str) -> Option<&'static str> {
+    match word {
+        "b" | "byte" | "bytes" => Some("B"),
+        "K" | "k" | "KB" | "kB" | "kb" | "Kb" | "kib" | "KIB" => Some("KiB"),
+        "M" | "m" | "MB" | "mb" | "Mb" | "mib" | "MIB" => Some("MiB"),
+        _ => None,
+    }
 }
 
 /// The indefinite article for a noun in a message.

@@ -1,0 +1,148 @@
+//! The memory budget (`S07xx`).
+//!
+//! `budget flash N UNIT` is checked against [`Report::flash_bytes`] (every weight and bias, plus
+//! the standardization mean and std), and `budget ram N UNIT` against
+//! [`Report::ram_inference_bytes`] (the buffers `predict` holds). Both figures appear in the
+//! message.
+
+use super::Parts;
+use crate::diag::Diagnostic;
+use crate::ir::{Budget, Model};
+use crate::report::{human_bytes, Report};
+use crate::syntax::ast::{Size, Unit};
+
+fn unit_word(u: Unit) -> &'static str {
+    match u {
+        Unit::B => "B",
+        Unit::KiB => "KiB",
+        Unit::MiB => "MiB",
+    }
+}
+
+/// The size in bytes, or `None` (after reporting `S0703`) when it does not fit in 64 bits.
+fn bytes(size: &Size, what: &str, diags: &mut Vec<Diagnostic>) -> Option<u64> {
+    let v = super::shapes::whole(&size.amount).and_then(|n| n.checked_mul(size.unit.node.bytes()));
+    if v.is_none() {
+        diags.push(
+            Diagnostic::error(
+                "S0703",
+                format!(
+                    "{what} budget `{} {}` is above the limit of {} bytes",
+                    size.amount.node.chars().take(40).collect::<String>(),
+                    unit_word(size.unit.node),
+                    u64::MAX
+                ),
+                size.span,
+            )
+            .label("too large")
+            .with_help("a budget is a byte count that fits in 64 bits"),
+        );
+    }
+    v
+}
+
+/// Reads the limits; the default is no limit.
+pub(crate) fn limits(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Option<Budget> {
+    let Some(b) = parts.budget else { return Some(Budget::default()) };
+    let flash = b.flash.map(|s| bytes(s, "flash", diags));
+    let ram = b.ram.map(|s| bytes(s, "ram", diags));
+    match (flash, ram) {
+        (Some(None), _) | (_, Some(None)) => None,
+        (f, r) => Some(Budget { flash: f.flatten(), ram: r.flatten() }),
+    }
+}
+
+/// Both the rounded and the exact figure, e.g. `1.5 KiB (1536 B)`.
+fn figure(n: u64) -> String {
+    if n < 1024 {
+        human_bytes(n)
+    } else {
+        format!("{} ({n} B)", human_bytes(n))
+    }
+}
+
+/// The smallest budget in the spec's own units that holds `n` bytes.
+fn enough(n: u64) -> String {
+    if n <= 1024 {
+        format!("{n} B")
+    } else if n <= 1024 * 1024 {
+        format!("{} KiB", n.div_ceil(1024))
+    } else {
+        format!("{} MiB", n.div_ceil(1024 * 1024))
+    }
+}
+
+/// Checks a built model against its budget (`S0701` flash, `S0702` RAM).
+pub(crate) fn check(model: &Model, parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) {
+    let Some(b) = parts.budget else { return };
+    let report = Report::of(model);
+    let decls: Vec<_> = parts.layers.iter().copied().chain(parts.output.map(|o| o.layer)).collect();
+    let scalar = model.scalar.rust_name();
+    let sb = report.scalar_bytes;
+
+    if let (Some(limit), Some(size)) = (model.budget.flash, b.flash) {
+        if report.flash_bytes > limit {
+            let mut d = Diagnostic::error(
+                "S0701",
+                format!(
+                    "the model needs {} of flash, more than the budget of {}",
+                    figure(report.flash_bytes),
+                    figure(limit)
+                ),
+                size.span,
+            )
+            .label(format!("budget of {}", figure(limit)));
+            let biggest = report.layers.iter().zip(&decls).max_by_key(|(l, _)| l.parameters);
+            if let Some((l, d_) ) = biggest {
+                d = d.with_secondary(
+                    d_.width.span,
+                    format!("layer `{}` holds {} parameters: {}", l.name, l.parameters, human_bytes(l.parameters * sb)),
+                );
+            }
+            let scaling = if report.scaling_bytes > 0 {
+                format!(" plus the input's mean and std ({} values)", report.scaling_bytes / sb)
+            } else {
+                String::new()
+            };
+            diags.push(d.with_help(format!(
+                "flash holds every weight and bias ({} {scalar} values){scaling}; raise the flash \
+                 budget to at least {}, or make the layers narrower",
+                report.parameters,
+                enough(report.flash_bytes)
+            )));
+        }
+    }
+
+    if let (Some(limit), Some(size)) = (model.budget.ram, b.ram) {
+        if report.ram_inference_bytes > limit {
+            let mut d = Diagnostic::error(
+                "S0702",
+                format!(
+                    "the model needs {} of RAM for inference, more than the budget of {}",
+                    figure(report.ram_inference_bytes),
+                    figure(limit)
+                ),
+                size.span,
+            )
+            .label(format!("budget of {}", figure(limit)));
+            let widest = report.layers.iter().zip(&decls).max_by_key(|(l, _)| l.width);
+            if let Some((l, d_)) = widest {
+                d = d.with_secondary(
+                    d_.width.span,
+                    format!("layer `{}` keeps {} values: {}", l.name, l.width, human_bytes(l.width as u64 * sb)),
+                );
+            }
+            let std = if model.input.standardize {
+                format!(" plus the standardized input ({} values)", model.input.width)
+            } else {
+                String::new()
+            };
+            let values: usize = model.layers.iter().map(|l| l.width).sum();
+            diags.push(d.with_help(format!(
+                "inference keeps one buffer per layer ({values} {scalar} values){std}; raise the ram \
+                 budget to at least {}, or make the layers narrower",
+                enough(report.ram_inference_bytes)
+            )));
+        }
+    }
+}

@@ -1,0 +1,288 @@
+//! The checker: syntax tree in, [`ir::Model`] and diagnostics out.
+//!
+//! Every user-facing error about meaning is raised here, and every independent check runs, so
+//! one run reports all findings together. The checks, by code family:
+//!
+//! - `S02xx` sections: missing, duplicate or out of order (this module);
+//! - `S03xx` names ([`names`]);
+//! - `S04xx` widths and sizes, `S06xx` numeric settings ([`shapes`]);
+//! - `S05xx` layer and loss compatibility ([`compat`]);
+//! - `S07xx` the memory budget ([`budget`]);
+//! - `W01xx` warnings: legal but suspicious choices ([`compat`], [`shapes`]).
+//!
+//! `S01xx` (syntax) comes from [`crate::syntax::parse`]. A [`Checked`] holds a model exactly
+//! when there are no errors; warnings may accompany it.
+
+pub mod budget;
+pub mod compat;
+pub mod names;
+pub mod shapes;
+
+use crate::diag::Diagnostic;
+use crate::ir;
+use crate::span::{Span, Spanned};
+use crate::syntax::ast::*;
+
+/// The result of checking a spec.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Checked {
+    /// The model, present exactly when `diagnostics` holds no error.
+    pub model: Option<ir::Model>,
+    /// Every finding (errors and warnings), in source order.
+    pub diagnostics: Vec<Diagnostic>,
+}
+
+impl Checked {
+    /// True when any diagnostic is an error.
+    pub fn has_errors(&self) -> bool {
+        self.diagnostics.iter().any(Diagnostic::is_error)
+    }
+}
+
+/// Parses and checks spec source text; syntax errors and check findings come together, in
+/// source order.
+///
+/// # Examples
+/// ```
+/// let checked = sinew::check_source(
+///     "model demo\ninput x 2\noutput y 1 sigmoid\nloss cross_entropy\n",
+/// );
+/// let model = checked.model.expect("a valid spec");
+/// assert_eq!(model.parameters(), 3);
+/// ```
+pub fn check_source(src: &str) -> Checked {
+    let (spec, mut diagnostics) = crate::syntax::parse(src);
+    let checked = check(&spec);
+    diagnostics.extend(checked.diagnostics);
+    diagnostics.sort_by_key(|d| d.primary.span.start);
+    let model = if diagnostics.iter().any(Diagnostic::is_error) { None } else { checked.model };
+    Checked { model, diagnostics }
+}
+
+/// Checks a parsed spec. A spec holding lines with syntax errors ([`Item::Invalid`]) never
+/// yields a model; those errors are the parser's to report.
+///
+/// # Examples
+/// ```
+/// let (spec, _) = sinew::syntax::parse("model demo\ninput x 2\noutput y 1 softmax\n");
+/// let checked = sinew::check::check(&spec);
+/// let codes: Vec<_> = checked.diagnostics.iter().map(|d| d.code).collect();
+/// assert_eq!(codes, ["S0204", "S0502"]); // no `loss` line; softmax needs 2 units
+/// ```
+pub fn check(spec: &Spec) -> Checked {
+    let mut diags = Vec::new();
+    let parts = sections(spec, &mut diags);
+    names::check(&parts, &mut diags);
+    let widths = shapes::widths(&parts, &mut diags);
+    let activations = shapes::activations(&parts, &mut diags);
+    let settings = shapes::settings(&parts, &mut diags);
+    compat::check(&parts, &widths, &mut diags);
+    let limits = budget::limits(&parts, &mut diags);
+
+    let mut model = None;
+    if !parts.has_invalid && !diags.iter().any(Diagnostic::is_error) {
+        model = build(&parts, &widths, &activations, &settings, limits);
+    }
+    if let Some(m) = &model {
+        budget::check(m, &parts, &mut diags);
+    }
+    diags.sort_by_key(|d| d.primary.span.start);
+    if diags.iter().any(Diagnostic::is_error) {
+        model = None;
+    }
+    Checked { model, diagnostics: diags }
+}
+
+/// The input line's parts.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct InputPart<'a> {
+    pub name: &'a Name,
+    pub width: &'a Integer,
+    pub standardize: bool,
+}
+
+/// The output line's parts.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct OutputPart<'a> {
+    pub layer: &'a LayerDecl,
+    pub classes: Option<&'a Classes>,
+}
+
+/// The train line's parts.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct TrainPart<'a> {
+    pub optimizer: &'a Spanned<OptimizerKind>,
+    pub batch: Option<&'a Integer>,
+    pub epochs: Option<&'a Integer>,
+}
+
+/// The budget line's parts.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct BudgetPart<'a> {
+    pub flash: Option<&'a Size>,
+    pub ram: Option<&'a Size>,
+}
+
+/// The first statement of each section (later duplicates are reported and ignored), and every
+/// hidden layer in order.
+#[derive(Debug, Default)]
+pub(crate) struct Parts<'a> {
+    pub model: Option<&'a Name>,
+    pub scalar: Option<&'a Spanned<ScalarKind>>,
+    pub input: Option<InputPart<'a>>,
+    pub layers: Vec<&'a LayerDecl>,
+    pub output: Option<OutputPart<'a>>,
+    pub loss: Option<&'a Spanned<LossKind>>,
+    pub penalty: Option<&'a Spanned<PenaltyKind>>,
+    pub init: Option<(&'a Spanned<InitKind>, Option<&'a Integer>)>,
+    pub train: Option<TrainPart<'a>>,
+    pub budget: Option<BudgetPart<'a>>,
+    /// Some line had a syntax error.
+    pub has_invalid: bool,
+}
+
+/// Collects the sections and checks their presence, uniqueness and order (`S02xx`).
+fn sections<'a>(spec: &'a Spec, diags: &mut Vec<Diagnostic>) -> Parts<'a> {
+    let mut parts = Parts::default();
+    let mut first: Vec<(Section, Span)> = Vec::new();
+    let mut latest: Option<(Section, Span)> = None;
+    for stmt in &spec.statements {
+        if let Item::Invalid { .. } = stmt.item {
+            parts.has_invalid = true;
+        }
+        let Some(section) = stmt.item.section() else { continue };
+        let kw = section.keyword();
+        if section != Section::Layer {
+            if let Some(&(_, prev)) = first.iter().find(|(s, _)| *s == section) {
+                diags.push(
+                    Diagnostic::error("S0205", format!("the spec has a second `{kw}` line"), stmt.keyword)
+                        .label("second one")
+                        .with_secondary(prev, "first one")
+                        .with_help(format!("a spec has at most one `{kw}` line; remove one")),
+                );
+                continue;
+            }
+            first.push((section, stmt.keyword));
+        }
+        match latest {
+            Some((later, at)) if section < later => {
+                diags.push(
+                    Diagnostic::error(
+                        "S0206",
+                        format!("the `{kw}` line comes after the `{}` line", later.keyword()),
+                        stmt.keyword,
+                    )
+                    .label("out of order")
+                    .with_secondary(at, format!("`{}` is here", later.keyword()))
+                    .with_help(format!(
+                        "move it above the `{}` line; the order is {}",
+                        later.keyword(),
+                        Section::ALL.map(Section::keyword).join(", ")
+                    )),
+                );
+            }
+            _ => latest = Some((section, stmt.keyword)),
+        }
+        match &stmt.item {
+            Item::Model { name } => parts.model = Some(name),
+            Item::Scalar { kind } => parts.scalar = Some(kind),
+            Item::Input { name, width, standardize } => {
+                parts.input = Some(InputPart { name, width, standardize: standardize.is_some() })
+            }
+            Item::Layer(layer) => parts.layers.push(layer),
+            Item::Output { layer, classes } => {
+                parts.output = Some(OutputPart { layer, classes: classes.as_ref() })
+            }
+            Item::Loss { kind } => parts.loss = Some(kind),
+            Item::Penalty { kind } => parts.penalty = Some(kind),
+            Item::Init { kind, seed } => parts.init = Some((kind, seed.as_ref())),
+            Item::Train { optimizer, batch, epochs } => {
+                parts.train =
+                    Some(TrainPart { optimizer, batch: batch.as_ref(), epochs: epochs.as_ref() })
+            }
+            Item::Budget { flash, ram } => {
+                parts.budget = Some(BudgetPart { flash: flash.as_ref(), ram: ram.as_ref() })
+            }
+            Item::Invalid { .. } => {}
+        }
+    }
+
+    let model_at = first.iter().find(|(s, _)| *s == Section::Model).map(|&(_, at)| at);
+    let first_statement = spec.statements.first().map(|s| s.keyword);
+    let anchor = model_at.or(first_statement).unwrap_or_default();
+    let missing = [
+        (Section::Model, "S0201", "add `model NAME` as the first line, e.g. `model pump_health`"),
+        (Section::Input, "S0202", "add `input NAME WIDTH` after the `model` line, e.g. `input features 6`"),
+        (
+            Section::Output,
+            "S0203",
+            "add `output NAME WIDTH ACTIVATION` after the last `layer` line, e.g. `output state 3 softmax`",
+        ),
+        (
+            Section::Loss,
+            "S0204",
+            "add `loss cross_entropy` (for classes) or `loss squared_error` (for values) after the \
+             `output` line",
+        ),
+    ];
+    for (section, code, help) in missing {
+        if first.iter().any(|(s, _)| *s == section) {
+            continue;
+        }
+        let label = match (model_at, parts.model, first_statement) {
+            (Some(_), Some(name), _) => {
+                format!("model `{}` has no `{}` line", name.node, section.keyword())
+            }
+            (None, _, Some(_)) => "the spec starts here".to_string(),
+            _ => String::new(),
+        };
+        diags.push(
+            Diagnostic::error(code, format!("the spec has no `{}` line", section.keyword()), anchor)
+                .label(label)
+                .with_help(help),
+        );
+    }
+    parts
+}
+
+/// Assembles the model once every check has passed.
+fn build(
+    parts: &Parts<'_>,
+    widths: &shapes::Widths,
+    activations: &[Option<ir::Activation>],
+    settings: &shapes::Settings,
+    budget: Option<ir::Budget>,
+) -> Option<ir::Model> {
+    let input = parts.input?;
+    let output = parts.output?;
+    let mut fan_in = widths.input?;
+    let decls = parts.layers.iter().copied().chain(std::iter::once(output.layer));
+    let mut layers = Vec::new();
+    for ((decl, width), act) in decls.zip(&widths.layers).zip(activations) {
+        let width = (*width)?;
+        layers.push(ir::Layer { name: decl.name.node.clone(), width, fan_in, activation: (*act)? });
+        fan_in = width;
+    }
+    let scalar = match parts.scalar.map(|s| s.node) {
+        Some(ScalarKind::F32) => ir::Scalar::F32,
+        Some(ScalarKind::F64) => ir::Scalar::F64,
+        None => ir::defaults::SCALAR,
+    };
+    let loss = match parts.loss?.node {
+        LossKind::CrossEntropy => ir::Loss::CrossEntropy,
+        LossKind::SquaredError => ir::Loss::SquaredError,
+    };
+    Some(ir::Model {
+        name: parts.model?.node.clone(),
+        scalar,
+        input: ir::Input { name: input.name.node.clone(), width: widths.input?, standardize: input.standardize },
+        layers,
+        classes: output.classes.map(|c| c.names.iter().map(|n| n.node.clone()).collect()),
+        loss,
+        penalty: settings.penalty?,
+        init: settings.init?,
+        seed: settings.seed?,
+        train: settings.train?,
+        budget: budget?,
+    })
+}

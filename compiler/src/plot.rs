@@ -1,0 +1,117 @@
+//! Training curves as SVG or PNG (by the file extension), drawn with `plotters`.
+//!
+//! SVG needs no font. PNG text is drawn with the first TrueType font found: the file named by
+//! the `SINEW_FONT` environment variable, else a DejaVu or Liberation sans font in the usual
+//! system font folders; without one the PNG is drawn without text (and a note says so).
+
+use crate::engine::train::EpochReport;
+use plotters::prelude::*;
+use std::path::Path;
+
+const FONT_CANDIDATES: &[&str] = &[
+    "/usr/share/fonts/truetype/dejavu/DejaVuSans.ttf",
+    "/usr/share/fonts/TTF/DejaVuSans.ttf",
+    "/usr/share/fonts/dejavu/DejaVuSans.ttf",
+    "/usr/share/fonts/truetype/liberation/LiberationSans-Regular.ttf",
+    "/Library/Fonts/Arial.ttf",
+    "C:\\Windows\\Fonts\\arial.ttf",
+];
+
+fn register_font() -> bool {
+    let env = std::env::var("SINEW_FONT").ok();
+    let candidates = env.iter().map(String::as_str).chain(FONT_CANDIDATES.iter().copied());
+    for path in candidates {
+        if let Ok(bytes) = std::fs::read(path) {
+            let leaked: &'static [u8] = Box::leak(bytes.into_boxed_slice());
+            if plotters::style::register_font("sans-serif", FontStyle::Normal, leaked).is_ok() {
+                return true;
+            }
+        }
+    }
+    false
+}
+
+/// Draws the training (and validation, when present) cost per epoch into `path`. The file is
+/// written to a temporary sibling and renamed into place. Returns a note for the user when the
+/// PNG had to be drawn without text.
+pub fn cost_curves(history: &[EpochReport], title: &str, path: &Path) -> Result<Option<String>, String> {
+    let ext = path.extension().and_then(|e| e.to_str()).unwrap_or("").to_ascii_lowercase();
+    // The temporary file keeps the extension: the PNG encoder picks its format from it.
+    let stem = path.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_default();
+    let tmp = path.with_file_name(format!(".{stem}.{}.tmp.{ext}", std::process::id()));
+    let result = match ext.as_str() {
+        "svg" => draw(SVGBackend::new(&tmp, (900, 560)).into_drawing_area(), history, title, true)
+            .map(|_| None),
+        "png" => {
+            let text = register_font();
+            draw(BitMapBackend::new(&tmp, (900, 560)).into_drawing_area(), history, title, text).map(|_| {
+                (!text).then(|| "no TrueType font found: the PNG has no text (set SINEW_FONT)".to_string())
+            })
+        }
+        _ => return Err(format!("cannot plot to {}: use a .svg or .png file", path.display())),
+    };
+    match result {
+        Ok(note) => {
+            std::fs::rename(&tmp, path).map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+            Ok(note)
+        }
+        Err(e) => {
+            let _ = std::fs::remove_file(&tmp);
+            Err(e)
+        }
+    }
+}
+
+fn draw<DB: DrawingBackend>(
+    root: DrawingArea<DB, plotters::coord::Shift>,
+    history: &[EpochReport],
+    title: &str,
+    text: bool,
+) -> Result<(), String>
+where
+    DB::ErrorType: 'static,
+{
+    let err = |e: DrawingAreaErrorKind<DB::ErrorType>| format!("cannot draw the plot: {e:?}");
+    root.fill(&WHITE).map_err(err)?;
+    let train: Vec<(f64, f64)> = history.iter().map(|r| (f64::from(r.epoch), r.train_cost)).collect();
+    let valid: Vec<(f64, f64)> = history
+        .iter()
+        .filter_map(|r| r.validation_cost.map(|v| (f64::from(r.epoch), v)))
+        .collect();
+    let all = train.iter().chain(&valid).map(|p| p.1).filter(|v| v.is_finite());
+    let (lo, hi) = all.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| (a.min(v), b.max(v)));
+    let (lo, hi) = if lo.is_finite() { (lo, hi) } else { (0.0, 1.0) };
+    let pad = ((hi - lo) * 0.05).max(1e-12);
+    let last = history.last().map_or(1.0, |r| f64::from(r.epoch.max(1)));
+    let mut builder = ChartBuilder::on(&root);
+    builder.margin(20);
+    if text {
+        builder.caption(title, ("sans-serif", 24)).x_label_area_size(45).y_label_area_size(70);
+    }
+    let mut chart = builder
+        .build_cartesian_2d(0.0..last, (lo - pad).max(0.0)..hi + pad)
+        .map_err(err)?;
+    let mut mesh = chart.configure_mesh();
+    if text {
+        mesh.x_desc("epoch").y_desc("cost J");
+    } else {
+        mesh.disable_x_axis().disable_y_axis();
+    }
+    mesh.draw().map_err(err)?;
+    let blue = RGBColor(31, 119, 180);
+    let orange = RGBColor(230, 120, 20);
+    let s = chart.draw_series(LineSeries::new(train, blue.stroke_width(2))).map_err(err)?;
+    if text {
+        s.label("training").legend(move |(x, y)| PathElement::new([(x, y), (x + 20, y)], blue));
+    }
+    if !valid.is_empty() {
+        let s = chart.draw_series(LineSeries::new(valid, orange.stroke_width(2))).map_err(err)?;
+        if text {
+            s.label("validation").legend(move |(x, y)| PathElement::new([(x, y), (x + 20, y)], orange));
+        }
+    }
+    if text {
+        chart.configure_series_labels().border_style(BLACK).background_style(WHITE).draw().map_err(err)?;
+    }
+    root.present().map_err(err)
+}
