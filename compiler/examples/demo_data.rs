@@ -18,9 +18,39 @@ use std::fmt::Write;
 /// (state, [(mean, std); 6]) for vib_rms_mm_s, vib_peak_hz, suction_kpa, discharge_kpa,
 /// motor_current_a, bearing_temp_c.
 const PUMP_STATES: [(&str, [(f64, f64); 6]); 3] = [
-    ("normal", [(2.2, 0.7), (50.0, 12.0), (92.0, 7.0), (405.0, 20.0), (12.0, 0.9), (46.0, 5.0)]),
-    ("cavitation", [(3.6, 1.1), (95.0, 30.0), (72.0, 11.0), (375.0, 28.0), (11.3, 1.1), (48.0, 5.5)]),
-    ("worn_bearing", [(3.9, 1.2), (120.0, 30.0), (90.0, 8.0), (398.0, 22.0), (13.1, 1.1), (57.0, 7.0)]),
+    (
+        "normal",
+        [
+            (2.2, 0.7),
+            (50.0, 12.0),
+            (92.0, 7.0),
+            (405.0, 20.0),
+            (12.0, 0.9),
+            (46.0, 5.0),
+        ],
+    ),
+    (
+        "cavitation",
+        [
+            (3.6, 1.1),
+            (95.0, 30.0),
+            (72.0, 11.0),
+            (375.0, 28.0),
+            (11.3, 1.1),
+            (48.0, 5.5),
+        ],
+    ),
+    (
+        "worn_bearing",
+        [
+            (3.9, 1.2),
+            (120.0, 30.0),
+            (90.0, 8.0),
+            (398.0, 22.0),
+            (13.1, 1.1),
+            (57.0, 7.0),
+        ],
+    ),
 ];
 
 fn pump(rng: &mut SplitMix64) -> String {
@@ -38,16 +68,22 @@ fn pump(rng: &mut SplitMix64) -> String {
 }
 
 fn greenhouse(rng: &mut SplitMix64) -> String {
-    let mut s = String::from("air_temp_c,humidity_now_pct,vent_open_pct,irrigation_l,humidity_next_pct\n");
+    let mut s =
+        String::from("air_temp_c,humidity_now_pct,vent_open_pct,irrigation_l,humidity_next_pct\n");
     for _ in 0..500 {
         let temp = rng.uniform(14.0, 34.0);
         let rh = rng.uniform(35.0, 95.0);
         let vent = rng.uniform(0.0, 100.0);
         let water = rng.uniform(0.0, 40.0);
         // Made-up response: venting pulls humidity towards 55 %, warm air dries, irrigation adds.
-        let next = rh + (55.0 - rh) * 0.006 * vent - 0.35 * (temp - 22.0) + 8.0 * (1.0 - (-water / 15.0).exp())
+        let next = rh + (55.0 - rh) * 0.006 * vent - 0.35 * (temp - 22.0)
+            + 8.0 * (1.0 - (-water / 15.0).exp())
             + 1.5 * rng.normal();
-        let _ = writeln!(s, "{temp:.2},{rh:.2},{vent:.1},{water:.2},{:.2}", next.clamp(5.0, 100.0));
+        let _ = writeln!(
+            s,
+            "{temp:.2},{rh:.2},{vent:.1},{water:.2},{:.2}",
+            next.clamp(5.0, 100.0)
+        );
     }
     s
 }

@@ -84,7 +84,9 @@ impl Builder {
     /// Adds a spec file to compile (relative paths are relative to the current folder, which for
     /// a build script is the package root).
     pub fn spec(&mut self, path: impl AsRef<Path>) -> &mut Self {
-        self.specs.push(SpecEntry { path: path.as_ref().to_path_buf() });
+        self.specs.push(SpecEntry {
+            path: path.as_ref().to_path_buf(),
+        });
         self
     }
 
@@ -130,10 +132,14 @@ impl Builder {
     pub fn compile(&self) -> Result<Vec<PathBuf>, BuildError> {
         let out_dir = match &self.out_dir {
             Some(d) => d.clone(),
-            None => std::env::var_os("OUT_DIR").map(PathBuf::from).ok_or(BuildError::NoOutDir)?,
+            None => std::env::var_os("OUT_DIR")
+                .map(PathBuf::from)
+                .ok_or(BuildError::NoOutDir)?,
         };
-        std::fs::create_dir_all(&out_dir)
-            .map_err(|source| BuildError::Write { path: out_dir.clone(), source })?;
+        std::fs::create_dir_all(&out_dir).map_err(|source| BuildError::Write {
+            path: out_dir.clone(),
+            source,
+        })?;
         if self.cargo_metadata {
             for entry in &self.specs {
                 println!("cargo:rerun-if-changed={}", entry.path.display());
@@ -155,8 +161,10 @@ impl Builder {
         done: &[(String, PathBuf, PathBuf)],
     ) -> Result<(String, PathBuf, PathBuf), BuildError> {
         let path = &entry.path;
-        let src = std::fs::read_to_string(path)
-            .map_err(|source| BuildError::Read { path: path.clone(), source })?;
+        let src = std::fs::read_to_string(path).map_err(|source| BuildError::Read {
+            path: path.clone(),
+            source,
+        })?;
         let checked = crate::check_source(&src);
         let shown = path.display().to_string();
         if !checked.diagnostics.is_empty() {
@@ -164,7 +172,11 @@ impl Builder {
             let mut err = std::io::stderr().lock();
             let _ = err.write_all(text.as_bytes());
             if self.cargo_metadata {
-                for d in checked.diagnostics.iter().filter(|d| d.severity == Severity::Warning) {
+                for d in checked
+                    .diagnostics
+                    .iter()
+                    .filter(|d| d.severity == Severity::Warning)
+                {
                     println!("cargo:warning={shown}: warning[{}]: {}", d.code, d.message);
                 }
             }
@@ -172,10 +184,17 @@ impl Builder {
         let errors = checked.diagnostics.iter().filter(|d| d.is_error()).count();
         let model = match checked.model {
             Some(m) if errors == 0 => m,
-            _ => return Err(BuildError::Spec { path: path.clone(), errors: errors.max(1) }),
+            _ => {
+                return Err(BuildError::Spec {
+                    path: path.clone(),
+                    errors: errors.max(1),
+                })
+            }
         };
-        let file_name = output_file_name(&model.name)
-            .ok_or_else(|| BuildError::OutputName { spec: path.clone(), name: model.name.clone() })?;
+        let file_name = output_file_name(&model.name).ok_or_else(|| BuildError::OutputName {
+            spec: path.clone(),
+            name: model.name.clone(),
+        })?;
         if let Some((_, first, _)) = done.iter().find(|(name, _, _)| *name == model.name) {
             return Err(BuildError::DuplicateModel {
                 name: model.name.clone(),
@@ -190,15 +209,19 @@ impl Builder {
         };
         let code = emit::generate(&model, &options);
         let out = out_dir.join(file_name);
-        fsutil::write_if_changed(&out, code.as_bytes())
-            .map_err(|source| BuildError::Write { path: out.clone(), source })?;
+        fsutil::write_if_changed(&out, code.as_bytes()).map_err(|source| BuildError::Write {
+            path: out.clone(),
+            source,
+        })?;
         Ok((model.name, path.clone(), out))
     }
 }
 
 /// The spec's file name (last component) for the generated header.
 fn spec_display_name(path: &Path) -> String {
-    path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default()
+    path.file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default()
 }
 
 /// `<name>.rs` when `name` is a plain lower_snake identifier, so that the file lands inside the
@@ -210,7 +233,8 @@ fn output_file_name(name: &str) -> Option<String> {
     let rest_ok = chars.all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_');
     let file = format!("{name}.rs");
     let mut components = Path::new(&file).components();
-    let single = matches!(components.next(), Some(Component::Normal(_))) && components.next().is_none();
+    let single =
+        matches!(components.next(), Some(Component::Normal(_))) && components.next().is_none();
     (first_ok && rest_ok && single).then_some(file)
 }
 
@@ -262,7 +286,10 @@ impl fmt::Display for BuildError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
             BuildError::NoOutDir => {
-                write!(f, "no output folder: OUT_DIR is not set (call `out_dir` outside a build script)")
+                write!(
+                    f,
+                    "no output folder: OUT_DIR is not set (call `out_dir` outside a build script)"
+                )
             }
             BuildError::Read { path, source } => {
                 write!(f, "cannot read spec `{}`: {source}", path.display())
@@ -278,7 +305,11 @@ impl fmt::Display for BuildError {
                 "spec `{}`: model name `{name}` does not make a file name inside the output folder",
                 spec.display()
             ),
-            BuildError::DuplicateModel { name, first, second } => write!(
+            BuildError::DuplicateModel {
+                name,
+                first,
+                second,
+            } => write!(
                 f,
                 "model `{name}` is declared by both `{}` and `{}`",
                 first.display(),
@@ -315,8 +346,13 @@ mod tests {
 
     #[test]
     fn output_names_stay_inside_the_folder() {
-        assert_eq!(output_file_name("pump_health").as_deref(), Some("pump_health.rs"));
-        for bad in ["", "..", "../x", "a/b", "/abs", "A", "a.b", "a\\b", "1a", "a b"] {
+        assert_eq!(
+            output_file_name("pump_health").as_deref(),
+            Some("pump_health.rs")
+        );
+        for bad in [
+            "", "..", "../x", "a/b", "/abs", "A", "a.b", "a\\b", "1a", "a b",
+        ] {
             assert_eq!(output_file_name(bad), None, "{bad:?}");
         }
     }
@@ -340,7 +376,10 @@ mod tests {
         let after = std::fs::metadata(&files[0]).unwrap().modified().unwrap();
         assert_eq!(before, after);
         // No temporary file is left behind.
-        let names: Vec<_> = std::fs::read_dir(&out).unwrap().map(|e| e.unwrap().file_name()).collect();
+        let names: Vec<_> = std::fs::read_dir(&out)
+            .unwrap()
+            .map(|e| e.unwrap().file_name())
+            .collect();
         assert_eq!(names, ["door_latch.rs"]);
     }
 
@@ -363,7 +402,10 @@ mod tests {
             other => panic!("unexpected {other:?}"),
         }
         let text = err.to_string();
-        assert!(text.contains("broken.sinew") && text.contains("has 2 errors"), "{text}");
+        assert!(
+            text.contains("broken.sinew") && text.contains("has 2 errors"),
+            "{text}"
+        );
     }
 
     #[test]

@@ -53,7 +53,10 @@ impl Diagnostic {
             severity: Severity::Error,
             code,
             message: message.into(),
-            primary: Label { span, message: String::new() },
+            primary: Label {
+                span,
+                message: String::new(),
+            },
             secondary: Vec::new(),
             help: None,
         }
@@ -61,7 +64,10 @@ impl Diagnostic {
 
     /// A warning with a primary span.
     pub fn warning(code: Code, message: impl Into<String>, span: Span) -> Self {
-        Diagnostic { severity: Severity::Warning, ..Diagnostic::error(code, message, span) }
+        Diagnostic {
+            severity: Severity::Warning,
+            ..Diagnostic::error(code, message, span)
+        }
     }
 
     /// Sets the primary label's text.
@@ -72,7 +78,10 @@ impl Diagnostic {
 
     /// Adds a secondary label.
     pub fn with_secondary(mut self, span: Span, message: impl Into<String>) -> Self {
-        self.secondary.push(Label { span, message: message.into() });
+        self.secondary.push(Label {
+            span,
+            message: message.into(),
+        });
         self
     }
 
@@ -132,8 +141,9 @@ pub fn render(file_name: &str, src: &str, diags: &[Diagnostic], color: bool) -> 
             Severity::Error => cs::Severity::Error,
             Severity::Warning => cs::Severity::Warning,
         };
-        let mut labels =
-            vec![cs::Label::primary((), fix(d.primary.span)).with_message(d.primary.message.clone())];
+        let mut labels = vec![
+            cs::Label::primary((), fix(d.primary.span)).with_message(d.primary.message.clone())
+        ];
         labels.extend(
             d.secondary
                 .iter()
@@ -156,7 +166,10 @@ pub fn render(file_name: &str, src: &str, diags: &[Diagnostic], color: bool) -> 
             // The renderer refused a location; fall back to a plain line so nothing is lost.
             let at = fix(d.primary.span).start;
             let kind = if d.is_error() { "error" } else { "warning" };
-            let line = format!("{kind}[{}]: {} ({file_name}, byte {at})\n", d.code, d.message);
+            let line = format!(
+                "{kind}[{}]: {} ({file_name}, byte {at})\n",
+                d.code, d.message
+            );
             out.extend_from_slice(line.as_bytes());
         }
     }

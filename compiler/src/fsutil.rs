@@ -10,7 +10,10 @@ use std::path::{Path, PathBuf};
 
 fn temp_sibling(path: &Path) -> io::Result<PathBuf> {
     let name = path.file_name().ok_or_else(|| {
-        io::Error::new(io::ErrorKind::InvalidInput, "the output path has no file name")
+        io::Error::new(
+            io::ErrorKind::InvalidInput,
+            "the output path has no file name",
+        )
     })?;
     let mut tmp = name.to_os_string();
     tmp.push(format!(".{}.tmp", std::process::id()));

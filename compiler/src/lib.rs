@@ -11,21 +11,21 @@
 
 #![deny(missing_docs)]
 
+pub mod check;
 pub mod data;
 pub mod diag;
 pub mod engine;
 pub mod fsutil;
 pub mod ir;
+#[cfg(feature = "cli")]
+pub mod plot;
 pub mod report;
 pub mod span;
 pub mod summary;
+pub mod syntax;
 pub mod weights;
 pub mod workflow;
-#[cfg(feature = "cli")]
-pub mod plot;
-pub mod syntax;
-pub mod check;
 pub use check::{check_source, Checked};
-pub mod emit;
 pub mod builder;
+pub mod emit;
 pub use builder::Builder;

@@ -14,7 +14,11 @@ use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
 #[derive(Parser)]
-#[command(name = "sinew", version, about = "Compile small neural networks to fixed-size no_std Rust")]
+#[command(
+    name = "sinew",
+    version,
+    about = "Compile small neural networks to fixed-size no_std Rust"
+)]
 struct Cli {
     #[command(subcommand)]
     command: Command,
@@ -96,9 +100,12 @@ enum Command {
         /// CSV data file (default: a few drawn samples).
         #[arg(long)]
         data: Option<PathBuf>,
-        /// Largest worst relative error that passes.
+        /// Relative tolerance.
         #[arg(long, default_value_t = 1e-6)]
         threshold: f64,
+        /// Absolute tolerance (the noise floor of the difference quotient).
+        #[arg(long, default_value_t = 1e-9)]
+        atol: f64,
         /// Finite-difference step.
         #[arg(long, default_value_t = 1e-5)]
         step: f64,
@@ -171,15 +178,42 @@ fn main() -> ExitCode {
     let cli = Cli::parse();
     match cli.command {
         Command::Check { files, json } => check(&files, json),
-        Command::Emit { file, output, unroll_below, weights } => {
-            emit(&file, output.as_deref(), unroll_below, weights.as_deref())
-        }
+        Command::Emit {
+            file,
+            output,
+            unroll_below,
+            weights,
+        } => emit(&file, output.as_deref(), unroll_below, weights.as_deref()),
         Command::Init { spec, output, seed } => init(&spec, &output, seed),
         Command::Train(args) => train(&args),
-        Command::Eval { spec, weights, data, json } => eval(&spec, &weights, &data, json),
-        Command::Grad { spec, weights, data, json: _ } => grad(&spec, &weights, &data),
-        Command::Gradcheck { spec, weights, data, threshold, step, max_per_layer } => {
-            let opts = GradcheckOptions { step, threshold, max_per_layer, ..Default::default() };
+        Command::Eval {
+            spec,
+            weights,
+            data,
+            json,
+        } => eval(&spec, &weights, &data, json),
+        Command::Grad {
+            spec,
+            weights,
+            data,
+            json: _,
+        } => grad(&spec, &weights, &data),
+        Command::Gradcheck {
+            spec,
+            weights,
+            data,
+            threshold,
+            atol,
+            step,
+            max_per_layer,
+        } => {
+            let opts = GradcheckOptions {
+                step,
+                threshold,
+                atol,
+                max_per_layer,
+                ..Default::default()
+            };
             gradcheck(&spec, weights.as_deref(), data.as_deref(), &opts)
         }
     }
@@ -227,7 +261,11 @@ fn init(spec: &Path, output: &Path, seed: Option<u64>) -> ExitCode {
     };
     match save(&workflow::init(&model, seed), output) {
         Ok(()) => {
-            println!("wrote {} ({} parameters)", output.display(), model.parameters());
+            println!(
+                "wrote {} ({} parameters)",
+                output.display(),
+                model.parameters()
+            );
             ExitCode::SUCCESS
         }
         Err(code) => code,
@@ -251,11 +289,16 @@ fn train(a: &TrainArgs) -> ExitCode {
         None => None,
     };
     let method = a.optimizer.map(|o| match (o, model.train.optimizer) {
-        (OptimizerArg::Gd, spec) => Method::GradientDescent { rate: rate_of(spec) },
+        (OptimizerArg::Gd, spec) => Method::GradientDescent {
+            rate: rate_of(spec),
+        },
         (OptimizerArg::Sgd, Optimizer::Sgd { rate, momentum }) => {
             Method::MiniBatch(Optimizer::Sgd { rate, momentum })
         }
-        (OptimizerArg::Sgd, spec) => Method::MiniBatch(Optimizer::Sgd { rate: rate_of(spec), momentum: 0.0 }),
+        (OptimizerArg::Sgd, spec) => Method::MiniBatch(Optimizer::Sgd {
+            rate: rate_of(spec),
+            momentum: 0.0,
+        }),
         (OptimizerArg::Adam, a @ Optimizer::Adam { .. }) => Method::MiniBatch(a),
         (OptimizerArg::Adam, spec) => Method::MiniBatch(Optimizer::Adam {
             rate: rate_of(spec),
@@ -273,16 +316,24 @@ fn train(a: &TrainArgs) -> ExitCode {
         seed: a.seed,
         patience: a.patience,
     };
-    let req = TrainRequest { data: &a.data, split: a.split, seed: a.seed, options, start };
+    let req = TrainRequest {
+        data: &a.data,
+        split: a.split,
+        seed: a.seed,
+        options,
+        start,
+    };
     let epochs = a.epochs.unwrap_or(model.train.epochs);
     let bar = if a.quiet {
         indicatif::ProgressBar::hidden()
     } else {
         let bar = indicatif::ProgressBar::new(u64::from(epochs));
         bar.set_style(
-            indicatif::ProgressStyle::with_template("{prefix} [{bar:30}] epoch {pos}/{len} {msg} ({elapsed})")
-                .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar())
-                .progress_chars("=> "),
+            indicatif::ProgressStyle::with_template(
+                "{prefix} [{bar:30}] epoch {pos}/{len} {msg} ({elapsed})",
+            )
+            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar())
+            .progress_chars("=> "),
         );
         bar.set_prefix(model.name.clone());
         bar
@@ -311,7 +362,11 @@ fn train(a: &TrainArgs) -> ExitCode {
         if let Err(code) = ensure_parent(plot) {
             return code;
         }
-        match sinew::plot::cost_curves(&outcome.summary.history, &format!("{} training", model.name), plot) {
+        match sinew::plot::cost_curves(
+            &outcome.summary.history,
+            &format!("{} training", model.name),
+            plot,
+        ) {
             Ok(note) => {
                 if let Some(n) = note {
                     eprintln!("note: {n}");
@@ -345,7 +400,8 @@ fn eval(spec: &Path, weights: &Path, data: &Path, json: bool) -> ExitCode {
         Ok(m) => m,
         Err(code) => return code,
     };
-    let result = workflow::load_weights(&model, weights).and_then(|w| workflow::evaluate(&model, &w, data));
+    let result =
+        workflow::load_weights(&model, weights).and_then(|w| workflow::evaluate(&model, &w, data));
     match result {
         Ok(e) if json => match serde_json::to_string_pretty(&e) {
             Ok(t) => {
@@ -370,7 +426,8 @@ fn grad(spec: &Path, weights: &Path, data: &Path) -> ExitCode {
         Ok(m) => m,
         Err(code) => return code,
     };
-    let result = workflow::load_weights(&model, weights).and_then(|w| workflow::gradient_json(&model, &w, data));
+    let result = workflow::load_weights(&model, weights)
+        .and_then(|w| workflow::gradient_json(&model, &w, data));
     match result.map(|v| serde_json::to_string_pretty(&v)) {
         Ok(Ok(t)) => {
             println!("{t}");
@@ -384,12 +441,20 @@ fn grad(spec: &Path, weights: &Path, data: &Path) -> ExitCode {
     }
 }
 
-fn gradcheck(spec: &Path, weights: Option<&Path>, data: Option<&Path>, opts: &GradcheckOptions) -> ExitCode {
+fn gradcheck(
+    spec: &Path,
+    weights: Option<&Path>,
+    data: Option<&Path>,
+    opts: &GradcheckOptions,
+) -> ExitCode {
     let model = match model_of(spec) {
         Ok(m) => m,
         Err(code) => return code,
     };
-    let w = match weights.map(|p| workflow::load_weights(&model, p)).transpose() {
+    let w = match weights
+        .map(|p| workflow::load_weights(&model, p))
+        .transpose()
+    {
         Ok(w) => w,
         Err(e) => return fail(&e),
     };
@@ -397,7 +462,7 @@ fn gradcheck(spec: &Path, weights: Option<&Path>, data: Option<&Path>, opts: &Gr
         Ok(c) => c,
         Err(e) => return fail(&e),
     };
-    let (text, ok) = sinew::summary::gradcheck(&model, &checks, opts.threshold);
+    let (text, ok) = sinew::summary::gradcheck(&model, &checks, opts.threshold, opts.atol);
     print!("{text}");
     if ok {
         ExitCode::SUCCESS
@@ -417,7 +482,10 @@ fn read(path: &Path) -> Result<String, ExitCode> {
 
 fn print_diagnostics(name: &str, src: &str, diags: &[Diagnostic]) {
     if !diags.is_empty() {
-        eprint!("{}", render(name, src, diags, std::io::stderr().is_terminal()));
+        eprint!(
+            "{}",
+            render(name, src, diags, std::io::stderr().is_terminal())
+        );
     }
 }
 
@@ -434,7 +502,10 @@ fn check(files: &[PathBuf], json: bool) -> ExitCode {
             }
         }
     }
-    let checked: Vec<_> = sources.iter().map(|(_, src)| sinew::check_source(src)).collect();
+    let checked: Vec<_> = sources
+        .iter()
+        .map(|(_, src)| sinew::check_source(src))
+        .collect();
     for ((name, src), c) in sources.iter().zip(&checked) {
         let summary = FileSummary::new(name, c.model.as_ref(), &c.diagnostics);
         if !summary.ok {
@@ -465,7 +536,12 @@ fn check(files: &[PathBuf], json: bool) -> ExitCode {
     ExitCode::from(worst)
 }
 
-fn emit(file: &Path, output: Option<&Path>, unroll_below: usize, weights: Option<&Path>) -> ExitCode {
+fn emit(
+    file: &Path,
+    output: Option<&Path>,
+    unroll_below: usize,
+    weights: Option<&Path>,
+) -> ExitCode {
     let name = file.display().to_string();
     let src = match read(file) {
         Ok(s) => s,
@@ -476,7 +552,10 @@ fn emit(file: &Path, output: Option<&Path>, unroll_below: usize, weights: Option
     let Some(model) = checked.model else {
         return ExitCode::from(SPEC_ERROR);
     };
-    let baked = match weights.map(|p| workflow::load_weights(&model, p)).transpose() {
+    let baked = match weights
+        .map(|p| workflow::load_weights(&model, p))
+        .transpose()
+    {
         Ok(w) => w.as_ref().map(workflow::baked),
         Err(e) => return fail(&e),
     };
@@ -487,7 +566,6 @@ fn emit(file: &Path, output: Option<&Path>, unroll_below: usize, weights: Option
             .map(|f| f.to_string_lossy().into_owned())
             .unwrap_or_else(|| name.clone()),
         unroll_below,
-        ..Default::default()
     };
     let code = sinew::emit::generate(&model, &options);
     match output {
@@ -495,10 +573,12 @@ fn emit(file: &Path, output: Option<&Path>, unroll_below: usize, weights: Option
             print!("{code}");
             ExitCode::SUCCESS
         }
-        Some(out) => match ensure_parent(out).map(|()| sinew::fsutil::write_if_changed(out, code.as_bytes())) {
+        Some(out) => match ensure_parent(out)
+            .map(|()| sinew::fsutil::write_if_changed(out, code.as_bytes()))
+        {
             Err(code) => code,
             Ok(r) => match r {
-            Ok(_) => ExitCode::SUCCESS,
+                Ok(_) => ExitCode::SUCCESS,
                 Err(e) => {
                     eprintln!("error: cannot write {}: {e}", out.display());
                     ExitCode::from(IO_ERROR)

@@ -1,6 +1,6 @@
 //! Training curves as SVG or PNG (by the file extension), drawn with `plotters`.
 //!
-//! SVG needs no font. PNG text is drawn with the first TrueType font found: the file named by
+//! Text (in SVG and PNG alike) is laid out with the first TrueType font found: the file named by
 //! the `SINEW_FONT` environment variable, else a DejaVu or Liberation sans font in the usual
 //! system font folders; without one the PNG is drawn without text (and a note says so).
 
@@ -17,9 +17,18 @@ const FONT_CANDIDATES: &[&str] = &[
     "C:\\Windows\\Fonts\\arial.ttf",
 ];
 
+/// Registers a font once per process; true when one was found.
 fn register_font() -> bool {
+    static FOUND: std::sync::OnceLock<bool> = std::sync::OnceLock::new();
+    *FOUND.get_or_init(find_and_register_font)
+}
+
+fn find_and_register_font() -> bool {
     let env = std::env::var("SINEW_FONT").ok();
-    let candidates = env.iter().map(String::as_str).chain(FONT_CANDIDATES.iter().copied());
+    let candidates = env
+        .iter()
+        .map(String::as_str)
+        .chain(FONT_CANDIDATES.iter().copied());
     for path in candidates {
         if let Ok(bytes) = std::fs::read(path) {
             let leaked: &'static [u8] = Box::leak(bytes.into_boxed_slice());
@@ -31,28 +40,63 @@ fn register_font() -> bool {
     false
 }
 
+fn no_text(text: bool) -> Option<String> {
+    (!text).then(|| {
+        "no TrueType font found: the plot has no text (set SINEW_FONT to a .ttf file)".to_string()
+    })
+}
+
 /// Draws the training (and validation, when present) cost per epoch into `path`. The file is
 /// written to a temporary sibling and renamed into place. Returns a note for the user when the
 /// PNG had to be drawn without text.
-pub fn cost_curves(history: &[EpochReport], title: &str, path: &Path) -> Result<Option<String>, String> {
-    let ext = path.extension().and_then(|e| e.to_str()).unwrap_or("").to_ascii_lowercase();
+pub fn cost_curves(
+    history: &[EpochReport],
+    title: &str,
+    path: &Path,
+) -> Result<Option<String>, String> {
+    let ext = path
+        .extension()
+        .and_then(|e| e.to_str())
+        .unwrap_or("")
+        .to_ascii_lowercase();
     // The temporary file keeps the extension: the PNG encoder picks its format from it.
-    let stem = path.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_default();
+    let stem = path
+        .file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_default();
     let tmp = path.with_file_name(format!(".{stem}.{}.tmp.{ext}", std::process::id()));
     let result = match ext.as_str() {
-        "svg" => draw(SVGBackend::new(&tmp, (900, 560)).into_drawing_area(), history, title, true)
-            .map(|_| None),
+        "svg" => {
+            let text = register_font();
+            draw(
+                SVGBackend::new(&tmp, (900, 560)).into_drawing_area(),
+                history,
+                title,
+                text,
+            )
+            .map(|_| no_text(text))
+        }
         "png" => {
             let text = register_font();
-            draw(BitMapBackend::new(&tmp, (900, 560)).into_drawing_area(), history, title, text).map(|_| {
-                (!text).then(|| "no TrueType font found: the PNG has no text (set SINEW_FONT)".to_string())
-            })
+            draw(
+                BitMapBackend::new(&tmp, (900, 560)).into_drawing_area(),
+                history,
+                title,
+                text,
+            )
+            .map(|_| no_text(text))
         }
-        _ => return Err(format!("cannot plot to {}: use a .svg or .png file", path.display())),
+        _ => {
+            return Err(format!(
+                "cannot plot to {}: use a .svg or .png file",
+                path.display()
+            ))
+        }
     };
     match result {
         Ok(note) => {
-            std::fs::rename(&tmp, path).map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+            std::fs::rename(&tmp, path)
+                .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
             Ok(note)
         }
         Err(e) => {
@@ -73,20 +117,32 @@ where
 {
     let err = |e: DrawingAreaErrorKind<DB::ErrorType>| format!("cannot draw the plot: {e:?}");
     root.fill(&WHITE).map_err(err)?;
-    let train: Vec<(f64, f64)> = history.iter().map(|r| (f64::from(r.epoch), r.train_cost)).collect();
+    let train: Vec<(f64, f64)> = history
+        .iter()
+        .map(|r| (f64::from(r.epoch), r.train_cost))
+        .collect();
     let valid: Vec<(f64, f64)> = history
         .iter()
         .filter_map(|r| r.validation_cost.map(|v| (f64::from(r.epoch), v)))
         .collect();
-    let all = train.iter().chain(&valid).map(|p| p.1).filter(|v| v.is_finite());
-    let (lo, hi) = all.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| (a.min(v), b.max(v)));
+    let all = train
+        .iter()
+        .chain(&valid)
+        .map(|p| p.1)
+        .filter(|v| v.is_finite());
+    let (lo, hi) = all.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| {
+        (a.min(v), b.max(v))
+    });
     let (lo, hi) = if lo.is_finite() { (lo, hi) } else { (0.0, 1.0) };
     let pad = ((hi - lo) * 0.05).max(1e-12);
     let last = history.last().map_or(1.0, |r| f64::from(r.epoch.max(1)));
     let mut builder = ChartBuilder::on(&root);
     builder.margin(20);
     if text {
-        builder.caption(title, ("sans-serif", 24)).x_label_area_size(45).y_label_area_size(70);
+        builder
+            .caption(title, ("sans-serif", 24))
+            .x_label_area_size(45)
+            .y_label_area_size(70);
     }
     let mut chart = builder
         .build_cartesian_2d(0.0..last, (lo - pad).max(0.0)..hi + pad)
@@ -100,18 +156,29 @@ where
     mesh.draw().map_err(err)?;
     let blue = RGBColor(31, 119, 180);
     let orange = RGBColor(230, 120, 20);
-    let s = chart.draw_series(LineSeries::new(train, blue.stroke_width(2))).map_err(err)?;
+    let s = chart
+        .draw_series(LineSeries::new(train, blue.stroke_width(2)))
+        .map_err(err)?;
     if text {
-        s.label("training").legend(move |(x, y)| PathElement::new([(x, y), (x + 20, y)], blue));
+        s.label("training")
+            .legend(move |(x, y)| PathElement::new([(x, y), (x + 20, y)], blue));
     }
     if !valid.is_empty() {
-        let s = chart.draw_series(LineSeries::new(valid, orange.stroke_width(2))).map_err(err)?;
+        let s = chart
+            .draw_series(LineSeries::new(valid, orange.stroke_width(2)))
+            .map_err(err)?;
         if text {
-            s.label("validation").legend(move |(x, y)| PathElement::new([(x, y), (x + 20, y)], orange));
+            s.label("validation")
+                .legend(move |(x, y)| PathElement::new([(x, y), (x + 20, y)], orange));
         }
     }
     if text {
-        chart.configure_series_labels().border_style(BLACK).background_style(WHITE).draw().map_err(err)?;
+        chart
+            .configure_series_labels()
+            .border_style(BLACK)
+            .background_style(WHITE)
+            .draw()
+            .map_err(err)?;
     }
     root.present().map_err(err)
 }

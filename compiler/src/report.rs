@@ -92,17 +92,20 @@ impl Report {
             })
             .collect();
         let parameters: u64 = layers.iter().map(|l| l.parameters).sum();
-        let std_values = if model.input.standardize { model.input.width as u64 } else { 0 };
+        let std_values = if model.input.standardize {
+            model.input.width as u64
+        } else {
+            0
+        };
         let widths: u64 = layers.iter().map(|l| l.width as u64).sum();
         let out = model.output().width as u64;
         let optimizer_copies = match model.train.optimizer {
-            Optimizer::Sgd { momentum, .. } if momentum == 0.0 => 0,
+            Optimizer::Sgd { momentum: 0.0, .. } => 0,
             Optimizer::Sgd { .. } => 1,
             Optimizer::Adam { .. } => 2,
         };
         let inference_values = std_values + widths;
-        let training_values =
-            parameters * (2 + optimizer_copies) + inference_values + out + widths;
+        let training_values = parameters * (2 + optimizer_copies) + inference_values + out + widths;
         let macs_inference: u64 = layers.iter().map(|l| l.macs).sum();
         let macs_back: u64 = layers.iter().skip(1).map(|l| l.macs).sum();
         Report {
@@ -144,14 +147,23 @@ mod tests {
     use crate::ir::*;
 
     fn layer(name: &str, width: usize, fan_in: usize, activation: Activation) -> Layer {
-        Layer { name: name.into(), width, fan_in, activation }
+        Layer {
+            name: name.into(),
+            width,
+            fan_in,
+            activation,
+        }
     }
 
     fn net_6_10_8_3(scalar: Scalar, standardize: bool, optimizer: Optimizer) -> Model {
         Model {
             name: "pump_health".into(),
             scalar,
-            input: Input { name: "features".into(), width: 6, standardize },
+            input: Input {
+                name: "features".into(),
+                width: 6,
+                standardize,
+            },
             layers: vec![
                 layer("hidden1", 10, 6, Activation::Sigmoid),
                 layer("hidden2", 8, 10, Activation::Tanh),
@@ -162,12 +174,21 @@ mod tests {
             penalty: Penalty::L2(0.01),
             init: Init::Glorot,
             seed: 7,
-            train: Train { optimizer, batch: 32, epochs: 200 },
+            train: Train {
+                optimizer,
+                batch: 32,
+                epochs: 200,
+            },
             budget: Budget::default(),
         }
     }
 
-    const ADAM: Optimizer = Optimizer::Adam { rate: 0.001, beta1: 0.9, beta2: 0.999, epsilon: 1e-8 };
+    const ADAM: Optimizer = Optimizer::Adam {
+        rate: 0.001,
+        beta1: 0.9,
+        beta2: 0.999,
+        epsilon: 1e-8,
+    };
 
     #[test]
     fn parameters_of_6_10_8_3() {
@@ -199,7 +220,10 @@ mod tests {
 
     #[test]
     fn bytes_of_6_10_8_3_f64_plain_sgd() {
-        let sgd = Optimizer::Sgd { rate: 0.1, momentum: 0.0 };
+        let sgd = Optimizer::Sgd {
+            rate: 0.1,
+            momentum: 0.0,
+        };
         let r = Report::of(&net_6_10_8_3(Scalar::F64, false, sgd));
         // 185 * 8 B = 1480 B; no scaling
         assert_eq!(r.flash_bytes, 1480);
@@ -207,7 +231,10 @@ mod tests {
         assert_eq!(r.ram_inference_bytes, 168);
         // training: params + gradients 370 + 21 + 3 + 21 = 415 values * 8 B = 3320 B
         assert_eq!(r.ram_training_bytes, 3320);
-        let momentum = Optimizer::Sgd { rate: 0.1, momentum: 0.9 };
+        let momentum = Optimizer::Sgd {
+            rate: 0.1,
+            momentum: 0.9,
+        };
         let r = Report::of(&net_6_10_8_3(Scalar::F64, false, momentum));
         // one velocity copy more: 415 + 185 = 600 values * 8 B = 4800 B
         assert_eq!(r.ram_training_bytes, 4800);

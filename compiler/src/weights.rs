@@ -377,6 +377,14 @@ impl Weights {
     pub fn from_json(name: &str, text: &str) -> Result<Weights, WeightsError> {
         // First pass: only the tag and version, so a JSON file of another kind is named as such
         // instead of being reported as a missing field.
+        let start = text.trim_start();
+        if !start.is_empty() && !start.starts_with('{') {
+            return Err(WeightsError::new(
+                "F05",
+                name,
+                "not a sinew weights file: it does not start with `{`",
+            ));
+        }
         let head: Head = serde_json::from_str(text).map_err(|e| json_error(name, &e))?;
         match head.format {
             Some(serde_json::Value::String(f)) if f == FORMAT => {}
@@ -761,7 +769,10 @@ enum ScalarForm {
 }
 
 #[derive(Deserialize)]
-#[serde(deny_unknown_fields, expecting = "a layer object with `name`, `weights` and `bias`")]
+#[serde(
+    deny_unknown_fields,
+    expecting = "a layer object with `name`, `weights` and `bias`"
+)]
 struct LayerForm {
     name: String,
     weights: Vec<Vec<f64>>,
@@ -769,7 +780,10 @@ struct LayerForm {
 }
 
 #[derive(Deserialize)]
-#[serde(deny_unknown_fields, expecting = "null or an object with `mean` and `std`")]
+#[serde(
+    deny_unknown_fields,
+    expecting = "null or an object with `mean` and `std`"
+)]
 struct StandardizationForm {
     mean: Vec<f64>,
     std: Vec<f64>,

@@ -59,11 +59,16 @@ impl From<TrainError> for WorkflowError {
     }
 }
 
+/// Per layer: row-major weights and biases, widened to f64.
+type LayersF64 = Vec<(Vec<f64>, Vec<f64>)>;
+
 fn params_of<T: Real>(model: &Model, w: &Weights) -> Params<T> {
     let layers = w.layers_flat();
     let mut p = Params::<T>::from_f64(
         &layers,
-        w.standardization.as_ref().map(|s| (s.mean.as_slice(), s.std.as_slice())),
+        w.standardization
+            .as_ref()
+            .map(|s| (s.mean.as_slice(), s.std.as_slice())),
     );
     if model.input.standardize && p.mean.is_empty() {
         let z = Params::<T>::zeroed(model);
@@ -74,7 +79,11 @@ fn params_of<T: Real>(model: &Model, w: &Weights) -> Params<T> {
 }
 
 fn weights_of<T: Real>(model: &Model, p: &Params<T>, provenance: Option<Provenance>) -> Weights {
-    let scaling = if model.input.standardize { p.scaling_f64() } else { None };
+    let scaling = if model.input.standardize {
+        p.scaling_f64()
+    } else {
+        None
+    };
     Weights::from_params(model, p.layers_f64(), scaling, provenance)
 }
 
@@ -178,7 +187,9 @@ fn train_t<T: Real + Send + Sync>(
     let elapsed = start.elapsed();
     let net = Net::<T>::new(model);
     let train_eval = eval::evaluate(&net, &p, &ts.xs, &ts.ys, ts.labels.as_deref());
-    let validation = vs.as_ref().map(|v| eval::evaluate(&net, &p, &v.xs, &v.ys, v.labels.as_deref()));
+    let validation = vs
+        .as_ref()
+        .map(|v| eval::evaluate(&net, &p, &v.xs, &v.ys, v.labels.as_deref()));
     let provenance = Provenance {
         optimizer: summary.method.clone(),
         epochs: summary.history.len() as u64,
@@ -199,12 +210,21 @@ fn train_t<T: Real + Send + Sync>(
 /// Loads weights checked against the model.
 pub fn load_weights(model: &Model, path: &Path) -> Result<Weights, WorkflowError> {
     let w = Weights::load(path)?;
-    w.check_against(model)?;
+    w.check_against(model).map_err(|mut e| {
+        if e.file.is_empty() {
+            e.file = path.display().to_string();
+        }
+        e
+    })?;
     Ok(w)
 }
 
 /// Cost, accuracy and confusion matrix (classifiers) or MAE / RMSE (regressors) on a data file.
-pub fn evaluate(model: &Model, weights: &Weights, data: &Path) -> Result<eval::Evaluation, WorkflowError> {
+pub fn evaluate(
+    model: &Model,
+    weights: &Weights,
+    data: &Path,
+) -> Result<eval::Evaluation, WorkflowError> {
     let ds = data::read_csv(data, model)?;
     Ok(match model.scalar {
         Scalar::F32 => eval_t::<f32>(model, weights, &ds),
@@ -212,7 +232,11 @@ pub fn evaluate(model: &Model, weights: &Weights, data: &Path) -> Result<eval::E
     })
 }
 
-fn eval_t<T: Real + Send + Sync>(model: &Model, weights: &Weights, ds: &Dataset) -> eval::Evaluation {
+fn eval_t<T: Real + Send + Sync>(
+    model: &Model,
+    weights: &Weights,
+    ds: &Dataset,
+) -> eval::Evaluation {
     let p = params_of::<T>(model, weights);
     let s = samples::<T>(ds);
     eval::evaluate(&Net::new(model), &p, &s.xs, &s.ys, s.labels.as_deref())
@@ -220,7 +244,11 @@ fn eval_t<T: Real + Send + Sync>(model: &Model, weights: &Weights, ds: &Dataset)
 
 /// The batch cost J and its gradient over every sample of the data file, as JSON:
 /// `{"cost": J, "samples": m, "gradients": {"<layer>": {"weights": [[..]], "bias": [..]}}}`.
-pub fn gradient_json(model: &Model, weights: &Weights, data: &Path) -> Result<serde_json::Value, WorkflowError> {
+pub fn gradient_json(
+    model: &Model,
+    weights: &Weights,
+    data: &Path,
+) -> Result<serde_json::Value, WorkflowError> {
     let ds = data::read_csv(data, model)?;
     let (cost, grad) = match model.scalar {
         Scalar::F32 => grad_t::<f32>(model, weights, &ds),
@@ -229,12 +257,19 @@ pub fn gradient_json(model: &Model, weights: &Weights, data: &Path) -> Result<se
     let mut layers = serde_json::Map::new();
     for (l, (w, b)) in model.layers.iter().zip(grad) {
         let rows: Vec<Vec<f64>> = w.chunks(l.fan_in.max(1)).map(<[f64]>::to_vec).collect();
-        layers.insert(l.name.clone(), serde_json::json!({ "weights": rows, "bias": b }));
+        layers.insert(
+            l.name.clone(),
+            serde_json::json!({ "weights": rows, "bias": b }),
+        );
     }
     Ok(serde_json::json!({ "cost": cost, "samples": ds.inputs.len(), "gradients": layers }))
 }
 
-fn grad_t<T: Real + Send + Sync>(model: &Model, weights: &Weights, ds: &Dataset) -> (f64, Vec<(Vec<f64>, Vec<f64>)>) {
+fn grad_t<T: Real + Send + Sync>(
+    model: &Model,
+    weights: &Weights,
+    ds: &Dataset,
+) -> (f64, LayersF64) {
     let p = params_of::<T>(model, weights);
     let s = samples::<T>(ds);
     let net = Net::new(model);
@@ -248,8 +283,10 @@ fn grad_t<T: Real + Send + Sync>(model: &Model, weights: &Weights, ds: &Dataset)
 pub struct GradcheckOptions {
     /// Finite-difference step.
     pub step: f64,
-    /// Largest worst relative error that passes.
+    /// Relative tolerance.
     pub threshold: f64,
+    /// Absolute tolerance (noise floor of the difference quotient).
+    pub atol: f64,
     /// At most this many parameters per layer (drawn at random beyond it).
     pub max_per_layer: usize,
     /// Samples drawn when no data file is given.
@@ -260,7 +297,14 @@ pub struct GradcheckOptions {
 
 impl Default for GradcheckOptions {
     fn default() -> Self {
-        GradcheckOptions { step: 1e-5, threshold: 1e-6, max_per_layer: 200, samples: 8, seed: 1 }
+        GradcheckOptions {
+            step: 1e-5,
+            threshold: 1e-6,
+            atol: 1e-9,
+            max_per_layer: 200,
+            samples: 8,
+            seed: 1,
+        }
     }
 }
 
@@ -284,7 +328,20 @@ pub fn gradcheck(
         }
         None => drawn_samples(model, opts.samples, opts.seed),
     };
-    Ok(gradcheck::check(model, &p, &xs, &ys, opts.step, opts.max_per_layer, opts.seed))
+    let tol = gradcheck::Tolerance {
+        rtol: opts.threshold,
+        atol: opts.atol,
+    };
+    Ok(gradcheck::check(
+        model,
+        &p,
+        &xs,
+        &ys,
+        opts.step,
+        tol,
+        opts.max_per_layer,
+        opts.seed,
+    ))
 }
 
 fn drawn_samples(model: &Model, m: usize, seed: u64) -> (Vec<f64>, Vec<f64>) {

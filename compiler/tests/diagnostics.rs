@@ -25,7 +25,10 @@ fn spec_files(dir: &str) -> Vec<PathBuf> {
 }
 
 fn file_name(path: &Path) -> String {
-    path.file_name().expect("file name").to_string_lossy().into_owned()
+    path.file_name()
+        .expect("file name")
+        .to_string_lossy()
+        .into_owned()
 }
 
 #[test]
@@ -39,15 +42,26 @@ fn bad_specs_render_as_reviewed() {
 #[test]
 fn every_bad_spec_has_an_error_with_a_location() {
     let files = spec_files("tests/bad");
-    assert!(files.len() >= 30, "the bad corpus has {} files", files.len());
+    assert!(
+        files.len() >= 30,
+        "the bad corpus has {} files",
+        files.len()
+    );
     for path in files {
         let src = std::fs::read_to_string(&path).expect("read bad spec");
         let checked = sinew::check_source(&src);
         assert!(checked.has_errors(), "{} produced no error", path.display());
-        assert!(checked.model.is_none(), "{} produced a model", path.display());
+        assert!(
+            checked.model.is_none(),
+            "{} produced a model",
+            path.display()
+        );
         let name = file_name(&path);
         let text = rendered(&name, &src);
-        assert!(text.contains(&format!("{name}:")), "{name}: no location in\n{text}");
+        assert!(
+            text.contains(&format!("{name}:")),
+            "{name}: no location in\n{text}"
+        );
         for d in &checked.diagnostics {
             assert!(d.help.is_some(), "{name}: {} has no help", d.code);
         }
@@ -83,12 +97,24 @@ fn every_documented_error_code_is_exercised_by_the_corpus() {
         }
     }
     let documented = documented_codes();
-    assert!(documented.len() >= 40, "only {} codes documented", documented.len());
-    for code in documented.iter().filter(|c| c.starts_with('S')) {
+    assert!(
+        documented.len() >= 40,
+        "only {} codes documented",
+        documented.len()
+    );
+    // S0100 (too many problems) needs over a hundred errors; `too_many_problems_are_capped`
+    // covers it.
+    for code in documented
+        .iter()
+        .filter(|c| c.starts_with('S') && *c != "S0100")
+    {
         assert!(seen.contains(code), "no bad spec produces {code}");
     }
     for code in &seen {
-        assert!(documented.contains(code), "{code} is not in grammar/REFERENCE.md");
+        assert!(
+            documented.contains(code),
+            "{code} is not in grammar/REFERENCE.md"
+        );
     }
 }
 
@@ -99,7 +125,12 @@ fn samples_check_clean_and_dump_as_reviewed() {
     for path in samples {
         let src = std::fs::read_to_string(&path).expect("read sample");
         let checked = sinew::check_source(&src);
-        assert!(checked.diagnostics.is_empty(), "{}:\n{}", path.display(), rendered("s", &src));
+        assert!(
+            checked.diagnostics.is_empty(),
+            "{}:\n{}",
+            path.display(),
+            rendered("s", &src)
+        );
         let model = checked.model.expect("a sample yields a model");
         insta::assert_snapshot!(
             format!("sample_{}", file_name(&path).trim_end_matches(".sinew")),
@@ -114,10 +145,31 @@ const BASE: &str = "model pump_health\ninput features 6\n";
 fn warning_case(name: &str, body: &str) {
     let src = format!("{BASE}{body}");
     let checked = sinew::check_source(&src);
-    assert!(checked.model.is_some(), "{name}: warnings must not reject the spec");
-    assert!(!checked.diagnostics.is_empty(), "{name}: expected a warning");
-    assert!(checked.diagnostics.iter().all(|d| d.severity == Severity::Warning));
+    assert!(
+        checked.model.is_some(),
+        "{name}: warnings must not reject the spec"
+    );
+    assert!(
+        !checked.diagnostics.is_empty(),
+        "{name}: expected a warning"
+    );
+    assert!(checked
+        .diagnostics
+        .iter()
+        .all(|d| d.severity == Severity::Warning));
     insta::assert_snapshot!(name, rendered(&format!("{name}.sinew"), &src));
+}
+
+#[test]
+fn too_many_problems_are_capped() {
+    // Each line has two errors: a name that is not lower_snake and a width of 0.
+    let src = "layer Hidden 0 relu\n".repeat(60);
+    let d = sinew::check_source(&src).diagnostics;
+    assert_eq!(d.len(), sinew::check::MAX_DIAGNOSTICS + 1);
+    let last = d.last().expect("capped list");
+    assert_eq!(last.code, "S0100");
+    // 60 lines * 2 errors + 4 missing sections = 124 findings; 100 shown.
+    assert_eq!(last.message, "24 more problems are not shown");
 }
 
 #[test]
@@ -139,6 +191,25 @@ fn warnings_accompany_a_model() {
         "warn_zero_penalty",
         "output state 3 softmax\nloss cross_entropy\npenalty l1 0\n",
     );
+}
+
+#[test]
+fn every_documented_warning_is_exercised() {
+    let cases = [
+        "output state 3 softmax\nloss squared_error\n",
+        "layer h1 8 sigmoid\nlayer h2 8 sigmoid\nlayer h3 8 sigmoid\nlayer h4 8 sigmoid\n\
+         layer h5 8 sigmoid\noutput state 3 softmax\nloss cross_entropy\n",
+        "output state 3 softmax\nloss cross_entropy\ntrain adam rate 0.001 batch 4096\n",
+        "output state 3 softmax\nloss cross_entropy\npenalty l2 0\n",
+    ];
+    let seen: Vec<String> = cases
+        .iter()
+        .flat_map(|body| sinew::check_source(&format!("{BASE}{body}")).diagnostics)
+        .map(|d| d.code.to_string())
+        .collect();
+    for code in documented_codes().iter().filter(|c| c.starts_with('W')) {
+        assert!(seen.contains(code), "no case produces {code}");
+    }
 }
 
 #[test]
@@ -165,7 +236,10 @@ fn defaults_come_from_the_ir() {
     let model = sinew::check_source(&src).model.expect("valid");
     assert_eq!(
         model.train.optimizer,
-        sinew::ir::Optimizer::Sgd { rate: 0.1, momentum: sinew::ir::defaults::MOMENTUM }
+        sinew::ir::Optimizer::Sgd {
+            rate: 0.1,
+            momentum: sinew::ir::defaults::MOMENTUM
+        }
     );
     assert_eq!(model.train.batch, sinew::ir::defaults::TRAIN.batch);
     assert_eq!(model.train.epochs, sinew::ir::defaults::TRAIN.epochs);
@@ -179,7 +253,10 @@ fn numbers_in_exponent_form_and_every_option() {
          train adam rate 1e-3 beta1 0.8 beta2 0.99 batch 8 epochs 3\nbudget ram 1 MiB\n"
     );
     let m = sinew::check_source(&src).model.expect("valid");
-    assert_eq!(m.layers[0].activation, sinew::ir::Activation::LeakyRelu(0.01));
+    assert_eq!(
+        m.layers[0].activation,
+        sinew::ir::Activation::LeakyRelu(0.01)
+    );
     assert_eq!(m.penalty, sinew::ir::Penalty::L2(5e-4));
     assert_eq!(m.init, sinew::ir::Init::Uniform { eps: 0.5 });
     assert_eq!(m.seed, u64::MAX);
@@ -193,7 +270,13 @@ fn numbers_in_exponent_form_and_every_option() {
         }
     );
     assert_eq!((m.train.batch, m.train.epochs), (8, 3));
-    assert_eq!(m.budget, sinew::ir::Budget { flash: None, ram: Some(1024 * 1024) });
+    assert_eq!(
+        m.budget,
+        sinew::ir::Budget {
+            flash: None,
+            ram: Some(1024 * 1024)
+        }
+    );
 }
 
 #[test]
@@ -203,7 +286,11 @@ fn a_budget_that_is_exactly_met_passes() {
     let src = "model gate\ninput x 2\noutput y 1 sigmoid\nloss cross_entropy\nbudget flash 12 B ram 4 B\n";
     assert!(sinew::check_source(src).diagnostics.is_empty());
     let src = "model gate\ninput x 2\noutput y 1 sigmoid\nloss cross_entropy\nbudget flash 11 B ram 3 B\n";
-    let codes: Vec<_> = sinew::check_source(src).diagnostics.iter().map(|d| d.code).collect();
+    let codes: Vec<_> = sinew::check_source(src)
+        .diagnostics
+        .iter()
+        .map(|d| d.code)
+        .collect();
     assert_eq!(codes, ["S0701", "S0702"]);
 }
 

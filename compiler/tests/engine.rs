@@ -9,7 +9,11 @@ use sinew_runtime::rng::SplitMix64;
 
 fn model(src: &str) -> Model {
     let c = sinew::check_source(src);
-    assert!(c.diagnostics.iter().all(|d| !d.is_error()), "{:?}", c.diagnostics);
+    assert!(
+        c.diagnostics.iter().all(|d| !d.is_error()),
+        "{:?}",
+        c.diagnostics
+    );
     c.model.expect("spec checks")
 }
 
@@ -32,7 +36,11 @@ fn drawn(model: &Model, m: usize, seed: u64) -> (Vec<f64>, Vec<f64>) {
 }
 
 fn bits(p: &Params<f32>) -> Vec<u32> {
-    p.layers.iter().flat_map(|l| l.weights.iter().chain(&l.bias)).map(|v| v.to_bits()).collect()
+    p.layers
+        .iter()
+        .flat_map(|l| l.weights.iter().chain(&l.bias))
+        .map(|v| v.to_bits())
+        .collect()
 }
 
 #[test]
@@ -46,7 +54,10 @@ fn parallel_batch_gradient_equals_sequential_loop_bitwise() {
     let mut g_seq = Params::zero_gradient(&m);
     let c_seq = batch::gradient_sequential(&net, &p, &xs, &ys, &mut g_seq).unwrap();
     let run = |threads: usize| {
-        let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap();
         pool.install(|| {
             let mut g = Params::zero_gradient(&m);
             let c = batch::gradient_into(&net, &p, &xs, &ys, &mut g).unwrap();
@@ -60,7 +71,10 @@ fn parallel_batch_gradient_equals_sequential_loop_bitwise() {
     assert_eq!(bits(&g_seq), bits(&g1));
     assert_eq!(bits(&g1), bits(&g2));
     // The parallel cost equals the plain per-sample cost too.
-    assert_eq!(batch::cost(&net, &p, &xs, &ys).to_bits(), net.cost(&p, &xs, &ys).to_bits());
+    assert_eq!(
+        batch::cost(&net, &p, &xs, &ys).to_bits(),
+        net.cost(&p, &xs, &ys).to_bits()
+    );
 }
 
 #[test]
@@ -99,10 +113,23 @@ fn gradient_matches_central_differences_for_every_activation_and_penalty() {
         }
         let (xs, ys) = drawn(&m, 6, 4);
         // One-unit outputs get alternating 0/1 targets.
-        let ys: Vec<f64> = if m.output().width == 1 { (0..6).map(|i| (i % 2) as f64).collect() } else { ys };
-        let checks = gradcheck::check(&m, &p, &xs, &ys, 1e-5, 1000, 1);
+        let ys: Vec<f64> = if m.output().width == 1 {
+            (0..6).map(|i| (i % 2) as f64).collect()
+        } else {
+            ys
+        };
+        let tol = gradcheck::Tolerance {
+            rtol: 1e-7,
+            atol: 1e-10,
+        };
+        let checks = gradcheck::check(&m, &p, &xs, &ys, 1e-5, tol, 1000, 1);
         for c in checks {
-            assert!(c.worst_relative_error < 1e-7, "{}: layer {} worst {} at {}", m.name, c.layer, c.worst_relative_error, c.worst_at);
+            assert_eq!(
+                c.failures, 0,
+                "{}: layer {} worst {} at {}",
+                m.name, c.layer, c.worst_relative_error, c.worst_at
+            );
+            assert_eq!(c.checked, c.total);
         }
     }
 }
@@ -111,7 +138,12 @@ fn gradient_matches_central_differences_for_every_activation_and_penalty() {
 fn training_lowers_the_cost_with_every_method() {
     let m = model("model gate\nscalar f64\ninput x 2\nlayer h 4 tanh\noutput y 1 sigmoid\nloss cross_entropy\ninit uniform 1.0 seed 3\ntrain sgd rate 0.5 batch 4 epochs 300\n");
     // Exclusive-or truth table (common practice as the smallest non-linearly-separable case).
-    let inputs = vec![vec![0.0, 0.0], vec![0.0, 1.0], vec![1.0, 0.0], vec![1.0, 1.0]];
+    let inputs = vec![
+        vec![0.0, 0.0],
+        vec![0.0, 1.0],
+        vec![1.0, 0.0],
+        vec![1.0, 1.0],
+    ];
     let targets = vec![vec![0.0], vec![1.0], vec![1.0], vec![0.0]];
     let data = Samples::<f64>::from_rows(&inputs, &targets, Some(&[0, 1, 1, 0]));
     let net = Net::<f64>::new(&m);
@@ -120,30 +152,68 @@ fn training_lowers_the_cost_with_every_method() {
     let methods = [
         None,
         Some(Method::GradientDescent { rate: 0.5 }),
-        Some(Method::MiniBatch(sinew::ir::Optimizer::Adam { rate: 0.05, beta1: 0.9, beta2: 0.999, epsilon: 1e-8 })),
+        Some(Method::MiniBatch(sinew::ir::Optimizer::Adam {
+            rate: 0.05,
+            beta1: 0.9,
+            beta2: 0.999,
+            epsilon: 1e-8,
+        })),
         Some(Method::Lbfgs { memory: 7 }),
     ];
     for method in methods {
         let mut p = start.clone();
-        let opts = TrainOptions { method, epochs: Some(if method.is_some_and(|m| matches!(m, Method::Lbfgs { .. })) { 60 } else { 300 }), ..Default::default() };
+        let opts = TrainOptions {
+            method,
+            epochs: Some(
+                if method.is_some_and(|m| matches!(m, Method::Lbfgs { .. })) {
+                    60
+                } else {
+                    300
+                },
+            ),
+            ..Default::default()
+        };
         let mut seen = 0;
         let s = train(&m, &mut p, &data, None, &opts, &mut |_| seen += 1).unwrap();
         let after = net.cost(&p, &data.xs, &data.ys);
         assert!(seen > 0 && seen == s.history.len());
-        assert!(after < before * 0.5, "{}: cost {before} -> {after}", s.method);
+        assert!(
+            after < before * 0.5,
+            "{}: cost {before} -> {after}",
+            s.method
+        );
     }
 }
 
 #[test]
 fn divergence_is_reported_with_its_epoch() {
     let m = model("model big\nscalar f32\ninput x 2\nlayer h 8 relu\noutput y 1 identity\nloss squared_error\ntrain sgd rate 1e30 batch 2 epochs 5\n");
-    let inputs = vec![vec![1.0, 2.0], vec![3.0, -1.0], vec![0.5, 0.5], vec![-2.0, 1.0]];
+    let inputs = vec![
+        vec![1.0, 2.0],
+        vec![3.0, -1.0],
+        vec![0.5, 0.5],
+        vec![-2.0, 1.0],
+    ];
     let targets = vec![vec![10.0], vec![-7.0], vec![3.0], vec![1.0]];
     let data = Samples::<f32>::from_rows(&inputs, &targets, None);
     let mut p = Params::<f32>::init(&m, 1);
     let before = p.clone();
-    let err = train(&m, &mut p, &data, None, &TrainOptions::default(), &mut |_| {}).unwrap_err();
-    assert!(matches!(err, sinew::engine::train::TrainError::Diverged { epoch: 1, .. }), "{err:?}");
+    let err = train(
+        &m,
+        &mut p,
+        &data,
+        None,
+        &TrainOptions::default(),
+        &mut |_| {},
+    )
+    .unwrap_err();
+    assert!(
+        matches!(
+            err,
+            sinew::engine::train::TrainError::Diverged { epoch: 1, .. }
+        ),
+        "{err:?}"
+    );
     assert!(err.to_string().contains("smaller rate"));
     assert_eq!(p, before, "parameters are untouched on divergence");
 }

@@ -87,7 +87,7 @@ const F64_CASES: [f64; 14] = [
     5e-324,
     -2.225073858507201e-308,
     f64::EPSILON,
-    9007199254740992.0, // 2^53
+    9007199254740992.0,  // 2^53
     0.30000000000000004, // 0.1 + 0.2
 ];
 
@@ -377,11 +377,15 @@ fn damaged_files_are_refused_with_their_place() {
     ");
     insta::assert_snapshot!(read_error(&good.replacen("0.25", "1e999", 1)), @"w.json:11:14: error[F06]: a number is too large for an f64 (it would be infinite)");
     insta::assert_snapshot!(read_error(&good.replace("\"bias\"", "\"biases\"")), @"w.json:15:14: error[F04]: not a weights file of version 1: unknown field `biases`, expected one of `name`, `weights`, `bias`");
-    insta::assert_snapshot!(read_error("[1, 2]"), @"");
-    insta::assert_snapshot!(read_error(&good.replace("\"scalar\": \"f64\"", "\"scalar\": \"f16\"")), @"");
-    let one_layer_a_number = good.replacen("    {\n      \"name\": \"hidden\"", "    3, {\n      \"name\": \"hidden\"", 1);
-    insta::assert_snapshot!(read_error(&one_layer_a_number), @"");
-    insta::assert_snapshot!(read_error(&good.replace("\"standardization\": null", "\"standardization\": 1")), @"");
+    insta::assert_snapshot!(read_error("[1, 2]"), @"w.json: error[F05]: not a sinew weights file: it does not start with `{`");
+    insta::assert_snapshot!(read_error(&good.replace("\"scalar\": \"f64\"", "\"scalar\": \"f16\"")), @"w.json:6:17: error[F04]: not a weights file of version 1: unknown variant `f16`, expected `f32` or `f64`");
+    let one_layer_a_number = good.replacen(
+        "    {\n      \"name\": \"hidden\"",
+        "    3, {\n      \"name\": \"hidden\"",
+        1,
+    );
+    insta::assert_snapshot!(read_error(&one_layer_a_number), @"w.json:8:5: error[F04]: not a weights file of version 1: invalid type: integer `3`, expected a layer object with `name`, `weights` and `bias`");
+    insta::assert_snapshot!(read_error(&good.replace("\"standardization\": null", "\"standardization\": 1")), @"w.json:25:22: error[F04]: not a weights file of version 1: invalid type: integer `1`, expected null or an object with `mean` and `std`");
     let fp = format!("{:016x}", model.fingerprint());
     insta::assert_snapshot!(read_error(&good.replace(&fp, "12345")), @"w.json: error[F05]: fingerprint `12345` is not 16 hex digits");
 }

@@ -43,12 +43,17 @@ fn bytes(size: &Size, what: &str, diags: &mut Vec<Diagnostic>) -> Option<u64> {
 
 /// Reads the limits; the default is no limit.
 pub(crate) fn limits(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Option<Budget> {
-    let Some(b) = parts.budget else { return Some(Budget::default()) };
+    let Some(b) = parts.budget else {
+        return Some(Budget::default());
+    };
     let flash = b.flash.map(|s| bytes(s, "flash", diags));
     let ram = b.ram.map(|s| bytes(s, "ram", diags));
     match (flash, ram) {
         (Some(None), _) | (_, Some(None)) => None,
-        (f, r) => Some(Budget { flash: f.flatten(), ram: r.flatten() }),
+        (f, r) => Some(Budget {
+            flash: f.flatten(),
+            ram: r.flatten(),
+        }),
     }
 }
 
@@ -76,7 +81,12 @@ fn enough(n: u64) -> String {
 pub(crate) fn check(model: &Model, parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) {
     let Some(b) = parts.budget else { return };
     let report = Report::of(model);
-    let decls: Vec<_> = parts.layers.iter().copied().chain(parts.output.map(|o| o.layer)).collect();
+    let decls: Vec<_> = parts
+        .layers
+        .iter()
+        .copied()
+        .chain(parts.output.map(|o| o.layer))
+        .collect();
     let scalar = model.scalar.rust_name();
     let sb = report.scalar_bytes;
 
@@ -92,15 +102,27 @@ pub(crate) fn check(model: &Model, parts: &Parts<'_>, diags: &mut Vec<Diagnostic
                 size.span,
             )
             .label(format!("budget of {}", figure(limit)));
-            let biggest = report.layers.iter().zip(&decls).max_by_key(|(l, _)| l.parameters);
-            if let Some((l, d_) ) = biggest {
+            let biggest = report
+                .layers
+                .iter()
+                .zip(&decls)
+                .max_by_key(|(l, _)| l.parameters);
+            if let Some((l, d_)) = biggest {
                 d = d.with_secondary(
                     d_.width.span,
-                    format!("layer `{}` holds {} parameters: {}", l.name, l.parameters, human_bytes(l.parameters * sb)),
+                    format!(
+                        "layer `{}` holds {} parameters: {}",
+                        l.name,
+                        l.parameters,
+                        human_bytes(l.parameters * sb)
+                    ),
                 );
             }
             let scaling = if report.scaling_bytes > 0 {
-                format!(" plus the input's mean and std ({} values)", report.scaling_bytes / sb)
+                format!(
+                    " plus the input's mean and std ({} values)",
+                    report.scaling_bytes / sb
+                )
             } else {
                 String::new()
             };
@@ -125,15 +147,27 @@ pub(crate) fn check(model: &Model, parts: &Parts<'_>, diags: &mut Vec<Diagnostic
                 size.span,
             )
             .label(format!("budget of {}", figure(limit)));
-            let widest = report.layers.iter().zip(&decls).max_by_key(|(l, _)| l.width);
+            let widest = report
+                .layers
+                .iter()
+                .zip(&decls)
+                .max_by_key(|(l, _)| l.width);
             if let Some((l, d_)) = widest {
                 d = d.with_secondary(
                     d_.width.span,
-                    format!("layer `{}` keeps {} values: {}", l.name, l.width, human_bytes(l.width as u64 * sb)),
+                    format!(
+                        "layer `{}` keeps {} values: {}",
+                        l.name,
+                        l.width,
+                        human_bytes(l.width as u64 * sb)
+                    ),
                 );
             }
             let std = if model.input.standardize {
-                format!(" plus the standardized input ({} values)", model.input.width)
+                format!(
+                    " plus the standardized input ({} values)",
+                    model.input.width
+                )
             } else {
                 String::new()
             };

@@ -76,13 +76,17 @@ pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnost
 
     if is_softmax && out_width == Some(1) {
         diags.push(
-            Diagnostic::error("S0502", format!("softmax output `{}` has 1 unit", out.name.node), out.width.span)
-                .label("softmax needs at least 2 units")
-                .with_secondary(out.activation.span, "softmax here")
-                .with_help(
-                    "for a yes/no output use one `sigmoid` unit (with `loss cross_entropy`), or \
+            Diagnostic::error(
+                "S0502",
+                format!("softmax output `{}` has 1 unit", out.name.node),
+                out.width.span,
+            )
+            .label("softmax needs at least 2 units")
+            .with_secondary(out.activation.span, "softmax here")
+            .with_help(
+                "for a yes/no output use one `sigmoid` unit (with `loss cross_entropy`), or \
                      give softmax one unit per class",
-                ),
+            ),
         );
     }
 
@@ -119,12 +123,17 @@ pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnost
         }
     }
 
-    let Some(classes) = output.classes else { return };
+    let Some(classes) = output.classes else {
+        return;
+    };
     if let Some(loss) = loss.filter(|l| l.node == LossKind::SquaredError) {
         diags.push(
             Diagnostic::error(
                 "S0505",
-                format!("output `{}` lists classes, but the loss is squared_error", out.name.node),
+                format!(
+                    "output `{}` lists classes, but the loss is squared_error",
+                    out.name.node
+                ),
                 classes.span,
             )
             .label("classes")
@@ -151,14 +160,23 @@ pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnost
             let units = if width == 1 { "unit" } else { "units" };
             (
                 format!("output `{}` has {width} {units} here", out.name.node),
-                format!("list one class name per output unit ({width}), or change the width to {found}"),
+                format!(
+                    "list one class name per output unit ({width}), or change the width to {found}"
+                ),
             )
         };
         diags.push(
-            Diagnostic::error("S0504", format!("expected {expected} class names, found {found}"), classes.span)
-                .label(format!("{found} {}", if found == 1 { "name" } else { "names" }))
-                .with_secondary(out.width.span, secondary)
-                .with_help(help),
+            Diagnostic::error(
+                "S0504",
+                format!("expected {expected} class names, found {found}"),
+                classes.span,
+            )
+            .label(format!(
+                "{found} {}",
+                if found == 1 { "name" } else { "names" }
+            ))
+            .with_secondary(out.width.span, secondary)
+            .with_help(help),
         );
     }
 }

@@ -52,11 +52,45 @@ impl Checked {
 /// ```
 pub fn check_source(src: &str) -> Checked {
     let (spec, mut diagnostics) = crate::syntax::parse(src);
-    let checked = check(&spec);
+    let checked = check_all(&spec);
     diagnostics.extend(checked.diagnostics);
     diagnostics.sort_by_key(|d| d.primary.span.start);
-    let model = if diagnostics.iter().any(Diagnostic::is_error) { None } else { checked.model };
-    Checked { model, diagnostics }
+    let model = if diagnostics.iter().any(Diagnostic::is_error) {
+        None
+    } else {
+        checked.model
+    };
+    Checked {
+        model,
+        diagnostics: cap(diagnostics),
+    }
+}
+
+/// At most this many findings are reported; a final `S0100` says that more were left out.
+pub const MAX_DIAGNOSTICS: usize = 100;
+
+/// Keeps the first [`MAX_DIAGNOSTICS`] findings (so that a pathological file cannot produce
+/// gigabytes of output) and says how many more there were.
+fn cap(mut diags: Vec<Diagnostic>) -> Vec<Diagnostic> {
+    if diags.len() <= MAX_DIAGNOSTICS {
+        return diags;
+    }
+    let rest = diags.split_off(MAX_DIAGNOSTICS);
+    let at = rest[0].primary.span;
+    let message = match rest.len() {
+        1 => "1 more problem is not shown".to_string(),
+        n => format!("{n} more problems are not shown"),
+    };
+    let note = if rest.iter().any(Diagnostic::is_error) {
+        Diagnostic::error("S0100", message, at)
+    } else {
+        Diagnostic::warning("S0100", message, at)
+    };
+    diags.push(
+        note.label("the next one is here")
+            .with_help(format!("fix the first {MAX_DIAGNOSTICS} and check again")),
+    );
+    diags
 }
 
 /// Checks a parsed spec. A spec holding lines with syntax errors ([`Item::Invalid`]) never
@@ -70,6 +104,15 @@ pub fn check_source(src: &str) -> Checked {
 /// assert_eq!(codes, ["S0204", "S0502"]); // no `loss` line; softmax needs 2 units
 /// ```
 pub fn check(spec: &Spec) -> Checked {
+    let checked = check_all(spec);
+    Checked {
+        model: checked.model,
+        diagnostics: cap(checked.diagnostics),
+    }
+}
+
+/// [`check`] without the cap on the number of findings.
+fn check_all(spec: &Spec) -> Checked {
     let mut diags = Vec::new();
     let parts = sections(spec, &mut diags);
     names::check(&parts, &mut diags);
@@ -90,7 +133,10 @@ pub fn check(spec: &Spec) -> Checked {
     if diags.iter().any(Diagnostic::is_error) {
         model = None;
     }
-    Checked { model, diagnostics: diags }
+    Checked {
+        model,
+        diagnostics: diags,
+    }
 }
 
 /// The input line's parts.
@@ -150,15 +196,21 @@ fn sections<'a>(spec: &'a Spec, diags: &mut Vec<Diagnostic>) -> Parts<'a> {
         if let Item::Invalid { .. } = stmt.item {
             parts.has_invalid = true;
         }
-        let Some(section) = stmt.item.section() else { continue };
+        let Some(section) = stmt.item.section() else {
+            continue;
+        };
         let kw = section.keyword();
         if section != Section::Layer {
             if let Some(&(_, prev)) = first.iter().find(|(s, _)| *s == section) {
                 diags.push(
-                    Diagnostic::error("S0205", format!("the spec has a second `{kw}` line"), stmt.keyword)
-                        .label("second one")
-                        .with_secondary(prev, "first one")
-                        .with_help(format!("a spec has at most one `{kw}` line; remove one")),
+                    Diagnostic::error(
+                        "S0205",
+                        format!("the spec has a second `{kw}` line"),
+                        stmt.keyword,
+                    )
+                    .label("second one")
+                    .with_secondary(prev, "first one")
+                    .with_help(format!("a spec has at most one `{kw}` line; remove one")),
                 );
                 continue;
             }
@@ -186,28 +238,52 @@ fn sections<'a>(spec: &'a Spec, diags: &mut Vec<Diagnostic>) -> Parts<'a> {
         match &stmt.item {
             Item::Model { name } => parts.model = Some(name),
             Item::Scalar { kind } => parts.scalar = Some(kind),
-            Item::Input { name, width, standardize } => {
-                parts.input = Some(InputPart { name, width, standardize: standardize.is_some() })
+            Item::Input {
+                name,
+                width,
+                standardize,
+            } => {
+                parts.input = Some(InputPart {
+                    name,
+                    width,
+                    standardize: standardize.is_some(),
+                })
             }
             Item::Layer(layer) => parts.layers.push(layer),
             Item::Output { layer, classes } => {
-                parts.output = Some(OutputPart { layer, classes: classes.as_ref() })
+                parts.output = Some(OutputPart {
+                    layer,
+                    classes: classes.as_ref(),
+                })
             }
             Item::Loss { kind } => parts.loss = Some(kind),
             Item::Penalty { kind } => parts.penalty = Some(kind),
             Item::Init { kind, seed } => parts.init = Some((kind, seed.as_ref())),
-            Item::Train { optimizer, batch, epochs } => {
-                parts.train =
-                    Some(TrainPart { optimizer, batch: batch.as_ref(), epochs: epochs.as_ref() })
+            Item::Train {
+                optimizer,
+                batch,
+                epochs,
+            } => {
+                parts.train = Some(TrainPart {
+                    optimizer,
+                    batch: batch.as_ref(),
+                    epochs: epochs.as_ref(),
+                })
             }
             Item::Budget { flash, ram } => {
-                parts.budget = Some(BudgetPart { flash: flash.as_ref(), ram: ram.as_ref() })
+                parts.budget = Some(BudgetPart {
+                    flash: flash.as_ref(),
+                    ram: ram.as_ref(),
+                })
             }
             Item::Invalid { .. } => {}
         }
     }
 
-    let model_at = first.iter().find(|(s, _)| *s == Section::Model).map(|&(_, at)| at);
+    let model_at = first
+        .iter()
+        .find(|(s, _)| *s == Section::Model)
+        .map(|&(_, at)| at);
     let first_statement = spec.statements.first().map(|s| s.keyword);
     let anchor = model_at.or(first_statement).unwrap_or_default();
     let missing = [
@@ -237,9 +313,13 @@ fn sections<'a>(spec: &'a Spec, diags: &mut Vec<Diagnostic>) -> Parts<'a> {
             _ => String::new(),
         };
         diags.push(
-            Diagnostic::error(code, format!("the spec has no `{}` line", section.keyword()), anchor)
-                .label(label)
-                .with_help(help),
+            Diagnostic::error(
+                code,
+                format!("the spec has no `{}` line", section.keyword()),
+                anchor,
+            )
+            .label(label)
+            .with_help(help),
         );
     }
     parts
@@ -256,11 +336,20 @@ fn build(
     let input = parts.input?;
     let output = parts.output?;
     let mut fan_in = widths.input?;
-    let decls = parts.layers.iter().copied().chain(std::iter::once(output.layer));
+    let decls = parts
+        .layers
+        .iter()
+        .copied()
+        .chain(std::iter::once(output.layer));
     let mut layers = Vec::new();
     for ((decl, width), act) in decls.zip(&widths.layers).zip(activations) {
         let width = (*width)?;
-        layers.push(ir::Layer { name: decl.name.node.clone(), width, fan_in, activation: (*act)? });
+        layers.push(ir::Layer {
+            name: decl.name.node.clone(),
+            width,
+            fan_in,
+            activation: (*act)?,
+        });
         fan_in = width;
     }
     let scalar = match parts.scalar.map(|s| s.node) {
@@ -275,9 +364,15 @@ fn build(
     Some(ir::Model {
         name: parts.model?.node.clone(),
         scalar,
-        input: ir::Input { name: input.name.node.clone(), width: widths.input?, standardize: input.standardize },
+        input: ir::Input {
+            name: input.name.node.clone(),
+            width: widths.input?,
+            standardize: input.standardize,
+        },
         layers,
-        classes: output.classes.map(|c| c.names.iter().map(|n| n.node.clone()).collect()),
+        classes: output
+            .classes
+            .map(|c| c.names.iter().map(|n| n.node.clone()).collect()),
         loss,
         penalty: settings.penalty?,
         init: settings.init?,

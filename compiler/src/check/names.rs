@@ -15,11 +15,9 @@ pub(crate) const RUST_KEYWORDS: [&str; 52] = [
     // strict, 2015
     "as", "break", "const", "continue", "crate", "else", "enum", "extern", "false", "fn", "for",
     "if", "impl", "in", "let", "loop", "match", "mod", "move", "mut", "pub", "ref", "return",
-    "self", "Self", "static", "struct", "super", "trait", "true", "type", "unsafe", "use",
-    "where", "while",
-    // strict, 2018 and later
-    "async", "await", "dyn",
-    // reserved
+    "self", "Self", "static", "struct", "super", "trait", "true", "type", "unsafe", "use", "where",
+    "while", // strict, 2018 and later
+    "async", "await", "dyn", // reserved
     "abstract", "become", "box", "do", "final", "macro", "override", "priv", "typeof", "unsized",
     "virtual", "yield", "try", "gen",
 ];
@@ -67,9 +65,15 @@ pub(crate) fn check_name(name: &Name, what: &str, diags: &mut Vec<Diagnostic>) -
     let s = name.node.as_str();
     if let Some(rest) = s.strip_prefix("r#") {
         diags.push(
-            Diagnostic::error("S0304", format!("{what} {} is a raw identifier", quote(s)), name.span)
-                .label("raw identifiers are not allowed")
-                .with_help(format!("write a plain lower_snake name, such as `{rest}_1`")),
+            Diagnostic::error(
+                "S0304",
+                format!("{what} {} is a raw identifier", quote(s)),
+                name.span,
+            )
+            .label("raw identifiers are not allowed")
+            .with_help(format!(
+                "write a plain lower_snake name, such as `{rest}_1`"
+            )),
         );
         return false;
     }
@@ -77,7 +81,11 @@ pub(crate) fn check_name(name: &Name, what: &str, diags: &mut Vec<Diagnostic>) -
         let at = Span::new(name.span.start + i, name.span.start + i + c.len_utf8());
         let mut d = Diagnostic::error(
             "S0303",
-            format!("{what} {} contains the non-ASCII character `{c}` (U+{:04X})", quote(s), c as u32),
+            format!(
+                "{what} {} contains the non-ASCII character `{c}` (U+{:04X})",
+                quote(s),
+                c as u32
+            ),
             at,
         )
         .label("not an ASCII letter, digit or `_`");
@@ -98,20 +106,28 @@ pub(crate) fn check_name(name: &Name, what: &str, diags: &mut Vec<Diagnostic>) -
                 .to_string(),
         };
         diags.push(
-            Diagnostic::error("S0301", format!("{what} {} is not a lower_snake name", quote(s)), name.span)
-                .label("not lower_snake")
-                .with_help(help),
+            Diagnostic::error(
+                "S0301",
+                format!("{what} {} is not a lower_snake name", quote(s)),
+                name.span,
+            )
+            .label("not lower_snake")
+            .with_help(help),
         );
         return false;
     }
     if RUST_KEYWORDS.contains(&s) {
         diags.push(
-            Diagnostic::error("S0302", format!("{what} `{s}` is a Rust keyword"), name.span)
-                .label("reserved by Rust")
-                .with_help(format!(
-                    "every name becomes a Rust identifier in the generated code; choose \
+            Diagnostic::error(
+                "S0302",
+                format!("{what} `{s}` is a Rust keyword"),
+                name.span,
+            )
+            .label("reserved by Rust")
+            .with_help(format!(
+                "every name becomes a Rust identifier in the generated code; choose \
                      another, such as `{s}_1`"
-                )),
+            )),
         );
         return false;
     }
@@ -129,17 +145,25 @@ pub(crate) fn check(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) {
             seen.insert(&input.name.node, (input.name.span, "the input"));
         }
     }
-    let layers = parts.layers.iter().map(|l| &l.name).chain(parts.output.iter().map(|o| &o.layer.name));
+    let layers = parts
+        .layers
+        .iter()
+        .map(|l| &l.name)
+        .chain(parts.output.iter().map(|o| &o.layer.name));
     for name in layers {
         if !check_name(name, "layer name", diags) {
             continue;
         }
         match seen.get(name.node.as_str()) {
             Some(&(first, whose)) => diags.push(
-                Diagnostic::error("S0305", format!("the name `{}` is used twice", name.node), name.span)
-                    .label("used again here")
-                    .with_secondary(first, format!("first used here, for {whose}"))
-                    .with_help("give every layer and the input a name of its own"),
+                Diagnostic::error(
+                    "S0305",
+                    format!("the name `{}` is used twice", name.node),
+                    name.span,
+                )
+                .label("used again here")
+                .with_secondary(first, format!("first used here, for {whose}"))
+                .with_help("give every layer and the input a name of its own"),
             ),
             None => {
                 seen.insert(&name.node, (name.span, "a layer"));
@@ -147,20 +171,29 @@ pub(crate) fn check(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) {
         }
     }
     if let Some(classes) = parts.output.as_ref().and_then(|o| o.classes) {
-        let mut seen: HashMap<&str, Span> = HashMap::new();
+        let mut seen: HashMap<&str, (Span, bool)> = HashMap::new();
         for name in &classes.names {
             if !check_name(name, "class name", diags) {
                 continue;
             }
-            match seen.get(name.node.as_str()) {
-                Some(&first) => diags.push(
-                    Diagnostic::error("S0306", format!("class `{}` is listed twice", name.node), name.span)
+            match seen.get_mut(name.node.as_str()) {
+                // Each repeated name is reported once, at its first repeat.
+                Some((_, true)) => {}
+                Some((first, reported)) => {
+                    *reported = true;
+                    diags.push(
+                        Diagnostic::error(
+                            "S0306",
+                            format!("class `{}` is listed twice", name.node),
+                            name.span,
+                        )
                         .label("listed again here")
-                        .with_secondary(first, "first listed here")
+                        .with_secondary(*first, "first listed here")
                         .with_help("every class needs a name of its own"),
-                ),
+                    )
+                }
                 None => {
-                    seen.insert(&name.node, name.span);
+                    seen.insert(&name.node, (name.span, false));
                 }
             }
         }
@@ -174,7 +207,11 @@ mod tests {
 
     fn codes(s: &str) -> Vec<&'static str> {
         let mut d = Vec::new();
-        check_name(&Spanned::new(s.to_string(), Span::new(0, s.len())), "layer name", &mut d);
+        check_name(
+            &Spanned::new(s.to_string(), Span::new(0, s.len())),
+            "layer name",
+            &mut d,
+        );
         d.iter().map(|d| d.code).collect()
     }
 
@@ -190,7 +227,9 @@ mod tests {
 
     #[test]
     fn keywords_raw_and_non_ascii() {
-        for k in ["fn", "type", "async", "await", "dyn", "try", "self", "crate", "super", "gen"] {
+        for k in [
+            "fn", "type", "async", "await", "dyn", "try", "self", "crate", "super", "gen",
+        ] {
             assert_eq!(codes(k), ["S0302"], "{k}");
         }
         assert_eq!(codes("Self"), ["S0301"]);
@@ -203,14 +242,24 @@ mod tests {
     fn non_ascii_span_is_the_character() {
         let mut d = Vec::new();
         let s = "x\u{00e9}y";
-        check_name(&Spanned::new(s.to_string(), Span::new(10, 10 + s.len())), "layer name", &mut d);
+        check_name(
+            &Spanned::new(s.to_string(), Span::new(10, 10 + s.len())),
+            "layer name",
+            &mut d,
+        );
         assert_eq!(d[0].primary.span, Span::new(11, 13));
     }
 
     #[test]
     fn snake_suggestions() {
-        assert_eq!(snake_suggestion("PumpHealth").as_deref(), Some("pump_health"));
-        assert_eq!(snake_suggestion("pump-health").as_deref(), Some("pump_health"));
+        assert_eq!(
+            snake_suggestion("PumpHealth").as_deref(),
+            Some("pump_health")
+        );
+        assert_eq!(
+            snake_suggestion("pump-health").as_deref(),
+            Some("pump_health")
+        );
         assert_eq!(snake_suggestion("9lives").as_deref(), Some("n9lives"));
         assert_eq!(snake_suggestion("a$b"), None);
     }

@@ -63,7 +63,10 @@ fn width(w: &Integer, whose: &str, diags: &mut Vec<Diagnostic>) -> Option<usize>
             diags.push(
                 Diagnostic::error(
                     "S0402",
-                    format!("{whose} has width {}, above the limit of {MAX_WIDTH}", quote(&w.node)),
+                    format!(
+                        "{whose} has width {}, above the limit of {MAX_WIDTH}",
+                        quote(&w.node)
+                    ),
                     w.span,
                 )
                 .label("too wide")
@@ -76,10 +79,15 @@ fn width(w: &Integer, whose: &str, diags: &mut Vec<Diagnostic>) -> Option<usize>
 
 /// Checks every width and the total parameter count.
 pub(crate) fn widths(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Widths {
-    let input =
-        parts.input.and_then(|i| width(i.width, &format!("input `{}`", i.name.node), diags));
-    let decls: Vec<&LayerDecl> =
-        parts.layers.iter().copied().chain(parts.output.map(|o| o.layer)).collect();
+    let input = parts
+        .input
+        .and_then(|i| width(i.width, &format!("input `{}`", i.name.node), diags));
+    let decls: Vec<&LayerDecl> = parts
+        .layers
+        .iter()
+        .copied()
+        .chain(parts.output.map(|o| o.layer))
+        .collect();
     let layers: Vec<Option<usize>> = decls
         .iter()
         .map(|d| width(&d.width, &format!("layer `{}`", d.name.node), diags))
@@ -125,7 +133,11 @@ pub(crate) fn activations(
     parts: &Parts<'_>,
     diags: &mut Vec<Diagnostic>,
 ) -> Vec<Option<ir::Activation>> {
-    let decls = parts.layers.iter().copied().chain(parts.output.map(|o| o.layer));
+    let decls = parts
+        .layers
+        .iter()
+        .copied()
+        .chain(parts.output.map(|o| o.layer));
     decls
         .map(|d| match &d.activation.node {
             ActivationKind::Identity => Some(ir::Activation::Identity),
@@ -145,7 +157,9 @@ pub(crate) fn activations(
                             alpha.span,
                         )
                         .label("not in [0, 1)")
-                        .with_help("use a small slope from 0 up to but not including 1, such as `0.01`"),
+                        .with_help(
+                            "use a small slope from 0 up to but not including 1, such as `0.01`",
+                        ),
                     );
                     None
                 }
@@ -177,7 +191,12 @@ struct Range<'a> {
 }
 
 /// Checks one number against a range; `fits` says whether a finite value is acceptable.
-fn ranged(n: &Number, fits: impl Fn(f64) -> bool, r: Range<'_>, diags: &mut Vec<Diagnostic>) -> Option<f64> {
+fn ranged(
+    n: &Number,
+    fits: impl Fn(f64) -> bool,
+    r: Range<'_>,
+    diags: &mut Vec<Diagnostic>,
+) -> Option<f64> {
     let v = real(n);
     if v.is_finite() && fits(v) {
         return Some(v);
@@ -186,8 +205,12 @@ fn ranged(n: &Number, fits: impl Fn(f64) -> bool, r: Range<'_>, diags: &mut Vec<
     let d = if v.is_finite() {
         Diagnostic::error(r.code, format!("{} {q} {}", r.what, r.fact), n.span).label(r.label)
     } else {
-        Diagnostic::error(r.code, format!("{} {q} is not a finite number", r.what), n.span)
-            .label("too large for a 64-bit float")
+        Diagnostic::error(
+            r.code,
+            format!("{} {q} is not a finite number", r.what),
+            n.span,
+        )
+        .label("too large for a 64-bit float")
     };
     diags.push(d.with_help(r.help));
     None
@@ -208,7 +231,11 @@ fn count(n: &Integer, what: &str, least: &str, diags: &mut Vec<Diagnostic>) -> O
             diags.push(
                 Diagnostic::error(
                     "S0608",
-                    format!("{what} {} is above the limit of {}", quote(&n.node), u32::MAX),
+                    format!(
+                        "{what} {} is above the limit of {}",
+                        quote(&n.node),
+                        u32::MAX
+                    ),
                     n.span,
                 )
                 .label("too large")
@@ -236,12 +263,22 @@ pub(crate) fn settings(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Settin
             let v = ranged(lambda, |v| v >= 0.0, range, diags);
             if v == Some(0.0) {
                 diags.push(
-                    Diagnostic::warning("W0104", "a penalty of strength 0 has no effect", lambda.span)
-                        .label("strength 0")
-                        .with_help("write `penalty none`, or give a positive strength"),
+                    Diagnostic::warning(
+                        "W0104",
+                        "a penalty of strength 0 has no effect",
+                        lambda.span,
+                    )
+                    .label("strength 0")
+                    .with_help("write `penalty none`, or give a positive strength"),
                 );
             }
-            v.map(|v| if l2 { ir::Penalty::L2(v) } else { ir::Penalty::L1(v) })
+            v.map(|v| {
+                if l2 {
+                    ir::Penalty::L2(v)
+                } else {
+                    ir::Penalty::L1(v)
+                }
+            })
         }
     };
 
@@ -271,7 +308,11 @@ pub(crate) fn settings(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Settin
                         diags.push(
                             Diagnostic::error(
                                 "S0609",
-                                format!("seed {} is above the limit of {}", quote(&s.node), u64::MAX),
+                                format!(
+                                    "seed {} is above the limit of {}",
+                                    quote(&s.node),
+                                    u64::MAX
+                                ),
                                 s.span,
                             )
                             .label("does not fit in 64 bits")
@@ -309,7 +350,8 @@ pub(crate) fn settings(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Settin
                                 what: "momentum",
                                 fact: "is outside [0, 1)",
                                 label: "not in [0, 1)",
-                                help: "use a momentum from 0 up to but not including 1, such as `0.9`",
+                                help:
+                                    "use a momentum from 0 up to but not including 1, such as `0.9`",
                             };
                             ranged(m, |v| (0.0..1.0).contains(&v), range, diags)
                         }
@@ -321,29 +363,33 @@ pub(crate) fn settings(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Settin
                 }
                 OptimizerKind::Adam { rate, beta1, beta2 } => {
                     let rate = rate_check(rate, diags);
-                    let mut beta = |b: &Option<Number>, name: &str, help: &str, default: f64| match b {
-                        None => Some(default),
-                        Some(b) => {
-                            let range = Range {
-                                code: "S0604",
-                                what: name,
-                                fact: "is outside (0, 1)",
-                                label: "not in (0, 1)",
-                                help,
-                            };
-                            ranged(b, |v| v > 0.0 && v < 1.0, range, diags)
-                        }
+                    let mut beta =
+                        |b: &Option<Number>, name: &str, help: &str, default: f64| match b {
+                            None => Some(default),
+                            Some(b) => {
+                                let range = Range {
+                                    code: "S0604",
+                                    what: name,
+                                    fact: "is outside (0, 1)",
+                                    label: "not in (0, 1)",
+                                    help,
+                                };
+                                ranged(b, |v| v > 0.0 && v < 1.0, range, diags)
+                            }
+                        };
+                    let usual = |name: &str, v: f64| {
+                        format!("Adam's decay rates lie strictly between 0 and 1; the usual {name} is {v}")
                     };
                     let b1 = beta(
                         beta1,
                         "beta1",
-                        "Adam's decay rates lie strictly between 0 and 1; the usual beta1 is 0.9",
+                        &usual("beta1", defaults::BETA1),
                         defaults::BETA1,
                     );
                     let b2 = beta(
                         beta2,
                         "beta2",
-                        "Adam's decay rates lie strictly between 0 and 1; the usual beta2 is 0.999",
+                        &usual("beta2", defaults::BETA2),
                         defaults::BETA2,
                     );
                     match (rate, b1, b2) {
@@ -371,7 +417,7 @@ pub(crate) fn settings(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Settin
                             .label("large batch")
                             .with_help(
                                 "each optimizer step averages the whole batch, so an epoch takes few \
-                                 steps; small networks usually train with batches of 8 to 256",
+                                 steps; batches of 8 to 256 samples are common for small networks",
                             ),
                         );
                     }
@@ -383,10 +429,19 @@ pub(crate) fn settings(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Settin
                 Some(e) => count(e, "number of epochs", "1 epoch", diags),
             };
             match (optimizer, batch, epochs) {
-                (Some(optimizer), Some(batch), Some(epochs)) => Some(ir::Train { optimizer, batch, epochs }),
+                (Some(optimizer), Some(batch), Some(epochs)) => Some(ir::Train {
+                    optimizer,
+                    batch,
+                    epochs,
+                }),
                 _ => None,
             }
         }
     };
-    Settings { penalty, init, seed, train }
+    Settings {
+        penalty,
+        init,
+        seed,
+        train,
+    }
 }

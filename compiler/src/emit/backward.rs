@@ -95,7 +95,11 @@ fn propagate(cx: &Ctx, i: usize) -> TokenStream {
         });
         quote!(ZERO #(#terms)*)
     });
-    let binding = if activation_mutates(prev.activation) { quote!(let mut #dp) } else { quote!(let #dp) };
+    let binding = if activation_mutates(prev.activation) {
+        quote!(let mut #dp)
+    } else {
+        quote!(let #dp)
+    };
     quote! {
         #binding = {
             let #wpat = self.#w;

@@ -19,26 +19,35 @@ pub(super) fn items(cx: &Ctx) -> TokenStream {
     let count = usize_lit(variants.len());
     let out_name = &cx.model.output().name;
     let is_binary = binary(cx);
-    let defs = class_names.iter().zip(&variants).enumerate().map(|(i, (name, v))| {
-        let doc = if is_binary {
-            let when = if i == 0 { "at most 0.5" } else { "above 0.5" };
-            format!(" `{name}`: the output `{out_name}` is {when}.")
-        } else {
-            format!(" `{name}`: unit {i} of the output `{out_name}`.")
-        };
-        let doc = super::doc(&doc);
-        quote! {
-            #doc
-            #v
-        }
-    });
-    let name_arms = class_names.iter().zip(&variants).map(|(name, v)| quote!(Self::#v => #name,));
+    let defs = class_names
+        .iter()
+        .zip(&variants)
+        .enumerate()
+        .map(|(i, (name, v))| {
+            let doc = if is_binary {
+                let when = if i == 0 { "at most 0.5" } else { "above 0.5" };
+                format!(" `{name}`: the output `{out_name}` is {when}.")
+            } else {
+                format!(" `{name}`: unit {i} of the output `{out_name}`.")
+            };
+            let doc = super::doc(&doc);
+            quote! {
+                #doc
+                #v
+            }
+        });
+    let name_arms = class_names
+        .iter()
+        .zip(&variants)
+        .map(|(name, v)| quote!(Self::#v => #name,));
     let target_arms = variants.iter().enumerate().map(|(i, v)| {
         let vals = if is_binary {
             let one = if i == 0 { quote!(0.0) } else { quote!(1.0) };
             vec![one]
         } else {
-            (0..variants.len()).map(|k| if k == i { quote!(1.0) } else { quote!(0.0) }).collect()
+            (0..variants.len())
+                .map(|k| if k == i { quote!(1.0) } else { quote!(0.0) })
+                .collect()
         };
         quote!(Self::#v => [#(#vals),*],)
     });

@@ -16,10 +16,16 @@ pub(super) struct Buf {
 
 impl Buf {
     pub fn local(name: &str) -> Buf {
-        Buf { name: ident(name), by_ref: false }
+        Buf {
+            name: ident(name),
+            by_ref: false,
+        }
     }
     pub fn param(name: &str) -> Buf {
-        Buf { name: ident(name), by_ref: true }
+        Buf {
+            name: ident(name),
+            by_ref: true,
+        }
     }
     /// `&a` or `x`.
     pub fn r(&self) -> TokenStream {
@@ -117,8 +123,14 @@ pub(super) fn affine(cx: &Ctx, i: usize, dest: Dest) -> TokenStream {
         [#(#rows),*]
     }};
     match dest {
-        Dest::Local { name, mutable: true } => quote!(let mut #name = #block;),
-        Dest::Local { name, mutable: false } => quote!(let #name = #block;),
+        Dest::Local {
+            name,
+            mutable: true,
+        } => quote!(let mut #name = #block;),
+        Dest::Local {
+            name,
+            mutable: false,
+        } => quote!(let #name = #block;),
         Dest::Param(out) => quote!(*#out = #block;),
     }
 }
@@ -164,7 +176,10 @@ pub(super) fn hidden_layer(cx: &Ctx, i: usize) -> TokenStream {
     let affine = affine(
         cx,
         i,
-        Dest::Local { name: name.clone(), mutable: activation_mutates(layer.activation) },
+        Dest::Local {
+            name: name.clone(),
+            mutable: activation_mutates(layer.activation),
+        },
     );
     let act = activate(cx, layer.activation, quote!(&mut #name));
     quote!(#affine #act)
@@ -181,7 +196,14 @@ pub(super) fn hidden_layers(cx: &Ctx) -> TokenStream {
 pub(super) fn output_logits(cx: &Ctx) -> TokenStream {
     let last = cx.last();
     let z = ident(&cx.names.layers[last].logits);
-    affine(cx, last, Dest::Local { name: z, mutable: false })
+    affine(
+        cx,
+        last,
+        Dest::Local {
+            name: z,
+            mutable: false,
+        },
+    )
 }
 
 /// `let mut a_<out> = z_<out>; act(&mut a_<out>);`
@@ -206,8 +228,12 @@ pub(super) fn loss_expr(cx: &Ctx) -> TokenStream {
     let z = ident(&n.logits);
     let a = ident(&n.activations);
     match (cx.model.loss, out.activation) {
-        (Loss::CrossEntropy, Activation::Sigmoid) => quote!(rt::loss::logistic_cross_entropy(&#z, y)),
-        (Loss::CrossEntropy, Activation::Softmax) => quote!(rt::loss::softmax_cross_entropy(&#z, y)),
+        (Loss::CrossEntropy, Activation::Sigmoid) => {
+            quote!(rt::loss::logistic_cross_entropy(&#z, y))
+        }
+        (Loss::CrossEntropy, Activation::Softmax) => {
+            quote!(rt::loss::softmax_cross_entropy(&#z, y))
+        }
         (Loss::CrossEntropy, _) => {
             let e = super::compile_error("cross_entropy needs a sigmoid or softmax output");
             quote!({ #e ZERO })
@@ -229,10 +255,16 @@ pub(super) fn methods(cx: &Ctx) -> TokenStream {
     let predict_out = affine(cx, last, Dest::Param(ident("out")));
     let predict_act = activate(cx, out_layer.activation, quote!(out));
     let logits = output_logits(cx);
-    let loss_acts = if loss_reads_activations(cx) { output_activations(cx) } else { TokenStream::new() };
+    let loss_acts = if loss_reads_activations(cx) {
+        output_activations(cx)
+    } else {
+        TokenStream::new()
+    };
     let loss = loss_expr(cx);
     let loss_doc = match cx.model.loss {
-        Loss::CrossEntropy => " The loss of one sample (no penalty), computed from the output logits.",
+        Loss::CrossEntropy => {
+            " The loss of one sample (no penalty), computed from the output logits."
+        }
         Loss::SquaredError => " The loss of one sample (no penalty): `1/2 sum_j (a_j - y_j)^2`.",
     };
     let loss_doc = super::doc(&loss_doc);

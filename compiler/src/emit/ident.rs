@@ -20,8 +20,14 @@ use std::collections::BTreeSet;
 
 /// Module-level constants and statics that generated code always defines; layer constants must
 /// avoid them.
-pub const RESERVED_CONSTS: [&str; 6] =
-    ["INPUTS", "OUTPUTS", "PARAMETERS", "FINGERPRINT", "ZERO", "TRAINED"];
+pub const RESERVED_CONSTS: [&str; 6] = [
+    "INPUTS",
+    "OUTPUTS",
+    "PARAMETERS",
+    "FINGERPRINT",
+    "ZERO",
+    "TRAINED",
+];
 
 /// Field of [`Model::input`]'s per-feature mean (with `standardize`).
 pub const MEAN_FIELD: &str = "input_mean";
@@ -92,7 +98,11 @@ impl Names {
                 unique(&mut taken, v, "")
             })
             .collect();
-        Names { module: model.name.clone(), layers, classes }
+        Names {
+            module: model.name.clone(),
+            layers,
+            classes,
+        }
     }
 }
 
@@ -138,7 +148,10 @@ mod tests {
 
     #[test]
     fn layer_names_follow_the_spec() {
-        let m = model(&[(6, "f"), (10, "hidden1"), (3, "state")], Activation::Softmax);
+        let m = model(
+            &[(6, "f"), (10, "hidden1"), (3, "state")],
+            Activation::Softmax,
+        );
         let n = Names::of(&m);
         assert_eq!(n.layers[0].width_const, "HIDDEN1");
         assert_eq!(n.layers[0].weights, "hidden1_weights");
@@ -151,12 +164,26 @@ mod tests {
     #[test]
     fn layer_constants_avoid_fixed_items_and_each_other() {
         let m = model(
-            &[(2, "f"), (3, "outputs"), (3, "outputs_units"), (3, "zero"), (2, "inputs")],
+            &[
+                (2, "f"),
+                (3, "outputs"),
+                (3, "outputs_units"),
+                (3, "zero"),
+                (2, "inputs"),
+            ],
             Activation::Softmax,
         );
         let n = Names::of(&m);
         let consts: Vec<&str> = n.layers.iter().map(|l| l.width_const.as_str()).collect();
-        assert_eq!(consts, ["OUTPUTS_UNITS", "OUTPUTS_UNITS_UNITS", "ZERO_UNITS", "INPUTS_UNITS"]);
+        assert_eq!(
+            consts,
+            [
+                "OUTPUTS_UNITS",
+                "OUTPUTS_UNITS_UNITS",
+                "ZERO_UNITS",
+                "INPUTS_UNITS"
+            ]
+        );
     }
 
     #[test]
@@ -166,7 +193,12 @@ mod tests {
         assert_eq!(upper_camel("idle"), "Idle");
         assert_eq!(upper_camel("x__y_"), "XY");
         let mut m = model(&[(2, "f"), (4, "state")], Activation::Softmax);
-        m.classes = Some(vec!["a_b".into(), "a__b".into(), "self_".into(), "ab".into()]);
+        m.classes = Some(vec![
+            "a_b".into(),
+            "a__b".into(),
+            "self_".into(),
+            "ab".into(),
+        ]);
         assert_eq!(Names::of(&m).classes, ["AB", "AB2", "SelfClass", "Ab"]);
     }
 }

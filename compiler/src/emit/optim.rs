@@ -7,18 +7,36 @@ use quote::quote;
 
 /// The optimizer as the trainer runs it.
 enum Kind {
-    Sgd { rate: f64 },
-    Momentum { rate: f64, mu: f64 },
-    Adam { rate: f64, beta1: f64, beta2: f64, eps: f64 },
+    Sgd {
+        rate: f64,
+    },
+    Momentum {
+        rate: f64,
+        mu: f64,
+    },
+    Adam {
+        rate: f64,
+        beta1: f64,
+        beta2: f64,
+        eps: f64,
+    },
 }
 
 fn kind(o: Optimizer) -> Kind {
     match o {
         Optimizer::Sgd { rate, momentum } if momentum == 0.0 => Kind::Sgd { rate },
         Optimizer::Sgd { rate, momentum } => Kind::Momentum { rate, mu: momentum },
-        Optimizer::Adam { rate, beta1, beta2, epsilon } => {
-            Kind::Adam { rate, beta1, beta2, eps: epsilon }
-        }
+        Optimizer::Adam {
+            rate,
+            beta1,
+            beta2,
+            epsilon,
+        } => Kind::Adam {
+            rate,
+            beta1,
+            beta2,
+            eps: epsilon,
+        },
     }
 }
 
@@ -58,7 +76,12 @@ pub(super) fn items(cx: &Ctx) -> TokenStream {
                 " gradient descent with classical momentum, `v = mu v - rate g; w += v`",
             )
         }
-        Kind::Adam { rate, beta1, beta2, eps } => {
+        Kind::Adam {
+            rate,
+            beta1,
+            beta2,
+            eps,
+        } => {
             let (r, b1, b2, e) = (lit(rate), lit(beta1), lit(beta2), lit(eps));
             (
                 quote! {
@@ -88,7 +111,11 @@ pub(super) fn items(cx: &Ctx) -> TokenStream {
         let bias = update(&k, &Field::Vector(ident(&n.bias)));
         [weights, bias]
     });
-    let adam_t = if matches!(k, Kind::Adam { .. }) { quote!(let t = self.steps;) } else { quote!() };
+    let adam_t = if matches!(k, Kind::Adam { .. }) {
+        quote!(let t = self.steps;)
+    } else {
+        quote!()
+    };
     let batch = usize_lit(cx.model.train.batch as usize);
     let epochs = usize_lit(cx.model.train.epochs as usize);
     let struct_doc = format!(

@@ -12,18 +12,32 @@ pub(super) fn consts(cx: &Ctx) -> TokenStream {
     let inputs = usize_lit(m.input.width);
     let outputs = usize_lit(m.output().width);
     let params = usize_lit(m.parameters());
-    let fp = syn::LitInt::new(&format!("0x{:016x}", m.fingerprint()), proc_macro2::Span::call_site());
+    let fp = syn::LitInt::new(
+        &format!("0x{:016x}", m.fingerprint()),
+        proc_macro2::Span::call_site(),
+    );
     let doc_in = format!(" Input features (`{}`).", m.input.name);
     let doc_in = super::doc(&doc_in);
     let doc_out = format!(" Output units (`{}`).", m.output().name);
     let doc_out = super::doc(&doc_out);
-    let doc_params = format!(" Trainable parameters: every weight and bias ({}).", m.parameters());
+    let doc_params = format!(
+        " Trainable parameters: every weight and bias ({}).",
+        m.parameters()
+    );
     let doc_params = super::doc(&doc_params);
     let layers = cx.layers().map(|(i, l, n)| {
         let c = ident(&n.width_const);
         let w = usize_lit(l.width);
-        let role = if i == cx.last() { "the output layer" } else { "layer" };
-        let doc = format!(" Units of {role} `{}` ({}).", l.name, l.activation.keyword());
+        let role = if i == cx.last() {
+            "the output layer"
+        } else {
+            "layer"
+        };
+        let doc = format!(
+            " Units of {role} `{}` ({}).",
+            l.name,
+            l.activation.keyword()
+        );
         let doc = super::doc(&doc);
         quote! {
             #doc
@@ -69,7 +83,10 @@ pub(super) fn structs(cx: &Ctx) -> TokenStream {
             #db
             pub #b: [Scalar; #rows],
         });
-        let gw = format!(" Gradient of the weights into `{}` (same layout as the weights).", l.name);
+        let gw = format!(
+            " Gradient of the weights into `{}` (same layout as the weights).",
+            l.name
+        );
         let gw = super::doc(&gw);
         let gb = format!(" Gradient of the biases of `{}`.", l.name);
         let gb = super::doc(&gb);
@@ -195,14 +212,25 @@ pub(super) fn impl_params(cx: &Ctx) -> TokenStream {
 
 fn penalty_const(cx: &Ctx) -> TokenStream {
     let (value, doc) = match cx.model.penalty {
-        Penalty::None => (quote!(rt::penalty::Penalty::None), " The weight penalty: none.".to_string()),
+        Penalty::None => (
+            quote!(rt::penalty::Penalty::None),
+            " The weight penalty: none.".to_string(),
+        ),
         Penalty::L2(l) => {
             let l = cx.scalar_lit(l);
-            (quote!(rt::penalty::Penalty::L2(#l)), " The weight penalty: L2, cost term `(lambda / 2m) sum W^2`, never on biases.".to_string())
+            (
+                quote!(rt::penalty::Penalty::L2(#l)),
+                " The weight penalty: L2, cost term `(lambda / 2m) sum W^2`, never on biases."
+                    .to_string(),
+            )
         }
         Penalty::L1(l) => {
             let l = cx.scalar_lit(l);
-            (quote!(rt::penalty::Penalty::L1(#l)), " The weight penalty: L1, cost term `(lambda / m) sum |W|`, never on biases.".to_string())
+            (
+                quote!(rt::penalty::Penalty::L1(#l)),
+                " The weight penalty: L1, cost term `(lambda / m) sum |W|`, never on biases."
+                    .to_string(),
+            )
         }
     };
     let doc = super::doc(&doc);
@@ -221,7 +249,8 @@ fn init_in_place(cx: &Ctx) -> TokenStream {
         let width = cx.width_const(i);
         let fill = match cx.model.init {
             Init::Uniform { eps } => {
-                let eps = proc_macro2::Literal::f64_unsuffixed(if eps.is_finite() { eps } else { 0.0 });
+                let eps =
+                    proc_macro2::Literal::f64_unsuffixed(if eps.is_finite() { eps } else { 0.0 });
                 quote!(rt::rng::fill_uniform(self.#w.as_flattened_mut(), #eps, &mut rng);)
             }
             Init::Glorot => quote! {

@@ -15,8 +15,17 @@ pub(crate) fn model(shape: &[(usize, &str)], out_act: Activation) -> Model {
         .iter()
         .enumerate()
         .map(|(i, &(width, name))| {
-            let activation = if i + 1 == n { out_act } else { Activation::Sigmoid };
-            let l = Layer { name: name.into(), width, fan_in, activation };
+            let activation = if i + 1 == n {
+                out_act
+            } else {
+                Activation::Sigmoid
+            };
+            let l = Layer {
+                name: name.into(),
+                width,
+                fan_in,
+                activation,
+            };
             fan_in = width;
             l
         })
@@ -24,7 +33,11 @@ pub(crate) fn model(shape: &[(usize, &str)], out_act: Activation) -> Model {
     Model {
         name: "pump_health".into(),
         scalar: Scalar::F32,
-        input: Input { name: input.1.into(), width: input.0, standardize: false },
+        input: Input {
+            name: input.1.into(),
+            width: input.0,
+            standardize: false,
+        },
         layers,
         classes: None,
         loss: if matches!(out_act, Activation::Sigmoid | Activation::Softmax) {
@@ -36,7 +49,12 @@ pub(crate) fn model(shape: &[(usize, &str)], out_act: Activation) -> Model {
         init: Init::Glorot,
         seed: 7,
         train: Train {
-            optimizer: Optimizer::Adam { rate: 0.01, beta1: 0.9, beta2: 0.999, epsilon: 1e-8 },
+            optimizer: Optimizer::Adam {
+                rate: 0.01,
+                beta1: 0.9,
+                beta2: 0.999,
+                epsilon: 1e-8,
+            },
             batch: 32,
             epochs: 200,
         },
@@ -45,15 +63,30 @@ pub(crate) fn model(shape: &[(usize, &str)], out_act: Activation) -> Model {
 }
 
 fn pump() -> Model {
-    let mut m = model(&[(6, "features"), (10, "hidden1"), (8, "hidden2"), (3, "state")], Activation::Softmax);
+    let mut m = model(
+        &[
+            (6, "features"),
+            (10, "hidden1"),
+            (8, "hidden2"),
+            (3, "state"),
+        ],
+        Activation::Softmax,
+    );
     m.layers[1].activation = Activation::Tanh;
     m.input.standardize = true;
-    m.classes = Some(vec!["idle".into(), "cavitation".into(), "worn_bearing".into()]);
+    m.classes = Some(vec![
+        "idle".into(),
+        "cavitation".into(),
+        "worn_bearing".into(),
+    ]);
     m
 }
 
 fn opts() -> EmitOptions {
-    EmitOptions { spec_name: "specs/pump_health.sinew".into(), ..Default::default() }
+    EmitOptions {
+        spec_name: "specs/pump_health.sinew".into(),
+        ..Default::default()
+    }
 }
 
 /// Every token tree of `ts`, depth first, with the token before it at the same level.
@@ -80,7 +113,9 @@ fn index_expressions(src: &str) -> usize {
             return;
         }
         let indexing = match prev {
-            Some(TokenTree::Ident(i)) => !matches!(i.to_string().as_str(), "let" | "mut" | "in" | "return"),
+            Some(TokenTree::Ident(i)) => {
+                !matches!(i.to_string().as_str(), "let" | "mut" | "in" | "return")
+            }
             Some(TokenTree::Group(p)) => {
                 matches!(p.delimiter(), Delimiter::Parenthesis | Delimiter::Bracket)
             }
@@ -95,7 +130,17 @@ fn index_expressions(src: &str) -> usize {
 
 fn assert_clean(src: &str) {
     syn::parse_file(src).expect("generated source parses");
-    for bad in ["Vec", "Box", "unsafe", "std::", "panic!", "unwrap", "expect(", "unreachable!", "as_ptr"] {
+    for bad in [
+        "Vec",
+        "Box",
+        "unsafe",
+        "std::",
+        "panic!",
+        "unwrap",
+        "expect(",
+        "unreachable!",
+        "as_ptr",
+    ] {
         assert!(!src.contains(bad), "generated code contains `{bad}`");
     }
     assert_eq!(index_expressions(src), 0, "generated code indexes");
@@ -103,8 +148,14 @@ fn assert_clean(src: &str) {
 
 #[test]
 fn the_index_scan_finds_indexing() {
-    assert_eq!(index_expressions("fn f(a: [f32; 2]) -> f32 { a[0] + g()[1] + m[0][1] }"), 4);
-    assert_eq!(index_expressions("fn f(a: &[f32; 2]) -> [f32; 2] { let [x, y] = *a; [y, x] }"), 0);
+    assert_eq!(
+        index_expressions("fn f(a: [f32; 2]) -> f32 { a[0] + g()[1] + m[0][1] }"),
+        4
+    );
+    assert_eq!(
+        index_expressions("fn f(a: &[f32; 2]) -> [f32; 2] { let [x, y] = *a; [y, x] }"),
+        0
+    );
 }
 
 #[test]
@@ -126,14 +177,24 @@ fn header_names_spec_fingerprint_and_version() {
             m.fingerprint()
         )
     );
-    assert!(src.contains(&format!("pub const FINGERPRINT: u64 = 0x{:016x};", m.fingerprint())));
+    assert!(src.contains(&format!(
+        "pub const FINGERPRINT: u64 = 0x{:016x};",
+        m.fingerprint()
+    )));
 }
 
 #[test]
 fn a_control_character_in_the_spec_name_cannot_end_the_header_line() {
-    let o = EmitOptions { spec_name: "evil\npub fn x() {}.sinew".into(), ..Default::default() };
+    let o = EmitOptions {
+        spec_name: "evil\npub fn x() {}.sinew".into(),
+        ..Default::default()
+    };
     let src = generate(&pump(), &o);
-    assert!(src.lines().next().unwrap().contains("evil?pub fn x() {}.sinew"));
+    assert!(src
+        .lines()
+        .next()
+        .unwrap()
+        .contains("evil?pub fn x() {}.sinew"));
     assert!(!src.contains("\npub fn x()"));
 }
 
@@ -174,7 +235,11 @@ fn output_is_clean_and_deterministic() {
 fn no_loop_over_layers() {
     // The only loops: samples in `cost` and `step`, classes in `classify`.
     let src = generate(&pump(), &opts());
-    let loops: Vec<&str> = src.lines().map(str::trim).filter(|l| l.starts_with("for ")).collect();
+    let loops: Vec<&str> = src
+        .lines()
+        .map(str::trim)
+        .filter(|l| l.starts_with("for "))
+        .collect();
     assert_eq!(
         loops,
         [
@@ -193,11 +258,26 @@ fn no_loop_over_layers() {
 #[test]
 fn every_optimizer_and_penalty_emits_clean_code() {
     let optimizers = [
-        Optimizer::Sgd { rate: 0.1, momentum: 0.0 },
-        Optimizer::Sgd { rate: 0.1, momentum: 0.9 },
-        Optimizer::Adam { rate: 0.001, beta1: 0.9, beta2: 0.999, epsilon: 1e-8 },
+        Optimizer::Sgd {
+            rate: 0.1,
+            momentum: 0.0,
+        },
+        Optimizer::Sgd {
+            rate: 0.1,
+            momentum: 0.9,
+        },
+        Optimizer::Adam {
+            rate: 0.001,
+            beta1: 0.9,
+            beta2: 0.999,
+            epsilon: 1e-8,
+        },
     ];
-    let fields = [None, Some("pub velocity: Gradients,"), Some("pub v: Gradients,")];
+    let fields = [
+        None,
+        Some("pub velocity: Gradients,"),
+        Some("pub v: Gradients,"),
+    ];
     for (o, field) in optimizers.into_iter().zip(fields) {
         for p in [Penalty::None, Penalty::L1(0.5), Penalty::L2(0.25)] {
             let mut m = pump();
@@ -236,13 +316,19 @@ fn every_activation_and_loss_emits_clean_code() {
                 m.layers[0].activation = hidden;
                 m.loss = loss;
                 m.scalar = Scalar::F64;
-                let o = EmitOptions { unroll_below: unroll, ..opts() };
+                let o = EmitOptions {
+                    unroll_below: unroll,
+                    ..opts()
+                };
                 let src = generate(&m, &o);
                 assert_clean(&src);
                 assert!(!src.contains("compile_error!"), "{src}");
                 if unroll > 0 {
                     assert!(!src.contains("rt::affine_n(") && !src.contains("rt::back_n("));
-                    assert!(src.contains("ZERO + w0_0 * u0 + w0_1 * u1 + w0_2 * u2 + b0"), "{src}");
+                    assert!(
+                        src.contains("ZERO + w0_0 * u0 + w0_1 * u1 + w0_2 * u2 + b0"),
+                        "{src}"
+                    );
                 }
             }
         }
@@ -251,7 +337,10 @@ fn every_activation_and_loss_emits_clean_code() {
 
 #[test]
 fn sigmoid_output_with_two_classes_thresholds_at_one_half() {
-    let mut m = model(&[(2, "switches"), (3, "hidden"), (1, "open")], Activation::Sigmoid);
+    let mut m = model(
+        &[(2, "switches"), (3, "hidden"), (1, "open")],
+        Activation::Sigmoid,
+    );
     m.classes = Some(vec!["shut".into(), "open".into()]);
     let src = generate(&m, &opts());
     assert_clean(&src);
@@ -264,9 +353,18 @@ fn sigmoid_output_with_two_classes_thresholds_at_one_half() {
 
 #[test]
 fn unrolling_applies_only_below_the_threshold() {
-    let m = model(&[(2, "x"), (3, "small"), (40, "big"), (2, "y")], Activation::Softmax);
+    let m = model(
+        &[(2, "x"), (3, "small"), (40, "big"), (2, "y")],
+        Activation::Softmax,
+    );
     // small: 3 x 2 = 6, big: 40 x 3 = 120, y: 2 x 40 = 80.
-    let src = generate(&m, &EmitOptions { unroll_below: 100, ..opts() });
+    let src = generate(
+        &m,
+        &EmitOptions {
+            unroll_below: 100,
+            ..opts()
+        },
+    );
     assert_clean(&src);
     assert_eq!(src.matches("rt::affine_n(&self.big_weights").count(), 3);
     assert_eq!(src.matches("rt::affine_n(").count(), 3);
@@ -276,12 +374,18 @@ fn unrolling_applies_only_below_the_threshold() {
 #[test]
 fn literals_are_exact_in_the_models_scalar() {
     let mut m = pump();
-    m.train.optimizer = Optimizer::Sgd { rate: 0.1, momentum: 0.0 };
+    m.train.optimizer = Optimizer::Sgd {
+        rate: 0.1,
+        momentum: 0.0,
+    };
     let src = generate(&m, &opts());
     // 0.1 as f32 prints as 0.1 and reads back as the same f32.
     assert!(src.contains("pub const RATE: Scalar = 0.1;"));
     m.scalar = Scalar::F64;
-    m.train.optimizer = Optimizer::Sgd { rate: 1.0 / 3.0, momentum: 0.0 };
+    m.train.optimizer = Optimizer::Sgd {
+        rate: 1.0 / 3.0,
+        momentum: 0.0,
+    };
     let src = generate(&m, &opts());
     assert!(src.contains("pub const RATE: Scalar = 0.3333333333333333;"));
     assert_eq!("0.3333333333333333".parse::<f64>().unwrap(), 1.0 / 3.0);
@@ -293,43 +397,105 @@ fn baked_weights_use_exact_bit_patterns() {
     m.scalar = Scalar::F64;
     let baked = BakedParams {
         layers: vec![
-            (vec![0.1, -0.0, f64::MIN_POSITIVE / 4.0, 1.0 / 3.0], vec![0.5, -2.0]),
+            (
+                vec![0.1, -0.0, f64::MIN_POSITIVE / 4.0, 1.0 / 3.0],
+                vec![0.5, -2.0],
+            ),
             (vec![f64::MAX, -1e-300], vec![0.0]),
         ],
         mean: None,
         std: None,
     };
     baked.check(&m).unwrap();
-    let src = generate(&m, &EmitOptions { weights: Some(baked.clone()), ..opts() });
+    let src = generate(
+        &m,
+        &EmitOptions {
+            weights: Some(baked.clone()),
+            ..opts()
+        },
+    );
     assert_clean(&src);
     assert!(src.contains("pub static TRAINED: Params = Params {"));
-    for v in [0.1f64, -0.0, f64::MIN_POSITIVE / 4.0, 1.0 / 3.0, 0.5, -2.0, f64::MAX, -1e-300, 0.0] {
+    for v in [
+        0.1f64,
+        -0.0,
+        f64::MIN_POSITIVE / 4.0,
+        1.0 / 3.0,
+        0.5,
+        -2.0,
+        f64::MAX,
+        -1e-300,
+        0.0,
+    ] {
         let needle = format!("f64::from_bits(0x{:016x})", v.to_bits());
         assert!(src.contains(&needle), "missing {needle}");
     }
     m.scalar = Scalar::F32;
-    let src = generate(&m, &EmitOptions { weights: Some(baked), ..opts() });
-    let needle = format!("f32::from_bits(0x{:08x})", ((1.0f64 / 3.0) as f32).to_bits());
+    let src = generate(
+        &m,
+        &EmitOptions {
+            weights: Some(baked),
+            ..opts()
+        },
+    );
+    let needle = format!(
+        "f32::from_bits(0x{:08x})",
+        ((1.0f64 / 3.0) as f32).to_bits()
+    );
     assert!(src.contains(&needle), "missing {needle}");
-    assert!(src.contains("f32::from_bits(0x80000000)"), "-0.0 keeps its sign");
+    assert!(
+        src.contains("f32::from_bits(0x80000000)"),
+        "-0.0 keeps its sign"
+    );
 }
 
 #[test]
 fn baked_weights_that_do_not_fit_are_a_compile_error_not_a_panic() {
     let m = pump();
-    let baked = BakedParams { layers: vec![(vec![0.0; 3], vec![0.0; 10])], mean: None, std: None };
+    let baked = BakedParams {
+        layers: vec![(vec![0.0; 3], vec![0.0; 10])],
+        mean: None,
+        std: None,
+    };
     let err = baked.check(&m).unwrap_err();
-    assert!(err.to_string().contains("1 layers of weights given"), "{err}");
-    let src = generate(&m, &EmitOptions { weights: Some(baked), ..opts() });
+    assert!(
+        err.to_string().contains("1 layers of weights given"),
+        "{err}"
+    );
+    let src = generate(
+        &m,
+        &EmitOptions {
+            weights: Some(baked),
+            ..opts()
+        },
+    );
     assert!(src.contains("compile_error!"));
     assert!(!src.contains("pub static TRAINED"));
-    let mut layers: Vec<(Vec<f64>, Vec<f64>)> =
-        m.layers.iter().map(|l| (vec![0.0; l.width * l.fan_in], vec![0.0; l.width])).collect();
-    let no_scaling = BakedParams { layers: layers.clone(), mean: None, std: None };
-    assert!(no_scaling.check(&m).unwrap_err().to_string().contains("input mean missing"));
+    let mut layers: Vec<(Vec<f64>, Vec<f64>)> = m
+        .layers
+        .iter()
+        .map(|l| (vec![0.0; l.width * l.fan_in], vec![0.0; l.width]))
+        .collect();
+    let no_scaling = BakedParams {
+        layers: layers.clone(),
+        mean: None,
+        std: None,
+    };
+    assert!(no_scaling
+        .check(&m)
+        .unwrap_err()
+        .to_string()
+        .contains("input mean missing"));
     layers[1].1.pop();
-    let short = BakedParams { layers, mean: Some(vec![0.0; 6]), std: Some(vec![1.0; 6]) };
-    assert_eq!(short.check(&m).unwrap_err().to_string(), "layer `hidden2` has 7 biases, expected 8");
+    let short = BakedParams {
+        layers,
+        mean: Some(vec![0.0; 6]),
+        std: Some(vec![1.0; 6]),
+    };
+    assert_eq!(
+        short.check(&m).unwrap_err().to_string(),
+        "layer `hidden2` has 7 biases, expected 8"
+    );
 }
 
 #[test]

@@ -11,6 +11,9 @@ use super::{Net, Params, Scratch};
 use rayon::prelude::*;
 use sinew_runtime::{self as rt, Real};
 
+/// One sample's input and target.
+type Sample<'a, T> = (&'a [T], &'a [T]);
+
 /// Samples per block: bounds the memory of stored activations and error terms.
 pub const BLOCK: usize = 64;
 
@@ -43,13 +46,19 @@ pub fn gradient_into<T: Real + Send + Sync>(
     for block in samples.chunks(BLOCK) {
         let used = block.len();
         let (sc, ls) = (&mut scratch[..used], &mut losses[..used]);
-        let one = |((s, l), (x, y)): ((&mut Scratch<T>, &mut T), &(&[T], &[T]))| {
+        let one = |((s, l), (x, y)): ((&mut Scratch<T>, &mut T), &Sample<'_, T>)| {
             *l = net.deltas(p, x, y, s);
         };
         if parallel {
-            sc.par_iter_mut().zip(ls.par_iter_mut()).zip(block.par_iter()).for_each(one);
+            sc.par_iter_mut()
+                .zip(ls.par_iter_mut())
+                .zip(block.par_iter())
+                .for_each(one);
         } else {
-            sc.iter_mut().zip(ls.iter_mut()).zip(block.iter()).for_each(one);
+            sc.iter_mut()
+                .zip(ls.iter_mut())
+                .zip(block.iter())
+                .for_each(one);
         }
         for &l in ls.iter() {
             loss_sum += l;
@@ -63,7 +72,7 @@ pub fn gradient_into<T: Real + Send + Sync>(
 fn accumulate<T: Real + Send + Sync>(
     net: &Net<'_, T>,
     grad: &mut Params<T>,
-    block: &[(&[T], &[T])],
+    block: &[Sample<'_, T>],
     scratch: &[Scratch<T>],
     parallel: bool,
 ) {
@@ -74,15 +83,25 @@ fn accumulate<T: Real + Send + Sync>(
         }
         let row = |(j, (w_row, b)): (usize, (&mut [T], &mut T))| {
             for ((x, _), s) in block.iter().zip(scratch) {
-                let Some(d) = s.d.get(l).and_then(|d| d.get(j..j + 1)) else { continue };
+                let Some(d) = s.d.get(l).and_then(|d| d.get(j..j + 1)) else {
+                    continue;
+                };
                 rt::outer_acc(w_row, d, net.layer_input(x, s, l));
                 rt::add_acc(core::slice::from_mut(b), d);
             }
         };
         if parallel {
-            g.weights.par_chunks_mut(n).zip(g.bias.par_iter_mut()).enumerate().for_each(row);
+            g.weights
+                .par_chunks_mut(n)
+                .zip(g.bias.par_iter_mut())
+                .enumerate()
+                .for_each(row);
         } else {
-            g.weights.chunks_mut(n).zip(g.bias.iter_mut()).enumerate().for_each(row);
+            g.weights
+                .chunks_mut(n)
+                .zip(g.bias.iter_mut())
+                .enumerate()
+                .for_each(row);
         }
     }
 }
@@ -162,7 +181,10 @@ where
             .par_chunks(BLOCK)
             .flat_map_iter(|block| {
                 let mut s = Scratch::new(model);
-                block.iter().map(|(x, y)| f(net, p, x, y, &mut s)).collect::<Vec<R>>()
+                block
+                    .iter()
+                    .map(|(x, y)| f(net, p, x, y, &mut s))
+                    .collect::<Vec<R>>()
             })
             .collect()
     } else {

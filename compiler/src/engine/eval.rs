@@ -21,14 +21,23 @@ pub fn class_of<T: Real>(out: &[T]) -> usize {
 }
 
 /// Fraction of samples whose predicted class equals `labels` (0 for no samples).
-pub fn accuracy<T: Real + Send + Sync>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], labels: &[usize]) -> f64 {
+pub fn accuracy<T: Real + Send + Sync>(
+    net: &Net<'_, T>,
+    p: &Params<T>,
+    xs: &[T],
+    labels: &[usize],
+) -> f64 {
     let n_out = net.model.output().width;
     let out = batch::predict_all(net, p, xs);
     let total = labels.len().min(out.len() / n_out.max(1));
     if total == 0 {
         return 0.0;
     }
-    let hits = out.chunks_exact(n_out).zip(labels).filter(|(o, &l)| class_of(o) == l).count();
+    let hits = out
+        .chunks_exact(n_out)
+        .zip(labels)
+        .filter(|(o, &l)| class_of(o) == l)
+        .count();
     hits as f64 / total as f64
 }
 
@@ -65,7 +74,11 @@ pub fn evaluate<T: Real + Send + Sync>(
     let cost = batch::cost(net, p, xs, ys).to_f64();
     let samples = out.len() / n_out.max(1);
     if model.is_classifier() {
-        let n_classes = if n_out == 1 && model.output().activation == Activation::Sigmoid { 2 } else { n_out };
+        let n_classes = if n_out == 1 && model.output().activation == Activation::Sigmoid {
+            2
+        } else {
+            n_out
+        };
         let derived: Vec<usize>;
         let labels = match labels {
             Some(l) => l,
@@ -85,11 +98,18 @@ pub fn evaluate<T: Real + Send + Sync>(
                 *cell += 1;
             }
         }
-        let classes = model.classes.clone().or_else(|| Some((0..n_classes).map(|i| i.to_string()).collect()));
+        let classes = model
+            .classes
+            .clone()
+            .or_else(|| Some((0..n_classes).map(|i| i.to_string()).collect()));
         Evaluation {
             samples,
             cost,
-            accuracy: Some(if samples == 0 { 0.0 } else { hits as f64 / samples as f64 }),
+            accuracy: Some(if samples == 0 {
+                0.0
+            } else {
+                hits as f64 / samples as f64
+            }),
             confusion: Some(confusion),
             classes,
             mae: None,

@@ -46,16 +46,27 @@ impl<T: Real> Params<T> {
     /// All weights and biases zero; with `standardize`, mean 0 and std 1.
     pub fn zeroed(model: &Model) -> Self {
         let (mean, std) = if model.input.standardize {
-            (vec![T::ZERO; model.input.width], vec![T::ONE; model.input.width])
+            (
+                vec![T::ZERO; model.input.width],
+                vec![T::ONE; model.input.width],
+            )
         } else {
             (Vec::new(), Vec::new())
         };
-        Params { layers: Self::zero_layers(model), mean, std }
+        Params {
+            layers: Self::zero_layers(model),
+            mean,
+            std,
+        }
     }
 
     /// A zero gradient of the model's shape (no scaling).
     pub fn zero_gradient(model: &Model) -> Self {
-        Params { layers: Self::zero_layers(model), mean: Vec::new(), std: Vec::new() }
+        Params {
+            layers: Self::zero_layers(model),
+            mean: Vec::new(),
+            std: Vec::new(),
+        }
     }
 
     fn zero_layers(model: &Model) -> Vec<LayerParams<T>> {
@@ -82,7 +93,9 @@ impl<T: Real> Params<T> {
                     rt::rng::glorot_limit(l.fan_in, l.width),
                     &mut rng,
                 ),
-                Init::He => rt::rng::fill_normal(&mut lp.weights, rt::rng::he_std(l.fan_in), &mut rng),
+                Init::He => {
+                    rt::rng::fill_normal(&mut lp.weights, rt::rng::he_std(l.fan_in), &mut rng)
+                }
             }
         }
         p
@@ -104,7 +117,10 @@ impl<T: Real> Params<T> {
         Params {
             layers: layers
                 .iter()
-                .map(|(w, b)| LayerParams { weights: conv(w), bias: conv(b) })
+                .map(|(w, b)| LayerParams {
+                    weights: conv(w),
+                    bias: conv(b),
+                })
                 .collect(),
             mean: scaling.map(|(m, _)| conv(m)).unwrap_or_default(),
             std: scaling.map(|(_, s)| conv(s)).unwrap_or_default(),
@@ -114,7 +130,10 @@ impl<T: Real> Params<T> {
     /// The values widened to f64: (row-major weights, bias) per layer.
     pub fn layers_f64(&self) -> Vec<(Vec<f64>, Vec<f64>)> {
         let conv = |v: &[T]| v.iter().map(|x| x.to_f64()).collect::<Vec<f64>>();
-        self.layers.iter().map(|l| (conv(&l.weights), conv(&l.bias))).collect()
+        self.layers
+            .iter()
+            .map(|l| (conv(&l.weights), conv(&l.bias)))
+            .collect()
     }
 
     /// The standardization statistics widened to f64, if any.
@@ -168,9 +187,19 @@ pub struct Scratch<T> {
 impl<T: Real> Scratch<T> {
     /// Buffers sized for `model`.
     pub fn new(model: &Model) -> Self {
-        let widths = || model.layers.iter().map(|l| vec![T::ZERO; l.width]).collect::<Vec<_>>();
+        let widths = || {
+            model
+                .layers
+                .iter()
+                .map(|l| vec![T::ZERO; l.width])
+                .collect::<Vec<_>>()
+        };
         Scratch {
-            x0: if model.input.standardize { vec![T::ZERO; model.input.width] } else { Vec::new() },
+            x0: if model.input.standardize {
+                vec![T::ZERO; model.input.width]
+            } else {
+                Vec::new()
+            },
             a: widths(),
             z_out: vec![T::ZERO; model.output().width],
             d: widths(),
@@ -213,7 +242,11 @@ impl<'m, T: Real> Net<'m, T> {
     pub fn new(model: &'m Model) -> Self {
         Net {
             model,
-            acts: model.layers.iter().map(|l| activation(l.activation)).collect(),
+            acts: model
+                .layers
+                .iter()
+                .map(|l| activation(l.activation))
+                .collect(),
             penalty: penalty(model.penalty),
         }
     }
@@ -286,9 +319,13 @@ impl<'m, T: Real> Net<'m, T> {
         // Hidden errors, from the last hidden layer down to the first.
         for l in (1..n).rev() {
             let (lower, upper) = s.d.split_at_mut(l);
-            if let (Some(d_prev), Some(d_l), Some(lp), Some(a_prev), Some(act)) =
-                (lower.last_mut(), upper.first(), p.layers.get(l), s.a.get(l - 1), self.acts.get(l - 1))
-            {
+            if let (Some(d_prev), Some(d_l), Some(lp), Some(a_prev), Some(act)) = (
+                lower.last_mut(),
+                upper.first(),
+                p.layers.get(l),
+                s.a.get(l - 1),
+                self.acts.get(l - 1),
+            ) {
                 rt::back(&lp.weights, d_l, d_prev);
                 act.backward(a_prev, d_prev);
             }
@@ -320,7 +357,9 @@ impl<'m, T: Real> Net<'m, T> {
     ) -> T {
         let loss = self.deltas(p, x, y, s);
         for l in (0..grad.layers.len()).rev() {
-            let (Some(g), Some(d)) = (grad.layers.get_mut(l), s.d.get(l)) else { continue };
+            let (Some(g), Some(d)) = (grad.layers.get_mut(l), s.d.get(l)) else {
+                continue;
+            };
             rt::outer_acc(&mut g.weights, d, self.layer_input(x, s, l));
             rt::add_acc(&mut g.bias, d);
         }
@@ -364,9 +403,18 @@ impl<'m, T: Real> Net<'m, T> {
 
     /// The optimizer update of the spec's `train` line (or `optimizer`), over every weight and
     /// bias array in layer order (weights, then bias), as the generated trainer does.
-    pub fn update(&self, optimizer: Optimizer, p: &mut Params<T>, g: &Params<T>, state: &mut OptState<T>) {
+    pub fn update(
+        &self,
+        optimizer: Optimizer,
+        p: &mut Params<T>,
+        g: &Params<T>,
+        state: &mut OptState<T>,
+    ) {
         match optimizer {
-            Optimizer::Sgd { rate, momentum } if momentum == 0.0 => {
+            Optimizer::Sgd {
+                rate,
+                momentum: 0.0,
+            } => {
                 let rate = T::from_f64(rate);
                 for (pl, gl) in p.layers.iter_mut().zip(&g.layers) {
                     rt::optim::sgd(&mut pl.weights, &gl.weights, rate);
@@ -375,25 +423,64 @@ impl<'m, T: Real> Net<'m, T> {
             }
             Optimizer::Sgd { rate, momentum } => {
                 let (rate, mu) = (T::from_f64(rate), T::from_f64(momentum));
-                let v = state.first.get_or_insert_with(|| Params::zero_gradient(self.model));
+                let v = state
+                    .first
+                    .get_or_insert_with(|| Params::zero_gradient(self.model));
                 for ((pl, gl), vl) in p.layers.iter_mut().zip(&g.layers).zip(&mut v.layers) {
                     rt::optim::momentum(&mut pl.weights, &gl.weights, &mut vl.weights, rate, mu);
                     rt::optim::momentum(&mut pl.bias, &gl.bias, &mut vl.bias, rate, mu);
                 }
             }
-            Optimizer::Adam { rate, beta1, beta2, epsilon } => {
-                let (rate, b1, b2, eps) =
-                    (T::from_f64(rate), T::from_f64(beta1), T::from_f64(beta2), T::from_f64(epsilon));
+            Optimizer::Adam {
+                rate,
+                beta1,
+                beta2,
+                epsilon,
+            } => {
+                let (rate, b1, b2, eps) = (
+                    T::from_f64(rate),
+                    T::from_f64(beta1),
+                    T::from_f64(beta2),
+                    T::from_f64(epsilon),
+                );
                 state.t = state.t.saturating_add(1);
                 let t = state.t;
                 let model = self.model;
-                let m = state.first.get_or_insert_with(|| Params::zero_gradient(model));
-                let v = state.second.get_or_insert_with(|| Params::zero_gradient(model));
-                for (((pl, gl), ml), vl) in
-                    p.layers.iter_mut().zip(&g.layers).zip(&mut m.layers).zip(&mut v.layers)
+                let m = state
+                    .first
+                    .get_or_insert_with(|| Params::zero_gradient(model));
+                let v = state
+                    .second
+                    .get_or_insert_with(|| Params::zero_gradient(model));
+                for (((pl, gl), ml), vl) in p
+                    .layers
+                    .iter_mut()
+                    .zip(&g.layers)
+                    .zip(&mut m.layers)
+                    .zip(&mut v.layers)
                 {
-                    rt::optim::adam(&mut pl.weights, &gl.weights, &mut ml.weights, &mut vl.weights, t, rate, b1, b2, eps);
-                    rt::optim::adam(&mut pl.bias, &gl.bias, &mut ml.bias, &mut vl.bias, t, rate, b1, b2, eps);
+                    rt::optim::adam(
+                        &mut pl.weights,
+                        &gl.weights,
+                        &mut ml.weights,
+                        &mut vl.weights,
+                        t,
+                        rate,
+                        b1,
+                        b2,
+                        eps,
+                    );
+                    rt::optim::adam(
+                        &mut pl.bias,
+                        &gl.bias,
+                        &mut ml.bias,
+                        &mut vl.bias,
+                        t,
+                        rate,
+                        b1,
+                        b2,
+                        eps,
+                    );
                 }
             }
         }
@@ -433,7 +520,11 @@ impl<'m, T: Real + Send + Sync> Trainer<'m, T> {
             net: Net::new(model),
             params,
             grad: Params::zero_gradient(model),
-            state: OptState { first: None, second: None, t: 0 },
+            state: OptState {
+                first: None,
+                second: None,
+                t: 0,
+            },
             optimizer: model.train.optimizer,
         }
     }
@@ -441,10 +532,16 @@ impl<'m, T: Real + Send + Sync> Trainer<'m, T> {
     /// One step over the samples in `xs` / `ys` (row-major): returns J before the update. An
     /// empty batch returns ZERO and changes nothing.
     pub fn step(&mut self, xs: &[T], ys: &[T]) -> T {
-        let Some(cost) = batch::gradient_into(&self.net, &self.params, xs, ys, &mut self.grad) else {
+        let Some(cost) = batch::gradient_into(&self.net, &self.params, xs, ys, &mut self.grad)
+        else {
             return T::ZERO;
         };
-        self.net.update(self.optimizer, &mut self.params, &self.grad, &mut self.state);
+        self.net.update(
+            self.optimizer,
+            &mut self.params,
+            &self.grad,
+            &mut self.state,
+        );
         cost
     }
 }

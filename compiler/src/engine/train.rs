@@ -30,7 +30,9 @@ impl<T: Real> Samples<T> {
     /// Converts rows of f64 (as read by [`crate::data`]) to `T`.
     pub fn from_rows(inputs: &[Vec<f64>], targets: &[Vec<f64>], labels: Option<&[usize]>) -> Self {
         let conv = |rows: &[Vec<f64>]| {
-            rows.iter().flat_map(|r| r.iter().map(|&v| T::from_f64(v))).collect::<Vec<T>>()
+            rows.iter()
+                .flat_map(|r| r.iter().map(|&v| T::from_f64(v)))
+                .collect::<Vec<T>>()
         };
         Samples {
             xs: conv(inputs),
@@ -59,7 +61,7 @@ pub enum Method {
 }
 
 /// Options of one training run; `Default` trains as the spec says.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Default)]
 pub struct TrainOptions {
     /// The method; `None` for the spec's optimizer.
     pub method: Option<Method>,
@@ -73,12 +75,6 @@ pub struct TrainOptions {
     pub seed: u64,
     /// Early stopping: epochs without a better validation cost before stopping.
     pub patience: Option<u32>,
-}
-
-impl Default for TrainOptions {
-    fn default() -> Self {
-        TrainOptions { method: None, rate: None, epochs: None, batch: None, seed: 0, patience: None }
-    }
 }
 
 /// What one epoch achieved (costs are J including the penalty).
@@ -144,9 +140,20 @@ impl std::error::Error for TrainError {}
 fn with_rate(o: Optimizer, rate: Option<f64>) -> Optimizer {
     match (o, rate) {
         (Optimizer::Sgd { momentum, .. }, Some(rate)) => Optimizer::Sgd { rate, momentum },
-        (Optimizer::Adam { beta1, beta2, epsilon, .. }, Some(rate)) => {
-            Optimizer::Adam { rate, beta1, beta2, epsilon }
-        }
+        (
+            Optimizer::Adam {
+                beta1,
+                beta2,
+                epsilon,
+                ..
+            },
+            Some(rate),
+        ) => Optimizer::Adam {
+            rate,
+            beta1,
+            beta2,
+            epsilon,
+        },
         (o, None) => o,
     }
 }
@@ -162,9 +169,9 @@ pub fn resolve_method(model: &Model, opts: &TrainOptions) -> Method {
     match opts.method {
         None => Method::MiniBatch(with_rate(model.train.optimizer, opts.rate)),
         Some(Method::MiniBatch(o)) => Method::MiniBatch(with_rate(o, opts.rate)),
-        Some(Method::GradientDescent { rate }) => {
-            Method::GradientDescent { rate: opts.rate.unwrap_or(rate) }
-        }
+        Some(Method::GradientDescent { rate }) => Method::GradientDescent {
+            rate: opts.rate.unwrap_or(rate),
+        },
         Some(m @ Method::Lbfgs { .. }) => m,
     }
 }
@@ -179,7 +186,9 @@ pub fn method_name(m: &Method) -> String {
         Method::MiniBatch(Optimizer::Sgd { rate, momentum }) => {
             format!("sgd rate {rate} momentum {momentum}")
         }
-        Method::MiniBatch(Optimizer::Adam { rate, beta1, beta2, .. }) => {
+        Method::MiniBatch(Optimizer::Adam {
+            rate, beta1, beta2, ..
+        }) => {
             format!("adam rate {rate} beta1 {beta1} beta2 {beta2}")
         }
         Method::Lbfgs { memory } => format!("l-bfgs memory {memory}"),
@@ -227,7 +236,11 @@ pub fn train<T: Real + Send + Sync>(
     let method = resolve_method(model, opts);
     let epochs = opts.epochs.unwrap_or(model.train.epochs).max(1);
     let net = Net::new(model);
-    let mut tracker = Tracker { best: None, since_best: 0, patience: opts.patience };
+    let mut tracker = Tracker {
+        best: None,
+        since_best: 0,
+        patience: opts.patience,
+    };
     let mut history = Vec::new();
     let mut stopped_early = false;
     let report = |epoch: u32, p: &Params<T>| -> EpochReport {
@@ -239,7 +252,13 @@ pub fn train<T: Real + Send + Sync>(
             ),
             _ => (None, None),
         };
-        EpochReport { epoch, epochs, train_cost, validation_cost, validation_accuracy }
+        EpochReport {
+            epoch,
+            epochs,
+            train_cost,
+            validation_cost,
+            validation_accuracy,
+        }
     };
     let mut last: Option<(u32, Params<T>)> = None;
     match method {
@@ -250,7 +269,9 @@ pub fn train<T: Real + Send + Sync>(
             let (net_ref, stop_ref, template) = (&net, &stop, params.clone());
             std::thread::scope(|scope| {
                 let worker = scope.spawn(move || {
-                    lbfgs::run(net_ref, template, train, start, epochs, memory, tx, stop_ref)
+                    lbfgs::run(
+                        net_ref, template, train, start, epochs, memory, tx, stop_ref,
+                    )
                 });
                 let mut p = params.clone();
                 let mut result = Ok(());
@@ -277,21 +298,37 @@ pub fn train<T: Real + Send + Sync>(
                 result
             })?;
         }
-        Method::GradientDescent { rate } | Method::MiniBatch(Optimizer::Sgd { rate, .. })
+        Method::GradientDescent { rate }
+        | Method::MiniBatch(Optimizer::Sgd { rate, .. })
         | Method::MiniBatch(Optimizer::Adam { rate, .. }) => {
             let (optimizer, batch_size) = match method {
-                Method::MiniBatch(o) => (o, opts.batch.unwrap_or(model.train.batch).max(1) as usize),
-                _ => (Optimizer::Sgd { rate, momentum: defaults::MOMENTUM }, train.m),
+                Method::MiniBatch(o) => {
+                    (o, opts.batch.unwrap_or(model.train.batch).max(1) as usize)
+                }
+                _ => (
+                    Optimizer::Sgd {
+                        rate,
+                        momentum: defaults::MOMENTUM,
+                    },
+                    train.m,
+                ),
             };
             let mut p = params.clone();
             let mut grad = Params::zero_gradient(model);
-            let mut state = OptState { first: None, second: None, t: 0 };
+            let mut state = OptState {
+                first: None,
+                second: None,
+                t: 0,
+            };
             let mut rng = SplitMix64::new(opts.seed);
             let mut order: Vec<usize> = (0..train.m).collect();
             let (n_in, n_out) = (model.input.width, model.output().width);
             let mut bx: Vec<T> = Vec::with_capacity(batch_size * n_in);
             let mut by: Vec<T> = Vec::with_capacity(batch_size * n_out);
-            let diverged = |epoch| TrainError::Diverged { epoch, rate: Some(rate_of(optimizer)) };
+            let diverged = |epoch| TrainError::Diverged {
+                epoch,
+                rate: Some(rate_of(optimizer)),
+            };
             for epoch in 1..=epochs {
                 shuffle(&mut order, &mut rng);
                 for chunk in order.chunks(batch_size) {
@@ -322,10 +359,19 @@ pub fn train<T: Real + Send + Sync>(
         }
     }
     let early = tracker.patience.is_some() && valid.is_some_and(|v| v.m > 0);
-    let kept = if early { tracker.best.map(|(_, e, p)| (e, p)) } else { last };
+    let kept = if early {
+        tracker.best.map(|(_, e, p)| (e, p))
+    } else {
+        last
+    };
     let (best_epoch, best) = kept.unwrap_or_else(|| (0, params.clone()));
     *params = best;
-    Ok(TrainSummary { history, best_epoch, stopped_early, method: method_name(&method) })
+    Ok(TrainSummary {
+        history,
+        best_epoch,
+        stopped_early,
+        method: method_name(&method),
+    })
 }
 
 /// Fisher–Yates shuffle (Knuth, TAOCP vol. 2, Algorithm P) driven by SplitMix64; the index is
@@ -414,7 +460,12 @@ mod lbfgs {
         stop: &AtomicBool,
     ) {
         let grad = Params::zero_gradient(net.model);
-        let problem = Problem { net, data, scratch: Mutex::new((template, grad)), stop };
+        let problem = Problem {
+            net,
+            data,
+            scratch: Mutex::new((template, grad)),
+            stop,
+        };
         let solver = LBFGS::new(MoreThuenteLineSearch::new(), memory.max(1));
         let _ = Executor::new(problem, solver)
             .configure(|s| s.param(start).max_iters(u64::from(iters)))

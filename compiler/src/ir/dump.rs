@@ -13,10 +13,18 @@ pub fn dump(model: &Model) -> String {
         "input {} {}{}",
         model.input.name,
         model.input.width,
-        if model.input.standardize { " standardize" } else { "" }
+        if model.input.standardize {
+            " standardize"
+        } else {
+            ""
+        }
     );
     for (i, l) in model.layers.iter().enumerate() {
-        let role = if i + 1 == model.layers.len() { "output" } else { "layer" };
+        let role = if i + 1 == model.layers.len() {
+            "output"
+        } else {
+            "layer"
+        };
         let act = match l.activation {
             Activation::LeakyRelu(a) => format!("leaky_relu {a}"),
             other => other.keyword().to_string(),
@@ -41,7 +49,11 @@ pub fn dump(model: &Model) -> String {
         "train {:?} batch {} epochs {}",
         model.train.optimizer, model.train.batch, model.train.epochs
     );
-    let _ = writeln!(s, "budget flash {:?} ram {:?}", model.budget.flash, model.budget.ram);
+    let _ = writeln!(
+        s,
+        "budget flash {:?} ram {:?}",
+        model.budget.flash, model.budget.ram
+    );
     let _ = writeln!(s, "parameters {}", model.parameters());
     let _ = writeln!(s, "fingerprint {:016x}", model.fingerprint());
     s

@@ -256,7 +256,12 @@ pub mod defaults {
     pub const MOMENTUM: f64 = 0.0;
     /// `train adam rate 0.001 batch 32 epochs 100` when there is no `train` line.
     pub const TRAIN: Train = Train {
-        optimizer: Optimizer::Adam { rate: 0.001, beta1: BETA1, beta2: BETA2, epsilon: ADAM_EPSILON },
+        optimizer: Optimizer::Adam {
+            rate: 0.001,
+            beta1: BETA1,
+            beta2: BETA2,
+            epsilon: ADAM_EPSILON,
+        },
         batch: 32,
         epochs: 100,
     };

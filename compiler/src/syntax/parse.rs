@@ -33,8 +33,15 @@ pub(crate) use generated::{Rule, SpecParser};
 pub fn parse(src: &str) -> (Spec, Vec<Diagnostic>) {
     let mut spec = Spec::default();
     let mut diags = Vec::new();
-    let mut start = 0;
-    for raw in src.split('\n') {
+    // A byte-order mark at the start of the file (some editors write one) is not part of the
+    // text; spans still count it, so they stay offsets into `src`.
+    let bom = if src.starts_with('\u{feff}') {
+        '\u{feff}'.len_utf8()
+    } else {
+        0
+    };
+    let mut start = bom;
+    for raw in src[bom..].split('\n') {
         let line = raw.strip_suffix('\r').unwrap_or(raw);
         if let Some(stmt) = parse_line(line, start, &mut diags) {
             spec.statements.push(stmt);
@@ -48,9 +55,7 @@ pub fn parse(src: &str) -> (Spec, Vec<Diagnostic>) {
 fn parse_line(line: &str, offset: usize, diags: &mut Vec<Diagnostic>) -> Option<Statement> {
     match SpecParser::parse(Rule::single_line, line) {
         Ok(pairs) => {
-            let stmt = pairs
-                .flatten()
-                .find(|p| is_statement(p.as_rule()))?;
+            let stmt = pairs.flatten().find(|p| is_statement(p.as_rule()))?;
             match build_statement(stmt.clone(), offset) {
                 Some(s) => Some(s),
                 None => {
@@ -61,7 +66,11 @@ fn parse_line(line: &str, offset: usize, diags: &mut Vec<Diagnostic>) -> Option<
                         Diagnostic::error("S0104", "this line could not be read", span)
                             .label("not understood"),
                     );
-                    Some(Statement { keyword: span, span, item: Item::Invalid { meant: None } })
+                    Some(Statement {
+                        keyword: span,
+                        span,
+                        item: Item::Invalid { meant: None },
+                    })
                 }
             }
         }
@@ -118,17 +127,29 @@ fn build_statement(stmt: Pair<'_, Rule>, off: usize) -> Option<Statement> {
     let mut it = stmt.into_inner().peekable();
     let keyword = span_of(&it.next()?, off);
     let item = match rule {
-        Rule::model_stmt => Item::Model { name: text(&it.next()?, off) },
+        Rule::model_stmt => Item::Model {
+            name: text(&it.next()?, off),
+        },
         Rule::scalar_stmt => {
             let p = it.next()?;
-            let kind = if p.as_str() == "f64" { ScalarKind::F64 } else { ScalarKind::F32 };
-            Item::Scalar { kind: Spanned::new(kind, span_of(&p, off)) }
+            let kind = if p.as_str() == "f64" {
+                ScalarKind::F64
+            } else {
+                ScalarKind::F32
+            };
+            Item::Scalar {
+                kind: Spanned::new(kind, span_of(&p, off)),
+            }
         }
         Rule::input_stmt => {
             let name = text(&it.next()?, off);
             let width = text(&it.next()?, off);
             let standardize = it.next().map(|p| span_of(&p, off));
-            Item::Input { name, width, standardize }
+            Item::Input {
+                name,
+                width,
+                standardize,
+            }
         }
         Rule::layer_stmt => Item::Layer(build_layer(&mut it, off)?),
         Rule::output_stmt => {
@@ -154,23 +175,33 @@ fn build_statement(stmt: Pair<'_, Rule>, off: usize) -> Option<Statement> {
             } else {
                 LossKind::CrossEntropy
             };
-            Item::Loss { kind: Spanned::new(kind, span_of(&p, off)) }
+            Item::Loss {
+                kind: Spanned::new(kind, span_of(&p, off)),
+            }
         }
         Rule::penalty_stmt => {
             let p = it.next()?;
             let pspan = span_of(&p, off);
             let kind = match p.as_rule() {
-                Rule::l2_penalty => PenaltyKind::L2 { lambda: second_text(p, off)? },
-                Rule::l1_penalty => PenaltyKind::L1 { lambda: second_text(p, off)? },
+                Rule::l2_penalty => PenaltyKind::L2 {
+                    lambda: second_text(p, off)?,
+                },
+                Rule::l1_penalty => PenaltyKind::L1 {
+                    lambda: second_text(p, off)?,
+                },
                 _ => PenaltyKind::None,
             };
-            Item::Penalty { kind: Spanned::new(kind, pspan) }
+            Item::Penalty {
+                kind: Spanned::new(kind, pspan),
+            }
         }
         Rule::init_stmt => {
             let p = it.next()?;
             let kspan = span_of(&p, off);
             let kind = match p.as_rule() {
-                Rule::uniform_init => InitKind::Uniform { eps: second_text(p, off)? },
+                Rule::uniform_init => InitKind::Uniform {
+                    eps: second_text(p, off)?,
+                },
                 Rule::kw_he => InitKind::He,
                 _ => InitKind::Glorot,
             };
@@ -178,7 +209,10 @@ fn build_statement(stmt: Pair<'_, Rule>, off: usize) -> Option<Statement> {
                 Some(s) => Some(second_text(s, off)?),
                 None => None,
             };
-            Item::Init { kind: Spanned::new(kind, kspan), seed }
+            Item::Init {
+                kind: Spanned::new(kind, kspan),
+                seed,
+            }
         }
         Rule::train_stmt => {
             let p = it.next()?;
@@ -196,9 +230,16 @@ fn build_statement(stmt: Pair<'_, Rule>, off: usize) -> Option<Statement> {
                 }
             }
             let optimizer = if orule == Rule::sgd {
-                OptimizerKind::Sgd { rate, momentum: first }
+                OptimizerKind::Sgd {
+                    rate,
+                    momentum: first,
+                }
             } else {
-                OptimizerKind::Adam { rate, beta1: first, beta2: second }
+                OptimizerKind::Adam {
+                    rate,
+                    beta1: first,
+                    beta2: second,
+                }
             };
             let mut batch = None;
             let mut epochs = None;
@@ -209,7 +250,11 @@ fn build_statement(stmt: Pair<'_, Rule>, off: usize) -> Option<Statement> {
                     epochs = Some(second_text(o, off)?);
                 }
             }
-            Item::Train { optimizer: Spanned::new(optimizer, ospan), batch, epochs }
+            Item::Train {
+                optimizer: Spanned::new(optimizer, ospan),
+                batch,
+                epochs,
+            }
         }
         Rule::budget_stmt => {
             let mut flash = None;
@@ -228,7 +273,11 @@ fn build_statement(stmt: Pair<'_, Rule>, off: usize) -> Option<Statement> {
                     "MiB" => Unit::MiB,
                     _ => Unit::B,
                 };
-                let size = Size { span: sspan, amount, unit: Spanned::new(unit, span_of(&u, off)) };
+                let size = Size {
+                    span: sspan,
+                    amount,
+                    unit: Spanned::new(unit, span_of(&u, off)),
+                };
                 if is_flash {
                     flash = Some(size);
                 } else {
@@ -239,7 +288,11 @@ fn build_statement(stmt: Pair<'_, Rule>, off: usize) -> Option<Statement> {
         }
         _ => return None,
     };
-    Some(Statement { keyword, span, item })
+    Some(Statement {
+        keyword,
+        span,
+        item,
+    })
 }
 
 /// The text of the second child of `pair` (the value after a keyword).
@@ -247,17 +300,16 @@ fn second_text(pair: Pair<'_, Rule>, off: usize) -> Option<Spanned<String>> {
     pair.into_inner().nth(1).map(|p| text(&p, off))
 }
 
-fn build_layer<'a>(
-    it: &mut impl Iterator<Item = Pair<'a, Rule>>,
-    off: usize,
-) -> Option<LayerDecl> {
+fn build_layer<'a>(it: &mut impl Iterator<Item = Pair<'a, Rule>>, off: usize) -> Option<LayerDecl> {
     let name = text(&it.next()?, off);
     let width = text(&it.next()?, off);
     let act = it.next()?;
     let aspan = span_of(&act, off);
     let inner = act.into_inner().next()?;
     let kind = match inner.as_rule() {
-        Rule::leaky_relu => ActivationKind::LeakyRelu { alpha: second_text(inner, off)? },
+        Rule::leaky_relu => ActivationKind::LeakyRelu {
+            alpha: second_text(inner, off)?,
+        },
         _ => match inner.as_str() {
             "identity" => ActivationKind::Identity,
             "sigmoid" => ActivationKind::Sigmoid,
@@ -266,7 +318,11 @@ fn build_layer<'a>(
             _ => ActivationKind::Softmax,
         },
     };
-    Some(LayerDecl { name, width, activation: Spanned::new(kind, aspan) })
+    Some(LayerDecl {
+        name,
+        width,
+        activation: Spanned::new(kind, aspan),
+    })
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -274,8 +330,14 @@ fn build_layer<'a>(
 // ---------------------------------------------------------------------------------------------
 
 /// The activation keywords, for suggestions.
-pub(crate) const ACTIVATIONS: [&str; 6] =
-    ["identity", "sigmoid", "tanh", "relu", "leaky_relu", "softmax"];
+pub(crate) const ACTIVATIONS: [&str; 6] = [
+    "identity",
+    "sigmoid",
+    "tanh",
+    "relu",
+    "leaky_relu",
+    "softmax",
+];
 
 /// What the grammar wanted at the place a line stopped making sense.
 #[derive(Debug, Clone, PartialEq)]
@@ -335,10 +397,22 @@ fn expectation(rule: Rule) -> Option<Want> {
         Rule::budget_stmt | Rule::kw_budget => Word("budget"),
         Rule::flash_limit | Rule::kw_flash => Word("flash"),
         Rule::ram_limit | Rule::kw_ram => Word("ram"),
-        Rule::spec | Rule::single_line | Rule::line | Rule::word_char | Rule::line_break | Rule::WHITESPACE | Rule::COMMENT | Rule::statement => {
-            return None
-        }
+        Rule::spec
+        | Rule::single_line
+        | Rule::line
+        | Rule::word_char
+        | Rule::line_break
+        | Rule::WHITESPACE
+        | Rule::COMMENT
+        | Rule::statement => return None,
     })
+}
+
+/// Characters that do not show, or show as a plain space, in most editors.
+fn is_invisible(c: char) -> bool {
+    (c.is_whitespace() && c != ' ' && c != '\t')
+        || c.is_control()
+        || matches!(c, '\u{200b}'..='\u{200f}' | '\u{2060}' | '\u{feff}')
 }
 
 /// True for characters that can be part of a word (see `word_char` in the grammar).
@@ -371,7 +445,9 @@ fn first_word(line: &str) -> Option<Span> {
 /// The word just before byte `pos`, if any.
 fn previous_word(line: &str, pos: usize) -> Option<&str> {
     let before = line.get(..pos)?.trim_end_matches([' ', '\t']);
-    let start = before.rfind(|c: char| !is_word_char(c)).map_or(0, |i| i + 1);
+    let start = before
+        .rfind(|c: char| !is_word_char(c))
+        .map_or(0, |i| i + 1);
     let w = &before[start..];
     (!w.is_empty()).then_some(w)
 }
@@ -388,7 +464,12 @@ fn content_end(line: &str) -> usize {
 /// A word quoted for a message: escaped, and shortened when very long.
 pub(crate) fn quote(word: &str) -> String {
     const MAX: usize = 40;
-    let mut s: String = word.chars().take(MAX).collect::<String>().escape_debug().to_string();
+    let mut s: String = word
+        .chars()
+        .take(MAX)
+        .collect::<String>()
+        .escape_debug()
+        .to_string();
     if word.chars().count() > MAX {
         s.push_str("...");
     }
@@ -450,6 +531,32 @@ fn syntax_error(
     let at = |s: Span| shift(s, offset);
     let eol = Span::new(offset + pos, offset + pos);
 
+    // An invisible character (no-break space, control character, ...) inside the word.
+    if let Some(f) = found {
+        if let Some((i, c)) = line[f.range()]
+            .char_indices()
+            .find(|&(_, c)| is_invisible(c))
+        {
+            let at_char = Span::new(f.start + i, f.start + i + c.len_utf8());
+            let meant = meant.or_else(|| {
+                (Some(f.start) == first.map(|w| w.start))
+                    .then(|| Section::from_keyword(&line[f.start..f.start + i]))
+                    .flatten()
+            });
+            let d = Diagnostic::error(
+                "S0106",
+                format!(
+                    "the line contains the invisible character U+{:04X}",
+                    c as u32
+                ),
+                at(at_char),
+            )
+            .label("invisible character")
+            .with_help("delete it, or replace it with a plain space");
+            return (d, meant);
+        }
+    }
+
     // An unknown word at the start of the line.
     if let (Some(f), Some(word), None) = (first, found_text, meant) {
         if f.start == pos {
@@ -467,7 +574,12 @@ fn syntax_error(
     }
 
     let form_help = |section: Option<Section>| match section {
-        Some(s) => format!("{} `{}` line reads `{}`", article(s.keyword()), s.keyword(), s.form()),
+        Some(s) => format!(
+            "{} `{}` line reads `{}`",
+            article(s.keyword()),
+            s.keyword(),
+            s.form()
+        ),
         None => "each line holds one statement".to_string(),
     };
     let describe = |w: &Want| match w {
@@ -482,37 +594,59 @@ fn syntax_error(
         .filter(|w| KEYWORDS.contains(w))
         .map(|w| format!(" after `{w}`"))
         .unwrap_or_default();
-    let after_comma = line.get(..pos).is_some_and(|b| b.trim_end_matches([' ', '\t']).ends_with(','));
+    let after_comma = line
+        .get(..pos)
+        .is_some_and(|b| b.trim_end_matches([' ', '\t']).ends_with(','));
 
     if after_comma && wants == [Want::Value("a name")] {
-        let found = found_text.map_or("end of line".to_string(), quote);
-        let d = Diagnostic::error("S0104", format!("expected a class name after `,`, found {found}"), found.map_or(eol, at))
-            .label("expected a class name")
-            .with_help("remove the trailing comma, or add the missing class name");
+        let shown = found_text.map_or("end of line".to_string(), quote);
+        let d = Diagnostic::error(
+            "S0104",
+            format!("expected a class name after `,`, found {shown}"),
+            found.map_or(eol, at),
+        )
+        .label("expected a class name")
+        .with_help("remove the trailing comma, or add the missing class name");
         return (d, meant);
     }
     let (Some(span), Some(word)) = (found, found_text) else {
         // The line ends too early.
         let help = match previous {
-            Some("leaky_relu") => "write the slope after `leaky_relu`, e.g. `leaky_relu 0.01`".to_string(),
+            Some("leaky_relu") => {
+                "write the slope after `leaky_relu`, e.g. `leaky_relu 0.01`".to_string()
+            }
             _ => form_help(meant),
         };
-        let d = Diagnostic::error("S0104", format!("expected {expected}{after}, found end of line"), eol)
-            .label(format!("expected {expected} here"))
-            .with_help(help);
+        let d = Diagnostic::error(
+            "S0104",
+            format!("expected {expected}{after}, found end of line"),
+            eol,
+        )
+        .label(format!("expected {expected} here"))
+        .with_help(help);
         return (d, meant);
     };
 
     // An unknown activation.
-    if let Some(Want::OneOf(_, acts)) = wants.iter().find(|w| matches!(w, Want::OneOf("activation", _))) {
+    if let Some(Want::OneOf(_, acts)) = wants
+        .iter()
+        .find(|w| matches!(w, Want::OneOf("activation", _)))
+    {
         if !wants.iter().any(|w| matches!(w, Want::Value(_))) {
             let help = match suggest(word, acts) {
                 Some(g) => format!("did you mean `{g}`?"),
-                None => format!("the activations are {}", join_or(&acts.iter().map(|a| format!("`{a}`")).collect::<Vec<_>>())),
+                None => format!(
+                    "the activations are {}",
+                    join_or(&acts.iter().map(|a| format!("`{a}`")).collect::<Vec<_>>())
+                ),
             };
-            let d = Diagnostic::error("S0102", format!("unknown activation {}", quote(word)), at(span))
-                .label("not an activation")
-                .with_help(help);
+            let d = Diagnostic::error(
+                "S0102",
+                format!("unknown activation {}", quote(word)),
+                at(span),
+            )
+            .label("not an activation")
+            .with_help(help);
             return (d, meant);
         }
     }
@@ -531,7 +665,10 @@ fn syntax_error(
             [Want::OneOf(what, _)] => format!("unknown {what} {}", quote(word)),
             _ => format!("unknown word {}", quote(word)),
         };
-        if let (Some(g), true) = (unit_alias(word), wants.iter().any(|w| matches!(w, Want::OneOf("unit", _)))) {
+        if let (Some(g), true) = (
+            unit_alias(word),
+            wants.iter().any(|w| matches!(w, Want::OneOf("unit", _))),
+        ) {
             let d = Diagnostic::error("S0103", unknown, at(span))
                 .label(format!("expected {expected}"))
                 .with_help(format!(
@@ -546,10 +683,16 @@ fn syntax_error(
             return (d, meant);
         }
         if wants.contains(&Want::End) {
-            let what = meant.map(|s| format!(" in the `{}` line", s.keyword())).unwrap_or_default();
-            let d = Diagnostic::error("S0105", format!("unexpected {}{what}", quote(word)), at(span))
-                .label(format!("expected {expected}"))
-                .with_help(form_help(meant));
+            let what = meant
+                .map(|s| format!(" in the `{}` line", s.keyword()))
+                .unwrap_or_default();
+            let d = Diagnostic::error(
+                "S0105",
+                format!("unexpected {}{what}", quote(word)),
+                at(span),
+            )
+            .label(format!("expected {expected}"))
+            .with_help(form_help(meant));
             return (d, meant);
         }
         let (msg, help) = match wants.as_slice() {
@@ -557,10 +700,14 @@ fn syntax_error(
                 unknown,
                 format!(
                     "the {what}s are {}",
-                    join_or(&words.iter().map(|w| format!("`{w}`")).collect::<Vec<_>>()).replacen(" or ", " and ", 1)
+                    join_or(&words.iter().map(|w| format!("`{w}`")).collect::<Vec<_>>())
+                        .replacen(" or ", " and ", 1)
                 ),
             ),
-            _ => (format!("expected {expected}{after}, found {}", quote(word)), form_help(meant)),
+            _ => (
+                format!("expected {expected}{after}, found {}", quote(word)),
+                form_help(meant),
+            ),
         };
         let d = Diagnostic::error("S0103", msg, at(span))
             .label(format!("expected {expected}"))
@@ -573,26 +720,65 @@ fn syntax_error(
         "write a number such as `0.01`, `2` or `1e-3`".to_string()
     } else if word.starts_with(|c: char| c.is_ascii_digit())
         && wants.contains(&Want::Value("a whole number"))
-        && word.trim_start_matches(|c: char| c.is_ascii_digit()).starts_with(['B', 'K', 'M'])
+        && word
+            .trim_start_matches(|c: char| c.is_ascii_digit())
+            .starts_with(['B', 'K', 'M'])
     {
         let digits = word.len() - word.trim_start_matches(|c: char| c.is_ascii_digit()).len();
-        format!("put a space between the number and the unit: `{} {}`", &word[..digits], &word[digits..])
-    } else if wants.contains(&Want::Value("a width")) || wants.contains(&Want::Value("a whole number")) {
+        format!(
+            "put a space between the number and the unit: `{} {}`",
+            &word[..digits],
+            &word[digits..]
+        )
+    } else if wants.contains(&Want::Value("a width"))
+        || wants.contains(&Want::Value("a whole number"))
+    {
         "write a whole number such as `8`".to_string()
     } else {
         form_help(meant)
     };
-    let d = Diagnostic::error("S0104", format!("expected {expected}{after}, found {}", quote(word)), at(span))
-        .label(format!("expected {expected}"))
-        .with_help(help);
+    let d = Diagnostic::error(
+        "S0104",
+        format!("expected {expected}{after}, found {}", quote(word)),
+        at(span),
+    )
+    .label(format!("expected {expected}"))
+    .with_help(help);
     (d, meant)
 }
 
 /// Every fixed word of the language, for "expected X after `rate`" messages.
 const KEYWORDS: [&str; 30] = [
-    "model", "scalar", "input", "standardize", "layer", "output", "classes", "leaky_relu", "loss",
-    "penalty", "none", "l2", "l1", "init", "uniform", "glorot", "he", "seed", "train", "sgd",
-    "adam", "rate", "momentum", "beta1", "beta2", "batch", "epochs", "budget", "flash", "ram",
+    "model",
+    "scalar",
+    "input",
+    "standardize",
+    "layer",
+    "output",
+    "classes",
+    "leaky_relu",
+    "loss",
+    "penalty",
+    "none",
+    "l2",
+    "l1",
+    "init",
+    "uniform",
+    "glorot",
+    "he",
+    "seed",
+    "train",
+    "sgd",
+    "adam",
+    "rate",
+    "momentum",
+    "beta1",
+    "beta2",
+    "batch",
+    "epochs",
+    "budget",
+    "flash",
+    "ram",
 ];
 
 /// The unit meant by a common spelling that sinew does not use.
@@ -625,7 +811,11 @@ mod tests {
             let path = entry.expect("entry").path();
             if path.extension().is_some_and(|e| e == "sinew") {
                 let src = std::fs::read_to_string(&path).expect("read sample");
-                assert!(SpecParser::parse(Rule::spec, &src).is_ok(), "{}", path.display());
+                assert!(
+                    SpecParser::parse(Rule::spec, &src).is_ok(),
+                    "{}",
+                    path.display()
+                );
                 let (_, diags) = parse(&src);
                 assert!(diags.is_empty(), "{}: {diags:?}", path.display());
             }
