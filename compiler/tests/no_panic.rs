@@ -36,6 +36,19 @@ fn front_end(src: &str) {
             );
         }
         assert!(!d.message.is_empty());
+        // Grammar rule names never reach the user.
+        let words = format!("{} {} {:?}", d.message, d.primary.message, d.help);
+        for rule in [
+            "kw_",
+            "_stmt",
+            "_limit",
+            "simple_activation",
+            "word_char",
+            "EOI",
+            "single_line",
+        ] {
+            assert!(!words.contains(rule), "{rule} in {words}");
+        }
     }
     assert!(checked.diagnostics.len() <= sinew::check::MAX_DIAGNOSTICS + 1);
     let text = sinew::diag::render("fuzz.sinew", src, &checked.diagnostics, false);
@@ -170,7 +183,7 @@ fn apply(src: &str, edits: &[Edit]) -> String {
 }
 
 proptest! {
-    #![proptest_config(ProptestConfig { cases: 400, ..ProptestConfig::default() })]
+    #![proptest_config(ProptestConfig { cases: 1000, ..ProptestConfig::default() })]
 
     #[test]
     fn random_bytes_never_panic(bytes in prop::collection::vec(any::<u8>(), 0..300)) {

@@ -86,58 +86,100 @@ struct Golden {
 }
 
 fn goldens_dir() -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("reference").join("goldens")
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .join("reference")
+        .join("goldens")
 }
 
 fn numbers(v: &Value, what: &str) -> Vec<f64> {
     v.as_array()
         .unwrap_or_else(|| panic!("{what}: not an array"))
         .iter()
-        .map(|x| x.as_f64().unwrap_or_else(|| panic!("{what}: not a number: {x}")))
+        .map(|x| {
+            x.as_f64()
+                .unwrap_or_else(|| panic!("{what}: not a number: {x}"))
+        })
         .collect()
 }
 
 fn rows(v: &Value, what: &str) -> Vec<Vec<f64>> {
-    v.as_array().unwrap_or_else(|| panic!("{what}: not an array")).iter().map(|r| numbers(r, what)).collect()
+    v.as_array()
+        .unwrap_or_else(|| panic!("{what}: not an array"))
+        .iter()
+        .map(|r| numbers(r, what))
+        .collect()
 }
 
 /// The spec text of a golden's network (f64; the names of its layers; `x` for the input).
 fn spec_text(name: &str, net: &Value) -> String {
     let mut s = format!("model {name}\nscalar f64\n");
-    let std = if net["standardize"].as_bool() == Some(true) { " standardize" } else { "" };
+    let std = if net["standardize"].as_bool() == Some(true) {
+        " standardize"
+    } else {
+        ""
+    };
     s += &format!("input x {}{std}\n", net["inputs"]);
     let layers = net["layers"].as_array().expect("layers");
     for (i, l) in layers.iter().enumerate() {
-        let kind = if i + 1 == layers.len() { "output" } else { "layer" };
+        let kind = if i + 1 == layers.len() {
+            "output"
+        } else {
+            "layer"
+        };
         let act = l["activation"].as_str().expect("activation");
         let act = match l.get("alpha").and_then(Value::as_f64) {
             Some(alpha) => format!("{act} {alpha}"),
             None => act.to_string(),
         };
-        s += &format!("{kind} {} {} {act}\n", l["name"].as_str().expect("name"), l["width"]);
+        s += &format!(
+            "{kind} {} {} {act}\n",
+            l["name"].as_str().expect("name"),
+            l["width"]
+        );
     }
     s += &format!("loss {}\n", net["loss"].as_str().expect("loss"));
     match net["penalty"]["kind"].as_str().expect("penalty kind") {
         "none" => s += "penalty none\n",
-        kind => s += &format!("penalty {kind} {}\n", net["penalty"]["lambda"].as_f64().expect("lambda")),
+        kind => {
+            s += &format!(
+                "penalty {kind} {}\n",
+                net["penalty"]["lambda"].as_f64().expect("lambda")
+            )
+        }
     }
     s
 }
 
 fn load(path: &std::path::Path) -> Golden {
-    let file = path.file_name().map(|f| f.to_string_lossy().into_owned()).unwrap_or_default();
+    let file = path
+        .file_name()
+        .map(|f| f.to_string_lossy().into_owned())
+        .unwrap_or_default();
     let text = std::fs::read_to_string(path).unwrap_or_else(|e| panic!("{file}: {e}"));
     let v: Value = serde_json::from_str(&text).unwrap_or_else(|e| panic!("{file}: {e}"));
-    assert_eq!(v["format"], "sinew-reference-golden-1", "{file}: unknown format");
+    assert_eq!(
+        v["format"], "sinew-reference-golden-1",
+        "{file}: unknown format"
+    );
     let name = v["name"].as_str().expect("name");
     let spec = spec_text(name, &v["network"]);
     let checked = sinew::check_source(&spec);
-    let model = checked.model.unwrap_or_else(|| panic!("{file}: spec does not check:\n{spec}\n{:?}", checked.diagnostics));
+    let model = checked.model.unwrap_or_else(|| {
+        panic!(
+            "{file}: spec does not check:\n{spec}\n{:?}",
+            checked.diagnostics
+        )
+    });
     let layers: Vec<(Vec<f64>, Vec<f64>)> = v["params"]["layers"]
         .as_array()
         .expect("params.layers")
         .iter()
-        .map(|l| (rows(&l["weights"], "weights").concat(), numbers(&l["bias"], "bias")))
+        .map(|l| {
+            (
+                rows(&l["weights"], "weights").concat(),
+                numbers(&l["bias"], "bias"),
+            )
+        })
         .collect();
     let e = &v["expected"];
     let gradient = e["gradients"]["layers"]
@@ -151,7 +193,10 @@ fn load(path: &std::path::Path) -> Golden {
         })
         .collect();
     let (mean, std) = if model.input.standardize {
-        (numbers(&v["params"]["mean"], "mean"), numbers(&v["params"]["std"], "std"))
+        (
+            numbers(&v["params"]["mean"], "mean"),
+            numbers(&v["params"]["std"], "std"),
+        )
     } else {
         (Vec::new(), Vec::new())
     };
@@ -183,9 +228,20 @@ fn goldens() -> Vec<Golden> {
 }
 
 /// Compares values, recording a line per failure and returning the worst relative error.
-fn compare(what: &str, got: &[f64], want: &[f64], rel: f64, floor: f64, failures: &mut Vec<String>) -> f64 {
+fn compare(
+    what: &str,
+    got: &[f64],
+    want: &[f64],
+    rel: f64,
+    floor: f64,
+    failures: &mut Vec<String>,
+) -> f64 {
     if got.len() != want.len() {
-        failures.push(format!("{what}: {} values, the oracle has {}", got.len(), want.len()));
+        failures.push(format!(
+            "{what}: {} values, the oracle has {}",
+            got.len(),
+            want.len()
+        ));
         return f64::INFINITY;
     }
     let mut worst = 0.0f64;
@@ -193,7 +249,9 @@ fn compare(what: &str, got: &[f64], want: &[f64], rel: f64, floor: f64, failures
         let diff = (a - b).abs();
         let scale = a.abs().max(b.abs());
         if !(diff <= rel * scale + floor) {
-            failures.push(format!("{what}[{k}]: sinew {a:e}, oracle {b:e} (difference {diff:.2e})"));
+            failures.push(format!(
+                "{what}[{k}]: sinew {a:e}, oracle {b:e} (difference {diff:.2e})"
+            ));
         }
         if scale > 0.0 {
             worst = worst.max(diff / scale);
@@ -214,21 +272,60 @@ struct Computed {
 fn compare_all(label: &str, g: &Golden, c: &Computed, failures: &mut Vec<String>) -> (f64, f64) {
     let mut worst_value = 0.0f64;
     for (i, (got, want)) in c.outputs.iter().zip(&g.outputs).enumerate() {
-        let w = compare(&format!("{label} {}: output of sample {i}", g.file), got, want, VALUE_REL, VALUE_FLOOR, failures);
+        let w = compare(
+            &format!("{label} {}: output of sample {i}", g.file),
+            got,
+            want,
+            VALUE_REL,
+            VALUE_FLOOR,
+            failures,
+        );
         worst_value = worst_value.max(w);
     }
-    let w = compare(&format!("{label} {}: losses", g.file), &c.losses, &g.losses, VALUE_REL, VALUE_FLOOR, failures);
+    let w = compare(
+        &format!("{label} {}: losses", g.file),
+        &c.losses,
+        &g.losses,
+        VALUE_REL,
+        VALUE_FLOOR,
+        failures,
+    );
     worst_value = worst_value.max(w);
-    let w = compare(&format!("{label} {}: penalty", g.file), &[c.penalty], &[g.penalty], VALUE_REL, VALUE_FLOOR, failures);
+    let w = compare(
+        &format!("{label} {}: penalty", g.file),
+        &[c.penalty],
+        &[g.penalty],
+        VALUE_REL,
+        VALUE_FLOOR,
+        failures,
+    );
     worst_value = worst_value.max(w);
-    let w = compare(&format!("{label} {}: cost J", g.file), &[c.cost], &[g.cost], VALUE_REL, VALUE_FLOOR, failures);
+    let w = compare(
+        &format!("{label} {}: cost J", g.file),
+        &[c.cost],
+        &[g.cost],
+        VALUE_REL,
+        VALUE_FLOOR,
+        failures,
+    );
     worst_value = worst_value.max(w);
-    let worst_grad = compare(&format!("{label} {}: gradient", g.file), &c.gradient, &g.gradient, GRAD_REL, GRAD_FLOOR, failures);
+    let worst_grad = compare(
+        &format!("{label} {}: gradient", g.file),
+        &c.gradient,
+        &g.gradient,
+        GRAD_REL,
+        GRAD_FLOOR,
+        failures,
+    );
     (worst_value, worst_grad)
 }
 
 fn engine_run(g: &Golden) -> Computed {
-    let scaling = g.model.input.standardize.then_some((g.mean.as_slice(), g.std.as_slice()));
+    let scaling = g
+        .model
+        .input
+        .standardize
+        .then_some((g.mean.as_slice(), g.std.as_slice()));
     let p = Params::<f64>::from_f64(&g.layers, scaling);
     let net = Net::<f64>::new(&g.model);
     let mut s = Scratch::new(&g.model);
@@ -245,8 +342,19 @@ fn engine_run(g: &Golden) -> Computed {
     let ys: Vec<f64> = g.ys.concat();
     let mut grad = Params::zero_gradient(&g.model);
     let cost = batch::gradient_into(&net, &p, &xs, &ys, &mut grad).expect("a non-empty batch");
-    assert_eq!(cost.to_bits(), net.cost(&p, &xs, &ys).to_bits(), "{}: the batch cost is the plain cost", g.file);
-    Computed { outputs, losses, penalty: net.penalty_cost(&p, g.xs.len()), cost, gradient: grad.flat_f64() }
+    assert_eq!(
+        cost.to_bits(),
+        net.cost(&p, &xs, &ys).to_bits(),
+        "{}: the batch cost is the plain cost",
+        g.file
+    );
+    Computed {
+        outputs,
+        losses,
+        penalty: net.penalty_cost(&p, g.xs.len()),
+        cost,
+        gradient: grad.flat_f64(),
+    }
 }
 
 #[test]
@@ -256,9 +364,17 @@ fn engine_matches_autograd_goldens() {
     for g in &all {
         let c = engine_run(g);
         let (v, gr) = compare_all("engine", g, &c, &mut failures);
-        println!("{}: worst relative difference: values {v:.1e}, gradient {gr:.1e}", g.file);
+        println!(
+            "{}: worst relative difference: values {v:.1e}, gradient {gr:.1e}",
+            g.file
+        );
     }
-    assert!(failures.is_empty(), "{} differences from the autograd oracle:\n{}", failures.len(), failures.join("\n"));
+    assert!(
+        failures.is_empty(),
+        "{} differences from the autograd oracle:\n{}",
+        failures.len(),
+        failures.join("\n")
+    );
 }
 
 /// The goldens cover every activation (leaky_relu with several slopes), both losses with both
@@ -273,10 +389,18 @@ fn goldens_cover_every_activation_loss_and_penalty() {
     for g in &all {
         let m = &g.model;
         for (i, l) in m.layers.iter().enumerate() {
-            let place = if i + 1 == m.layers.len() { "output" } else { "hidden" };
+            let place = if i + 1 == m.layers.len() {
+                "output"
+            } else {
+                "hidden"
+            };
             seen.insert(format!("{place} {}", l.activation.keyword()));
         }
-        seen.insert(format!("loss {} with {} output", m.loss.keyword(), m.output().activation.keyword()));
+        seen.insert(format!(
+            "loss {} with {} output",
+            m.loss.keyword(),
+            m.output().activation.keyword()
+        ));
         seen.insert(match m.penalty {
             Penalty::None => "penalty none".into(),
             Penalty::L2(_) => "penalty l2".into(),
@@ -287,7 +411,9 @@ fn goldens_cover_every_activation_loss_and_penalty() {
         if g.xs.len() == 1 {
             seen.insert("one sample".into());
         }
-        if m.loss == Loss::CrossEntropy && g.outputs.iter().flatten().any(|&a| a == 1.0 || a < 1e-30) {
+        if m.loss == Loss::CrossEntropy
+            && g.outputs.iter().flatten().any(|&a| a == 1.0 || a < 1e-30)
+        {
             seen.insert(format!("saturated {}", m.output().activation.keyword()));
         }
     }
@@ -304,7 +430,11 @@ fn goldens_cover_every_activation_loss_and_penalty() {
         .iter()
         .map(|a| format!("hidden {a}"))
         .collect();
-    want.extend(["identity", "sigmoid", "tanh", "softmax"].iter().map(|a| format!("output {a}")));
+    want.extend(
+        ["identity", "sigmoid", "tanh", "softmax"]
+            .iter()
+            .map(|a| format!("output {a}")),
+    );
     want.extend(
         [
             "loss cross_entropy with sigmoid output",
@@ -356,16 +486,20 @@ fn same_shape(a: &Model, b: &Model) -> bool {
         && a.loss == b.loss
         && a.penalty == b.penalty
         && a.layers.len() == b.layers.len()
-        && a
-            .layers
-            .iter()
-            .zip(&b.layers)
-            .all(|(x, y)| x.width == y.width && x.fan_in == y.fan_in && x.activation == y.activation)
+        && a.layers.iter().zip(&b.layers).all(|(x, y)| {
+            x.width == y.width && x.fan_in == y.fan_in && x.activation == y.activation
+        })
 }
 
 impl Visit for Generated<'_> {
     fn visit<M: sinew_tests::Net>(&mut self) {
-        let Some(g) = self.goldens.iter().find(|g| g.fixture.as_deref() == Some(M::NAME)) else { return };
+        let Some(g) = self
+            .goldens
+            .iter()
+            .find(|g| g.fixture.as_deref() == Some(M::NAME))
+        else {
+            return;
+        };
         let fixture = model_of::<M>();
         if !is_f64::<M>() || !same_shape(&fixture, &g.model) {
             self.failures.push(format!(
@@ -377,7 +511,14 @@ impl Visit for Generated<'_> {
             return;
         }
         let mut p = M::zero();
-        set_flat(&mut p, &g.layers.iter().flat_map(|(w, b)| w.iter().chain(b)).copied().collect::<Vec<f64>>());
+        set_flat(
+            &mut p,
+            &g.layers
+                .iter()
+                .flat_map(|(w, b)| w.iter().chain(b))
+                .copied()
+                .collect::<Vec<f64>>(),
+        );
         p.scaling_mut(&mut |mean, std| {
             for (m, &v) in mean.iter_mut().zip(&g.mean) {
                 *m = M::Scalar::from_f64(v);
@@ -386,11 +527,23 @@ impl Visit for Generated<'_> {
                 *s = M::Scalar::from_f64(v);
             }
         });
-        let xs: Vec<M::X> = g.xs.iter().map(|x| to_array::<M, _>(M::x_zero(), x)).collect();
-        let ys: Vec<M::Y> = g.ys.iter().map(|y| to_array::<M, _>(M::y_zero(), y)).collect();
-        let outputs: Vec<Vec<f64>> =
-            xs.iter().map(|x| p.forward(x).as_ref().iter().map(|&v| v.into()).collect()).collect();
-        let losses: Vec<f64> = xs.iter().zip(&ys).map(|(x, y)| p.sample_loss(x, y).into()).collect();
+        let xs: Vec<M::X> =
+            g.xs.iter()
+                .map(|x| to_array::<M, _>(M::x_zero(), x))
+                .collect();
+        let ys: Vec<M::Y> =
+            g.ys.iter()
+                .map(|y| to_array::<M, _>(M::y_zero(), y))
+                .collect();
+        let outputs: Vec<Vec<f64>> = xs
+            .iter()
+            .map(|x| p.forward(x).as_ref().iter().map(|&v| v.into()).collect())
+            .collect();
+        let losses: Vec<f64> = xs
+            .iter()
+            .zip(&ys)
+            .map(|(x, y)| p.sample_loss(x, y).into())
+            .collect();
         let gradient = backprop_gradient::<M>(&p, &xs, &ys);
         let c = Computed {
             outputs,
@@ -400,7 +553,11 @@ impl Visit for Generated<'_> {
             gradient,
         };
         let (v, gr) = compare_all("generated", g, &c, &mut self.failures);
-        println!("{} (generated `{}`): worst relative difference: values {v:.1e}, gradient {gr:.1e}", g.file, M::NAME);
+        println!(
+            "{} (generated `{}`): worst relative difference: values {v:.1e}, gradient {gr:.1e}",
+            g.file,
+            M::NAME
+        );
         // The contract of DEVELOPERS.md: generated code and engine agree bit for bit.
         let e = engine_run(g);
         let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<u64>>();
@@ -418,7 +575,12 @@ impl Visit for Generated<'_> {
 #[test]
 fn generated_code_matches_autograd_goldens() {
     let all = goldens();
-    let mut v = Generated { goldens: &all, failures: Vec::new(), compared: Vec::new(), not_bitwise: Vec::new() };
+    let mut v = Generated {
+        goldens: &all,
+        failures: Vec::new(),
+        compared: Vec::new(),
+        not_bitwise: Vec::new(),
+    };
     sinew_tests::for_each_model(&mut v);
     let named: BTreeSet<&str> = all.iter().filter_map(|g| g.fixture.as_deref()).collect();
     let compared: BTreeSet<&str> = v.compared.iter().map(String::as_str).collect();
@@ -430,5 +592,9 @@ fn generated_code_matches_autograd_goldens() {
         v.failures.join("\n")
     );
     assert!(compared.len() >= 10, "{compared:?}");
-    assert!(v.not_bitwise.is_empty(), "generated code and engine differ bitwise on the goldens of {:?}", v.not_bitwise);
+    assert!(
+        v.not_bitwise.is_empty(),
+        "generated code and engine differ bitwise on the goldens of {:?}",
+        v.not_bitwise
+    );
 }

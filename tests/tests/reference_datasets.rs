@@ -61,11 +61,16 @@ fn model(spec: &str) -> Model {
     let path = root().join("reference").join("specs").join(spec);
     let src = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
     let checked = sinew::check_source(&src);
-    checked.model.unwrap_or_else(|| panic!("{spec} does not check: {:?}", checked.diagnostics))
+    checked
+        .model
+        .unwrap_or_else(|| panic!("{spec} does not check: {:?}", checked.diagnostics))
 }
 
 fn baseline(name: &str) -> Value {
-    let path = root().join("reference").join("baselines").join(format!("{name}.json"));
+    let path = root()
+        .join("reference")
+        .join("baselines")
+        .join(format!("{name}.json"));
     let text = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
     serde_json::from_str(&text).unwrap_or_else(|e| panic!("{}: {e}", path.display()))
 }
@@ -99,9 +104,15 @@ fn run(name: &str, spec: &str, data: &str, target: f64) {
         .iter()
         .map(|v| v.as_u64().expect("an index") as usize)
         .collect();
-    assert_eq!(test_indices(&ds), expected, "{name}: sinew's split differs from the one scikit-learn was run on");
+    assert_eq!(
+        test_indices(&ds),
+        expected,
+        "{name}: sinew's split differs from the one scikit-learn was run on"
+    );
 
-    let reference = base["sklearn"]["mean_test_accuracy"].as_f64().expect("mean_test_accuracy");
+    let reference = base["sklearn"]["mean_test_accuracy"]
+        .as_f64()
+        .expect("mean_test_accuracy");
     let request = TrainRequest {
         data: &data,
         split: TEST_FRACTION,
@@ -126,7 +137,10 @@ fn run(name: &str, spec: &str, data: &str, target: f64) {
         start.elapsed().as_secs_f64()
     );
     assert_eq!(test.samples, expected.len());
-    assert!(accuracy >= target, "{name}: test accuracy {accuracy} is below the target {target}");
+    assert!(
+        accuracy >= target,
+        "{name}: test accuracy {accuracy} is below the target {target}"
+    );
     assert!(
         accuracy >= reference - MARGIN,
         "{name}: test accuracy {accuracy} is below scikit-learn's {reference} minus {MARGIN}"
@@ -143,7 +157,12 @@ fn iris_reaches_the_reference_accuracy() {
 /// Learning Repository), 569 samples, 2 classes on one sigmoid unit.
 #[test]
 fn breast_cancer_reaches_the_reference_accuracy() {
-    run("breast_cancer", "breast_cancer.sinew", "breast_cancer.csv", 0.94);
+    run(
+        "breast_cancer",
+        "breast_cancer.sinew",
+        "breast_cancer.csv",
+        0.94,
+    );
 }
 
 /// Optical recognition of handwritten digits, 8 x 8 (Alpaydin and Kaynak 1998; UCI Machine

@@ -12,7 +12,11 @@ use sinew::ir::Model;
 
 fn model(src: &str) -> Model {
     let checked = sinew::check_source(src);
-    assert!(checked.diagnostics.iter().all(|d| !d.is_error()), "{src}\n{:?}", checked.diagnostics);
+    assert!(
+        checked.diagnostics.iter().all(|d| !d.is_error()),
+        "{src}\n{:?}",
+        checked.diagnostics
+    );
     checked.model.expect("the spec checks")
 }
 
@@ -25,7 +29,9 @@ fn gradient(m: &Model, p: &Params<f64>, xs: &[f64], ys: &[f64]) -> (f64, Params<
 }
 
 fn identity_matrix(n: usize) -> Vec<f64> {
-    (0..n * n).map(|k| if k / n == k % n { 1.0 } else { 0.0 }).collect()
+    (0..n * n)
+        .map(|k| if k / n == k % n { 1.0 } else { 0.0 })
+        .collect()
 }
 
 /// sigmoid'(0) = 1/4, from sigma'(z) = sigma(z) (1 - sigma(z)) and sigma(0) = 1/2 (handbook
@@ -34,7 +40,9 @@ fn identity_matrix(n: usize) -> Vec<f64> {
 /// output layer, and through a hidden layer (identity output with weight 1).
 #[test]
 fn sigmoid_derivative_at_zero_is_one_quarter() {
-    let m = model("model s\nscalar f64\ninput x 1\noutput y 1 sigmoid\nloss squared_error\npenalty none\n");
+    let m = model(
+        "model s\nscalar f64\ninput x 1\noutput y 1 sigmoid\nloss squared_error\npenalty none\n",
+    );
     let p = Params::<f64>::zeroed(&m);
     let net = Net::<f64>::new(&m);
     let mut out = [0.0];
@@ -57,7 +65,9 @@ fn sigmoid_derivative_at_zero_is_one_quarter() {
 /// practice). Zero parameters give z = 0, the target -1 gives output error 1.
 #[test]
 fn tanh_derivative_at_zero_is_one() {
-    let m = model("model t\nscalar f64\ninput x 1\noutput y 1 tanh\nloss squared_error\npenalty none\n");
+    let m = model(
+        "model t\nscalar f64\ninput x 1\noutput y 1 tanh\nloss squared_error\npenalty none\n",
+    );
     let p = Params::<f64>::zeroed(&m);
     let (_, g) = gradient(&m, &p, &[0.3], &[-1.0]);
     assert_eq!(g.layers[0].bias, [1.0]);
@@ -78,8 +88,16 @@ fn tanh_derivative_at_zero_is_one() {
 #[test]
 fn softmax_of_known_vectors() {
     let cases: [(&[f64], &[f64], f64); 2] = [
-        (&[1.0, 2.0, 3.0], &[0.09003057, 0.24472847, 0.66524096], 5e-9),
-        (&[1.0, 2.0, 3.0, 4.0, 1.0, 2.0, 3.0], &[0.024, 0.064, 0.175, 0.475, 0.024, 0.064, 0.175], 5e-4),
+        (
+            &[1.0, 2.0, 3.0],
+            &[0.09003057, 0.24472847, 0.66524096],
+            5e-9,
+        ),
+        (
+            &[1.0, 2.0, 3.0, 4.0, 1.0, 2.0, 3.0],
+            &[0.024, 0.064, 0.175, 0.475, 0.024, 0.064, 0.175],
+            5e-4,
+        ),
     ];
     for (x, published, tolerance) in cases {
         let n = x.len();
@@ -91,9 +109,15 @@ fn softmax_of_known_vectors() {
         Net::<f64>::new(&m).predict(&p, x, &mut Scratch::new(&m), &mut out);
         let total: f64 = x.iter().map(|v| v.exp()).sum();
         for ((&a, &want), &xj) in out.iter().zip(published).zip(x) {
-            assert!((a - want).abs() <= tolerance, "softmax {x:?}: {a} vs published {want}");
+            assert!(
+                (a - want).abs() <= tolerance,
+                "softmax {x:?}: {a} vs published {want}"
+            );
             let exact = xj.exp() / total;
-            assert!((a - exact).abs() <= 4.0 * f64::EPSILON * exact, "softmax {x:?}: {a} vs {exact}");
+            assert!(
+                (a - exact).abs() <= 4.0 * f64::EPSILON * exact,
+                "softmax {x:?}: {a} vs {exact}"
+            );
         }
     }
 }
@@ -105,7 +129,9 @@ fn softmax_of_known_vectors() {
 /// a - y finite. A logistic unit with logit 1000 and target 0 costs softplus(1000) = 1000.
 #[test]
 fn log_sum_exp_of_two_thousands_does_not_overflow() {
-    let m = model("model lse\nscalar f64\ninput x 2\noutput y 2 softmax\nloss cross_entropy\npenalty none\n");
+    let m = model(
+        "model lse\nscalar f64\ninput x 2\noutput y 2 softmax\nloss cross_entropy\npenalty none\n",
+    );
     let p = Params::<f64>::from_f64(&[(identity_matrix(2), vec![0.0; 2])], None);
     let net = Net::<f64>::new(&m);
     let mut s = Scratch::new(&m);
@@ -120,9 +146,14 @@ fn log_sum_exp_of_two_thousands_does_not_overflow() {
     assert_eq!(cost, loss);
     assert_eq!(g.layers[0].bias, [-0.5, 0.5]);
 
-    let m = model("model sp\nscalar f64\ninput x 1\noutput y 1 sigmoid\nloss cross_entropy\npenalty none\n");
+    let m = model(
+        "model sp\nscalar f64\ninput x 1\noutput y 1 sigmoid\nloss cross_entropy\npenalty none\n",
+    );
     let p = Params::<f64>::from_f64(&[(vec![1.0], vec![0.0])], None);
-    assert_eq!(Net::<f64>::new(&m).loss(&p, &[1000.0], &[0.0], &mut Scratch::new(&m)), 1000.0);
+    assert_eq!(
+        Net::<f64>::new(&m).loss(&p, &[1000.0], &[0.0], &mut Scratch::new(&m)),
+        1000.0
+    );
 }
 
 /// Sample mean and variance of `v`.
@@ -150,17 +181,37 @@ fn glorot_uniform_limit_and_variance() {
         let w = &lp.weights;
         let n = w.len() as f64;
         let max = w.iter().fold(0.0f64, |a, x| a.max(x.abs()));
-        assert!(max <= r, "{}: max |w| {max} above the limit {r}", layer.name);
-        assert!(max >= 0.999 * r, "{}: max |w| {max} far below the limit {r}", layer.name);
+        assert!(
+            max <= r,
+            "{}: max |w| {max} above the limit {r}",
+            layer.name
+        );
+        assert!(
+            max >= 0.999 * r,
+            "{}: max |w| {max} far below the limit {r}",
+            layer.name
+        );
         let (mean, var) = moments(w);
         let want_var = 2.0 / (fan_in + fan_out);
         // Standard errors: mean sqrt(var / n); variance sqrt((E w^4 - var^2) / n) with
         // E w^4 = r^4 / 5 for the uniform distribution.
-        assert!(mean.abs() <= 5.0 * (want_var / n).sqrt(), "{}: mean {mean}", layer.name);
+        assert!(
+            mean.abs() <= 5.0 * (want_var / n).sqrt(),
+            "{}: mean {mean}",
+            layer.name
+        );
         let se_var = ((r.powi(4) / 5.0 - want_var * want_var) / n).sqrt();
-        assert!((var - want_var).abs() <= 5.0 * se_var, "{}: variance {var} vs {want_var}", layer.name);
+        assert!(
+            (var - want_var).abs() <= 5.0 * se_var,
+            "{}: variance {var} vs {want_var}",
+            layer.name
+        );
         let inner = w.iter().filter(|x| x.abs() < r / 2.0).count() as f64 / n;
-        assert!((inner - 0.5).abs() <= 5.0 * (0.25 / n).sqrt(), "{}: {inner} within r/2", layer.name);
+        assert!(
+            (inner - 0.5).abs() <= 5.0 * (0.25 / n).sqrt(),
+            "{}: {inner} within r/2",
+            layer.name
+        );
         assert!(lp.bias.iter().all(|&b| b == 0.0));
     }
 }
@@ -179,23 +230,42 @@ fn he_normal_standard_deviation() {
         let w = &lp.weights;
         let n = w.len() as f64;
         let (mean, var) = moments(w);
-        assert!(mean.abs() <= 5.0 * sigma / n.sqrt(), "{}: mean {mean}", layer.name);
+        assert!(
+            mean.abs() <= 5.0 * sigma / n.sqrt(),
+            "{}: mean {mean}",
+            layer.name
+        );
         // The sample variance of a normal has standard error var sqrt(2 / n).
         let want_var = sigma * sigma;
-        assert!((var - want_var).abs() <= 5.0 * want_var * (2.0 / n).sqrt(), "{}: variance {var} vs {want_var}", layer.name);
+        assert!(
+            (var - want_var).abs() <= 5.0 * want_var * (2.0 / n).sqrt(),
+            "{}: variance {var} vs {want_var}",
+            layer.name
+        );
         let within = w.iter().filter(|x| x.abs() <= sigma).count() as f64 / n;
         let p1 = 0.682689;
-        assert!((within - p1).abs() <= 5.0 * (p1 * (1.0 - p1) / n).sqrt(), "{}: {within} within one sigma", layer.name);
+        assert!(
+            (within - p1).abs() <= 5.0 * (p1 * (1.0 - p1) / n).sqrt(),
+            "{}: {within} within one sigma",
+            layer.name
+        );
         // Kurtosis E (w - mean)^4 / var^2 = 3 for a normal, standard error sqrt(24 / n).
         let kurtosis = w.iter().map(|x| (x - mean).powi(4)).sum::<f64>() / n / (var * var);
-        assert!((kurtosis - 3.0).abs() <= 5.0 * (24.0 / n).sqrt(), "{}: kurtosis {kurtosis}", layer.name);
+        assert!(
+            (kurtosis - 3.0).abs() <= 5.0 * (24.0 / n).sqrt(),
+            "{}: kurtosis {kurtosis}",
+            layer.name
+        );
     }
 }
 
 /// A value published with `decimals` decimals, compared to half a unit in its last place.
 fn close_to_published(what: &str, got: f64, published: f64, decimals: i32) {
     let tolerance = 0.5 * 10f64.powi(-decimals) + 1e-15;
-    assert!((got - published).abs() <= tolerance, "{what}: sinew {got}, published {published}");
+    assert!(
+        (got - published).abs() <= tolerance,
+        "{what}: sinew {got}, published {published}"
+    );
 }
 
 /// The 2-2-2 worked example of M. Mazur (2015), "A Step by Step Backpropagation Example"
@@ -217,7 +287,10 @@ fn the_worked_backprop_example_through_the_engine() {
          train sgd rate 0.5 batch 1 epochs 1\n",
     );
     let p = Params::<f64>::from_f64(
-        &[(vec![0.15, 0.20, 0.25, 0.30], vec![0.35, 0.35]), (vec![0.40, 0.45, 0.50, 0.55], vec![0.60, 0.60])],
+        &[
+            (vec![0.15, 0.20, 0.25, 0.30], vec![0.35, 0.35]),
+            (vec![0.40, 0.45, 0.50, 0.55], vec![0.60, 0.60]),
+        ],
         None,
     );
     let (x, y) = ([0.05, 0.10], [0.01, 0.99]);
@@ -238,12 +311,32 @@ fn the_worked_backprop_example_through_the_engine() {
     let mut trainer = Trainer::new(&m, p);
     let before = trainer.step(&data.xs, &data.ys);
     assert_eq!(before, cost, "the step reports J before the update");
-    let hidden = [(0.149780716, 9), (0.19956143, 8), (0.24975114, 8), (0.29950229, 8)];
-    let output = [(0.35891648, 8), (0.408666186, 9), (0.511301270, 9), (0.561370121, 9)];
-    for (k, (&got, &(want, d))) in trainer.params.layers[0].weights.iter().zip(&hidden).enumerate() {
+    let hidden = [
+        (0.149780716, 9),
+        (0.19956143, 8),
+        (0.24975114, 8),
+        (0.29950229, 8),
+    ];
+    let output = [
+        (0.35891648, 8),
+        (0.408666186, 9),
+        (0.511301270, 9),
+        (0.561370121, 9),
+    ];
+    for (k, (&got, &(want, d))) in trainer.params.layers[0]
+        .weights
+        .iter()
+        .zip(&hidden)
+        .enumerate()
+    {
         close_to_published(&format!("w{}+", k + 1), got, want, d);
     }
-    for (k, (&got, &(want, d))) in trainer.params.layers[1].weights.iter().zip(&output).enumerate() {
+    for (k, (&got, &(want, d))) in trainer.params.layers[1]
+        .weights
+        .iter()
+        .zip(&output)
+        .enumerate()
+    {
         close_to_published(&format!("w{}+", k + 5), got, want, d);
     }
 }

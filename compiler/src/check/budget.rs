@@ -180,3 +180,46 @@ pub(crate) fn check(model: &Model, parts: &Parts<'_>, diags: &mut Vec<Diagnostic
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::{enough, figure};
+    use crate::check_source;
+
+    #[test]
+    fn figures_and_smallest_sufficient_budget() {
+        assert_eq!(figure(788), "788 B");
+        assert_eq!(figure(1536), "1.5 KiB (1536 B)");
+        assert_eq!(enough(1024), "1024 B");
+        assert_eq!(enough(1025), "2 KiB");
+        assert_eq!(enough(2 * 1024 * 1024 + 1), "3 MiB");
+    }
+
+    #[test]
+    fn pump_health_figures_against_budgets() {
+        // 6-10-8-3, f32, standardized: flash 788 B and inference RAM 108 B (report.rs works
+        // through both figures).
+        let spec = |budget: &str| {
+            format!(
+                "model pump_health\ninput features 6 standardize\nlayer hidden1 10 sigmoid\n\
+                 layer hidden2 8 tanh\noutput state 3 softmax\nloss cross_entropy\n{budget}\n"
+            )
+        };
+        let codes = |b: &str| -> Vec<&str> {
+            check_source(&spec(b))
+                .diagnostics
+                .iter()
+                .map(|d| d.code)
+                .collect()
+        };
+        assert!(codes("budget flash 788 B ram 108 B").is_empty());
+        assert_eq!(codes("budget flash 787 B"), ["S0701"]);
+        assert_eq!(codes("budget ram 107 B"), ["S0702"]);
+        let d = &check_source(&spec("budget flash 787 B")).diagnostics[0];
+        assert_eq!(
+            d.message,
+            "the model needs 788 B of flash, more than the budget of 787 B"
+        );
+        assert_eq!(codes("budget ram 18014398509481984 MiB"), ["S0703"]); // 2^54 MiB = 2^74 B
+    }
+}

@@ -160,9 +160,14 @@ pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnost
             let units = if width == 1 { "unit" } else { "units" };
             (
                 format!("output `{}` has {width} {units} here", out.name.node),
-                format!(
-                    "list one class name per output unit ({width}), or change the width to {found}"
-                ),
+                if found >= 1 && !(is_softmax && found < 2) {
+                    format!(
+                        "list one class name per output unit ({width}), or change the width to \
+                         {found}"
+                    )
+                } else {
+                    format!("list one class name per output unit ({width})")
+                },
             )
         };
         diags.push(
@@ -177,6 +182,60 @@ pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnost
             ))
             .with_secondary(out.width.span, secondary)
             .with_help(help),
+        );
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use crate::check_source;
+
+    fn codes(output: &str, loss: &str) -> Vec<&'static str> {
+        let src = format!("model m\ninput x 4\n{output}\nloss {loss}\n");
+        check_source(&src)
+            .diagnostics
+            .iter()
+            .map(|d| d.code)
+            .collect()
+    }
+
+    #[test]
+    fn loss_and_output_pairs() {
+        for act in ["sigmoid", "softmax"] {
+            assert!(
+                codes(&format!("output y 3 {act}"), "cross_entropy").is_empty(),
+                "{act}"
+            );
+        }
+        for act in ["identity", "tanh", "relu", "leaky_relu 0.1"] {
+            assert_eq!(
+                codes(&format!("output y 3 {act}"), "cross_entropy"),
+                ["S0503"],
+                "{act}"
+            );
+            assert!(
+                codes(&format!("output y 3 {act}"), "squared_error").is_empty(),
+                "{act}"
+            );
+        }
+        assert_eq!(codes("output y 3 softmax", "squared_error"), ["W0101"]);
+        assert_eq!(codes("output y 1 softmax", "cross_entropy"), ["S0502"]);
+    }
+
+    #[test]
+    fn class_counts() {
+        let ok = |o: &str| assert!(codes(o, "cross_entropy").is_empty(), "{o}");
+        let bad = |o: &str| assert_eq!(codes(o, "cross_entropy"), ["S0504"], "{o}");
+        ok("output y 2 softmax classes a, b");
+        ok("output y 1 sigmoid classes no, yes");
+        ok("output y 3 sigmoid classes a, b, c");
+        bad("output y 1 sigmoid classes yes");
+        bad("output y 1 sigmoid classes a, b, c");
+        bad("output y 2 sigmoid classes a, b, c");
+        bad("output y 3 softmax classes a, b");
+        assert_eq!(
+            codes("output y 2 identity classes a, b", "squared_error"),
+            ["S0505"]
         );
     }
 }

@@ -381,3 +381,72 @@ fn build(
         budget: budget?,
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn codes(src: &str) -> Vec<&'static str> {
+        check_source(src)
+            .diagnostics
+            .iter()
+            .map(|d| d.code)
+            .collect()
+    }
+
+    const OK: &str = "model m\ninput x 2\noutput y 1 sigmoid\nloss cross_entropy\n";
+
+    #[test]
+    fn a_minimal_spec_is_clean() {
+        let checked = check_source(OK);
+        assert!(checked.diagnostics.is_empty());
+        let m = checked.model.expect("model");
+        // 2 weights + 1 bias.
+        assert_eq!((m.layers.len(), m.parameters()), (1, 3));
+        assert_eq!(m.layers[0].fan_in, 2);
+    }
+
+    #[test]
+    fn every_missing_required_section_is_reported() {
+        assert_eq!(codes(""), ["S0201", "S0202", "S0203", "S0204"]);
+        assert_eq!(codes("model m\n"), ["S0202", "S0203", "S0204"]);
+    }
+
+    #[test]
+    fn a_misspelt_keyword_does_not_also_count_as_missing() {
+        // `modle` is taken to be the `model` line, so S0201 would only be noise.
+        assert_eq!(codes(&OK.replace("model m", "modle m")), ["S0101"]);
+        assert_eq!(
+            codes(&OK.replace("loss cross_entropy", "loss cross_entrpy")),
+            ["S0103"]
+        );
+    }
+
+    #[test]
+    fn duplicates_and_order() {
+        assert_eq!(codes(&format!("{OK}loss squared_error\n")), ["S0205"]);
+        assert_eq!(codes(&format!("{OK}scalar f64\n")), ["S0206"]);
+        // Several hidden layers are fine; a layer after the output is not.
+        let two = OK.replace("output", "layer a 3 relu\nlayer b 3 relu\noutput");
+        assert!(codes(&two).is_empty());
+        assert_eq!(codes(&format!("{OK}layer late 3 relu\n")), ["S0206"]);
+    }
+
+    #[test]
+    fn warnings_keep_the_model() {
+        let src = format!("{OK}penalty l2 0\n");
+        let checked = check_source(&src);
+        assert_eq!(checked.diagnostics.len(), 1);
+        assert!(!checked.has_errors());
+        assert!(checked.model.is_some());
+    }
+
+    #[test]
+    fn a_byte_order_mark_is_ignored() {
+        let src = format!("\u{feff}{OK}");
+        assert!(check_source(&src).diagnostics.is_empty());
+        let bad = format!("\u{feff}{}", OK.replace("sigmoid", "sigmod"));
+        let d = &check_source(&bad).diagnostics[0];
+        assert_eq!(&bad[d.primary.span.range()], "sigmod");
+    }
+}

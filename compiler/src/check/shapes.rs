@@ -445,3 +445,72 @@ pub(crate) fn settings(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Settin
         train,
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use crate::check_source;
+
+    fn codes(src: &str) -> Vec<&'static str> {
+        check_source(src)
+            .diagnostics
+            .iter()
+            .map(|d| d.code)
+            .collect()
+    }
+
+    fn net(input: &str, output: &str) -> String {
+        format!("model m\ninput x {input}\noutput y {output} identity\nloss squared_error\n")
+    }
+
+    #[test]
+    fn widths_from_1_to_65535() {
+        assert!(codes(&net("1", "1")).is_empty());
+        assert!(codes(&net("65535", "1")).is_empty());
+        assert_eq!(codes(&net("65536", "1")), ["S0402"]);
+        assert_eq!(codes(&net("0", "1")), ["S0401"]);
+        // Far beyond 64 bits: no overflow, just "too wide".
+        assert_eq!(codes(&net(&"9".repeat(60), "1")), ["S0402"]);
+    }
+
+    #[test]
+    fn parameter_limit_is_16_mi() {
+        // 4095 inputs, 4096 outputs: 4096 * 4095 weights + 4096 biases = 4096^2 = 16777216,
+        // exactly the limit.
+        assert!(codes(&net("4095", "4096")).is_empty());
+        // One more input: 4096 * 4096 + 4096 = 16781312 > 16777216.
+        assert_eq!(codes(&net("4096", "4096")), ["S0403"]);
+    }
+
+    #[test]
+    fn parameter_count_uses_wide_arithmetic() {
+        // Every width at the maximum: 65535 * 65535 + 65535 per layer, about 4.3e9 each; the
+        // sum over many layers does not overflow.
+        let mut src = String::from("model m\ninput x 65535\n");
+        for i in 0..50 {
+            src.push_str(&format!("layer h{i} 65535 relu\n"));
+        }
+        src.push_str("output y 65535 identity\nloss squared_error\n");
+        assert_eq!(codes(&src), ["S0403"]);
+    }
+
+    #[test]
+    fn number_ranges() {
+        let base = net("2", "1");
+        let with = |line: &str| codes(&format!("{base}{line}\n"));
+        assert!(with("train sgd rate 1e-3 momentum 0").is_empty());
+        assert_eq!(with("train sgd rate -1e-3"), ["S0602"]);
+        assert_eq!(with("train sgd rate 1e-400"), ["S0602"]); // underflows to 0
+        assert_eq!(with("train sgd rate 0.1 momentum -0.1"), ["S0603"]);
+        assert!(with("train adam rate 0.1 beta1 0.5 beta2 0.5").is_empty());
+        assert_eq!(
+            with("train adam rate 0.1 beta1 0 beta2 1"),
+            ["S0604", "S0604"]
+        );
+        assert_eq!(with("penalty l1 1e400"), ["S0601"]);
+        assert_eq!(with("init uniform -1"), ["S0606"]);
+        assert!(with("init he seed 18446744073709551615").is_empty());
+        assert_eq!(with("init he seed 18446744073709551616"), ["S0609"]);
+        assert!(with("train sgd rate 1 batch 4294967295 epochs 1").len() == 1); // W0103
+        assert_eq!(with("train sgd rate 1 epochs 4294967296"), ["S0608"]);
+    }
+}

@@ -415,6 +415,22 @@ fn is_invisible(c: char) -> bool {
         || matches!(c, '\u{200b}'..='\u{200f}' | '\u{2060}' | '\u{feff}')
 }
 
+/// The name of a few invisible characters that turn up in pasted text.
+fn char_name(c: char) -> Option<&'static str> {
+    Some(match c {
+        '\u{0}' => "null",
+        '\r' => "carriage return",
+        '\u{b}' => "vertical tab",
+        '\u{c}' => "form feed",
+        '\u{a0}' => "no-break space",
+        '\u{2007}' => "figure space",
+        '\u{202f}' => "narrow no-break space",
+        '\u{200b}' => "zero-width space",
+        '\u{feff}' => "zero-width no-break space",
+        _ => return None,
+    })
+}
+
 /// True for characters that can be part of a word (see `word_char` in the grammar).
 fn is_word_char(c: char) -> bool {
     !matches!(c, ' ' | '\t' | ',' | '#' | '\r' | '\n')
@@ -546,8 +562,9 @@ fn syntax_error(
             let d = Diagnostic::error(
                 "S0106",
                 format!(
-                    "the line contains the invisible character U+{:04X}",
-                    c as u32
+                    "the line contains the invisible character U+{:04X}{}",
+                    c as u32,
+                    char_name(c).map(|n| format!(" ({n})")).unwrap_or_default()
                 ),
                 at(at_char),
             )
