@@ -807,8 +807,9 @@ pub fn split(ds: &Dataset, fraction: f64, seed: u64) -> (Dataset, Dataset) {
 }
 
 /// Fisher–Yates shuffle (Knuth, TAOCP vol. 2, Algorithm P): for `i` from `len - 1` down to 1,
-/// swap element `i` with element `next_u64 % (i + 1)`.
-fn shuffle(v: &mut [usize], rng: &mut SplitMix64) {
+/// swap element `i` with element `next_u64 % (i + 1)` (the modulo bias is below 2^-40 for the
+/// sizes used here). Shared by the split and the trainer's mini-batch order.
+pub fn shuffle<X>(v: &mut [X], rng: &mut SplitMix64) {
     for i in (1..v.len()).rev() {
         let j = (rng.next_u64() % (i as u64 + 1)) as usize;
         v.swap(i, j);

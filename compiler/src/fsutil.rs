@@ -15,8 +15,11 @@ fn temp_sibling(path: &Path) -> io::Result<PathBuf> {
             "the output path has no file name",
         )
     })?;
+    // Process id and a per-process counter: concurrent writers never share a temporary file.
+    static NEXT: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+    let n = NEXT.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
     let mut tmp = name.to_os_string();
-    tmp.push(format!(".{}.tmp", std::process::id()));
+    tmp.push(format!(".{}-{n}.tmp", std::process::id()));
     Ok(path.with_file_name(tmp))
 }
 

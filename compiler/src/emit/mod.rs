@@ -223,8 +223,9 @@ fn module_doc(model: &Model, spec_name: &str) -> Vec<String> {
     let last = model.layers.len() - 1;
     for (i, l) in model.layers.iter().enumerate() {
         let role = if i == last { "output" } else { "layer" };
+        let units = if l.width == 1 { "unit" } else { "units" };
         let mut line = format!(
-            "- {role} `{}`: {} units, {}",
+            "- {role} `{}`: {} {units}, {}",
             l.name,
             l.width,
             activation_words(l.activation)

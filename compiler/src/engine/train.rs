@@ -8,6 +8,7 @@
 //! [`TrainError::Diverged`].
 
 use super::{batch, eval, Net, OptState, Params};
+use crate::data::shuffle;
 use crate::ir::{defaults, Model, Optimizer};
 use sinew_runtime::{rng::SplitMix64, Real};
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -372,15 +373,6 @@ pub fn train<T: Real + Send + Sync>(
         stopped_early,
         method: method_name(&method),
     })
-}
-
-/// Fisher–Yates shuffle (Knuth, TAOCP vol. 2, Algorithm P) driven by SplitMix64; the index is
-/// drawn as `next_u64 % (i + 1)` (the bias is below 2^-40 for the sizes used here).
-pub fn shuffle<X>(v: &mut [X], rng: &mut SplitMix64) {
-    for i in (1..v.len()).rev() {
-        let j = (rng.next_u64() % (i as u64 + 1)) as usize;
-        v.swap(i, j);
-    }
 }
 
 mod lbfgs {
