@@ -31,7 +31,8 @@ use std::fmt;
 use std::io::Write;
 use std::path::{Component, Path, PathBuf};
 
-/// One spec to compile, with everything that is per spec.
+/// One spec to compile, with everything that is per spec (a weights file to bake in joins the
+/// path here, and `compile_one` turns it into `EmitOptions::weights`).
 #[derive(Debug, Clone, PartialEq)]
 struct SpecEntry {
     /// The spec file, as given.
@@ -58,18 +59,21 @@ pub struct Builder {
     out_dir: Option<PathBuf>,
     unroll_below: usize,
     cargo_metadata: bool,
+    cargo_warnings: bool,
     color: bool,
 }
 
 impl Default for Builder {
     /// Every default, in one place: no specs; the output folder is `OUT_DIR`; no unrolling
-    /// (`unroll_below` 0); `cargo:` lines printed; diagnostics without colour.
+    /// (`unroll_below` 0); `cargo:rerun-if-changed` and `cargo:warning` lines printed;
+    /// diagnostics without colour.
     fn default() -> Self {
         Builder {
             specs: Vec::new(),
             out_dir: None,
             unroll_below: 0,
             cargo_metadata: true,
+            cargo_warnings: true,
             color: false,
         }
     }
@@ -111,9 +115,17 @@ impl Builder {
         self
     }
 
-    /// Whether to print `cargo:rerun-if-changed` and `cargo:warning` lines (default true).
+    /// Whether to print `cargo:rerun-if-changed` lines (default true). Turn off only outside a
+    /// build script; this also turns off the `cargo:warning` lines.
     pub fn cargo_metadata(&mut self, on: bool) -> &mut Self {
         self.cargo_metadata = on;
+        self
+    }
+
+    /// Whether to repeat each warning of a spec as a one-line `cargo:warning`, which Cargo shows
+    /// on every build of the package (default true). The full rendering goes to stderr either way.
+    pub fn cargo_warnings(&mut self, on: bool) -> &mut Self {
+        self.cargo_warnings = on;
         self
     }
 
@@ -171,7 +183,7 @@ impl Builder {
             let text = diag::render(&shown, &src, &checked.diagnostics, self.color);
             let mut err = std::io::stderr().lock();
             let _ = err.write_all(text.as_bytes());
-            if self.cargo_metadata {
+            if self.cargo_metadata && self.cargo_warnings {
                 for d in checked
                     .diagnostics
                     .iter()

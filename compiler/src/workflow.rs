@@ -328,20 +328,14 @@ pub fn gradcheck(
         }
         None => drawn_samples(model, opts.samples, opts.seed),
     };
-    let tol = gradcheck::Tolerance {
+    let check = gradcheck::CheckOptions {
+        step: opts.step,
         rtol: opts.threshold,
         atol: opts.atol,
+        max_per_layer: opts.max_per_layer,
+        seed: opts.seed,
     };
-    Ok(gradcheck::check(
-        model,
-        &p,
-        &xs,
-        &ys,
-        opts.step,
-        tol,
-        opts.max_per_layer,
-        opts.seed,
-    ))
+    Ok(gradcheck::check(model, &p, &xs, &ys, &check))
 }
 
 fn drawn_samples(model: &Model, m: usize, seed: u64) -> (Vec<f64>, Vec<f64>) {

@@ -118,11 +118,14 @@ fn gradient_matches_central_differences_for_every_activation_and_penalty() {
         } else {
             ys
         };
-        let tol = gradcheck::Tolerance {
+        let opts = gradcheck::CheckOptions {
+            step: 1e-5,
             rtol: 1e-7,
             atol: 1e-10,
+            max_per_layer: 1000,
+            seed: 1,
         };
-        let checks = gradcheck::check(&m, &p, &xs, &ys, 1e-5, tol, 1000, 1);
+        let checks = gradcheck::check(&m, &p, &xs, &ys, &opts);
         for c in checks {
             assert_eq!(
                 c.failures, 0,

@@ -48,7 +48,7 @@ pub trait Net: Sized + 'static {
     /// The arrays of a gradient, in the order of [`Net::arrays`].
     fn grad_arrays(g: &Self::Gradients, f: &mut dyn FnMut(&[Self::Scalar]));
     /// Calls `f(mean, std)` with `standardize`; does nothing without.
-    fn scaling_mut(&mut self, f: &mut dyn FnMut(&mut [Self::Scalar], &mut [Self::Scalar]));
+    fn scaling_mut(&mut self, f: &mut ScalingFn<'_, Self::Scalar>);
     /// `Params::predict`.
     fn forward(&self, x: &Self::X) -> Self::Y;
     /// `Params::loss`.
@@ -62,6 +62,9 @@ pub trait Net: Sized + 'static {
     /// `Params::penalty_cost`.
     fn penalty(&self, m: usize) -> Self::Scalar;
 }
+
+/// A callback given a model's input mean and std, `f(mean, std)`.
+pub type ScalingFn<'a, S> = dyn FnMut(&mut [S], &mut [S]) + 'a;
 
 /// A generic check run over every model by [`for_each_model`].
 pub trait Visit {

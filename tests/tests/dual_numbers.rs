@@ -35,24 +35,33 @@ impl Visit for DualOracle {
         // The oracle's value of J agrees with the generated cost.
         let (j, _) = reference_cost::<f64>(&model, &w, &mean, &std, &xr, &yr);
         let generated: f64 = p.batch_cost(&xs, &ys).into();
-        assert!(rel_err(j, generated, FLOOR) < 1e-12, "{}: J {j} vs {generated}", M::NAME);
+        assert!(
+            rel_err(j, generated, FLOOR) < 1e-12,
+            "{}: J {j} vs {generated}",
+            M::NAME
+        );
 
         let mut worst = 0.0f64;
-        for k in 0..w.len() {
+        for (k, &a) in analytic.iter().enumerate() {
             let seeded: Vec<Dual64> = w
                 .iter()
                 .enumerate()
-                .map(|(i, &v)| if i == k { Dual64::new(v, 1.0) } else { Dual64::from_re(v) })
+                .map(|(i, &v)| {
+                    if i == k {
+                        Dual64::new(v, 1.0)
+                    } else {
+                        Dual64::from_re(v)
+                    }
+                })
                 .collect();
             let (jd, _) = reference_cost(&model, &seeded, &mean, &std, &xr, &yr);
             let exact = jd.eps;
             assert!(rel_err(jd.re(), j, FLOOR) < 1e-14);
-            let r = rel_err(analytic[k], exact, FLOOR);
+            let r = rel_err(a, exact, FLOOR);
             assert!(
                 r < TOLERANCE,
-                "{}: parameter {k}: backprop {} vs dual numbers {exact} (relative error {r:e})",
-                M::NAME,
-                analytic[k]
+                "{}: parameter {k}: backprop {a} vs dual numbers {exact} (relative error {r:e})",
+                M::NAME
             );
             worst = worst.max(r);
         }
@@ -62,7 +71,9 @@ impl Visit for DualOracle {
 
 #[test]
 fn backprop_matches_dual_number_derivatives_for_every_f64_model() {
-    let mut v = DualOracle { checked: Vec::new() };
+    let mut v = DualOracle {
+        checked: Vec::new(),
+    };
     sinew_tests::for_each_model(&mut v);
     for (name, n, worst) in &v.checked {
         println!("{name}: {n} parameters, max relative error {worst:.2e}");

@@ -11,8 +11,19 @@ use std::path::{Path, PathBuf};
 fn generate_file(path: &Path, unroll_below: usize) -> String {
     let src = std::fs::read_to_string(path).expect("spec readable");
     let model = sinew::check_source(&src).model.expect("spec checks");
-    let spec_name = path.file_name().expect("file name").to_string_lossy().into_owned();
-    generate(&model, &EmitOptions { spec_name, unroll_below, weights: None })
+    let spec_name = path
+        .file_name()
+        .expect("file name")
+        .to_string_lossy()
+        .into_owned();
+    generate(
+        &model,
+        &EmitOptions {
+            spec_name,
+            unroll_below,
+            weights: None,
+        },
+    )
 }
 
 fn samples() -> PathBuf {
@@ -35,17 +46,33 @@ fn snapshots_of_the_generated_code_of_each_sample() {
 fn regenerating_is_byte_identical_to_what_build_rs_wrote() {
     let out = Path::new(env!("OUT_DIR"));
     let mut n = 0;
-    for dir in [samples(), Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures")] {
+    for dir in [
+        samples(),
+        Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures"),
+    ] {
         for entry in std::fs::read_dir(dir).expect("folder") {
             let path = entry.expect("entry").path();
             if path.extension().is_none_or(|e| e != "sinew") {
                 continue;
             }
             let fresh = generate_file(&path, 0);
-            assert_eq!(fresh, generate_file(&path, 0), "{} is not deterministic", path.display());
-            let name = path.file_stem().expect("stem").to_string_lossy().into_owned();
-            let built = std::fs::read_to_string(out.join(format!("{name}.rs"))).expect("built file");
-            assert!(fresh == built, "{name}: regenerated code differs from the build script's");
+            assert_eq!(
+                fresh,
+                generate_file(&path, 0),
+                "{} is not deterministic",
+                path.display()
+            );
+            let name = path
+                .file_stem()
+                .expect("stem")
+                .to_string_lossy()
+                .into_owned();
+            let built =
+                std::fs::read_to_string(out.join(format!("{name}.rs"))).expect("built file");
+            assert!(
+                fresh == built,
+                "{name}: regenerated code differs from the build script's"
+            );
             n += 1;
         }
     }
@@ -61,7 +88,11 @@ fn the_builder_does_not_rewrite_an_unchanged_file() {
     b.spec(&spec).out_dir(&dir).cargo_metadata(false);
     let files = b.compile().expect("compiles");
     assert_eq!(files, [dir.join("valve_gate.rs")]);
-    let mtime = |p: &Path| std::fs::metadata(p).and_then(|m| m.modified()).expect("mtime");
+    let mtime = |p: &Path| {
+        std::fs::metadata(p)
+            .and_then(|m| m.modified())
+            .expect("mtime")
+    };
     let first = mtime(&files[0]);
     std::thread::sleep(std::time::Duration::from_millis(50));
     assert_eq!(b.compile().expect("compiles again"), files);
@@ -69,13 +100,19 @@ fn the_builder_does_not_rewrite_an_unchanged_file() {
 
     // A changed spec does rewrite it.
     let edited = dir.join("valve_gate.sinew");
-    let text = std::fs::read_to_string(&spec).expect("spec").replace("seed 3", "seed 4");
+    let text = std::fs::read_to_string(&spec)
+        .expect("spec")
+        .replace("seed 3", "seed 4");
     std::fs::write(&edited, text).expect("write spec");
     let mut b = sinew::Builder::new();
     b.spec(&edited).out_dir(&dir).cargo_metadata(false);
     b.compile().expect("compiles");
-    assert!(std::fs::read_to_string(&files[0]).expect("output").contains("SplitMix64::new(seed)"));
-    assert!(std::fs::read_to_string(&files[0]).expect("output").contains("seed 4"));
+    assert!(std::fs::read_to_string(&files[0])
+        .expect("output")
+        .contains("SplitMix64::new(seed)"));
+    assert!(std::fs::read_to_string(&files[0])
+        .expect("output")
+        .contains("seed 4"));
     let _ = std::fs::remove_dir_all(&dir);
 }
 
@@ -112,8 +149,13 @@ fn unrolled_kernels_give_the_same_bits() {
     let mut v = SameBits { pairs: 0 };
     sinew_tests::for_each_unrolled_pair(&mut v);
     assert_eq!(v.pairs, 5);
-    let unrolled = std::fs::read_to_string(Path::new(env!("OUT_DIR")).join("unrolled/valve_gate.rs")).expect("file");
-    assert!(!unrolled.contains("rt::affine_n(") && unrolled.contains("ZERO + w0_0 * u0 + w0_1 * u1 + b0"));
+    let unrolled =
+        std::fs::read_to_string(Path::new(env!("OUT_DIR")).join("unrolled/valve_gate.rs"))
+            .expect("file");
+    assert!(
+        !unrolled.contains("rt::affine_n(")
+            && unrolled.contains("ZERO + w0_0 * u0 + w0_1 * u1 + b0")
+    );
 }
 
 #[test]
@@ -128,15 +170,26 @@ fn baked_weights_hold_exact_bits() {
             for (k, v) in a.iter().enumerate() {
                 let want = <M::Scalar as sinew_runtime::Real>::from_f64(baked_value(array, k));
                 let (got, want): (f64, f64) = ((*v).into(), want.into());
-                assert_eq!(got.to_bits(), want.to_bits(), "{}: array {array} value {k}", M::NAME);
+                assert_eq!(
+                    got.to_bits(),
+                    want.to_bits(),
+                    "{}: array {array} value {k}",
+                    M::NAME
+                );
                 n += 1;
             }
             array += 1;
         });
         n
     }
-    assert_eq!(check(&baked::valve_gate::TRAINED), baked::valve_gate::PARAMETERS);
-    assert_eq!(check(&baked::light_level::TRAINED), baked::light_level::PARAMETERS);
+    assert_eq!(
+        check(&baked::valve_gate::TRAINED),
+        baked::valve_gate::PARAMETERS
+    );
+    assert_eq!(
+        check(&baked::light_level::TRAINED),
+        baked::light_level::PARAMETERS
+    );
     let t = &baked::light_level::TRAINED;
     for k in 0..2 {
         assert_eq!(t.input_mean[k].to_bits(), (baked_mean(k) as f32).to_bits());

@@ -86,7 +86,8 @@ impl Visit for FiniteDifferences {
                 set_flat(&mut p, &w);
                 let minus: f64 = p.batch_cost(&xs, &ys).into();
                 w[k] = w0[k];
-                worst_wrong = worst_wrong.max(rel_err(wrong[k], (plus - minus) / (2.0 * STEP), FLOOR));
+                worst_wrong =
+                    worst_wrong.max(rel_err(wrong[k], (plus - minus) / (2.0 * STEP), FLOOR));
             }
             set_flat(&mut p, &w0);
             self.mutated.push((M::NAME, worst_wrong));
@@ -96,20 +97,35 @@ impl Visit for FiniteDifferences {
 
 #[test]
 fn backprop_matches_central_differences_for_every_f64_model() {
-    let mut v = FiniteDifferences { checked: Vec::new(), mutated: Vec::new() };
+    let mut v = FiniteDifferences {
+        checked: Vec::new(),
+        mutated: Vec::new(),
+    };
     sinew_tests::for_each_model(&mut v);
     for (name, n, worst) in &v.checked {
         println!("{name}: {n} parameters, max relative error {worst:.2e}");
     }
     let names: Vec<&str> = v.checked.iter().map(|c| c.0).collect();
     // Every f64 sample and fixture took part (one of each kind named here).
-    for expected in ["valve_gate", "relay_pair", "conveyor_jam", "soil_moisture", "fan_speed"] {
-        assert!(names.contains(&expected), "{expected} was not checked: {names:?}");
+    for expected in [
+        "valve_gate",
+        "relay_pair",
+        "conveyor_jam",
+        "soil_moisture",
+        "fan_speed",
+    ] {
+        assert!(
+            names.contains(&expected),
+            "{expected} was not checked: {names:?}"
+        );
     }
     assert!(names.len() >= 10, "{names:?}");
     assert!(!v.mutated.is_empty());
     for (name, worst) in &v.mutated {
         println!("{name}: halved penalty gradient, max relative error {worst:.2e}");
-        assert!(*worst > 1e-3, "{name}: the check missed a halved penalty gradient ({worst:e})");
+        assert!(
+            *worst > 1e-3,
+            "{name}: the check missed a halved penalty gradient ({worst:e})"
+        );
     }
 }

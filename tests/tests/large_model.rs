@@ -37,7 +37,10 @@ fn crops(n: usize, seed: u64) -> (Vec<[f32; dd::INPUTS]>, Vec<[f32; dd::OUTPUTS]
 
 #[test]
 fn large_model_through_the_in_place_apis() {
-    assert_eq!(dd::PARAMETERS, 784 * 128 + 128 + 128 * 64 + 64 + 64 * 10 + 10);
+    assert_eq!(
+        dd::PARAMETERS,
+        784 * 128 + 128 + 128 * 64 + 64 + 64 * 10 + 10
+    );
     assert_eq!(std::mem::size_of::<dd::Params>(), dd::PARAMETERS * 4);
     let mut t = TRAINER.lock().expect("not poisoned");
     t.params.init_in_place(53);
@@ -45,7 +48,11 @@ fn large_model_through_the_in_place_apis() {
     // He init: normal with std sqrt(2 / fan_in); the sample std of the first layer is close.
     let w = t.params.hidden1_weights.as_flattened();
     let var = w.iter().map(|&v| f64::from(v) * f64::from(v)).sum::<f64>() / w.len() as f64;
-    assert!((var.sqrt() / (2.0f64 / 784.0).sqrt() - 1.0).abs() < 0.02, "{}", var.sqrt());
+    assert!(
+        (var.sqrt() / (2.0f64 / 784.0).sqrt() - 1.0).abs() < 0.02,
+        "{}",
+        var.sqrt()
+    );
 
     let (xs, ys) = crops(10, 1);
     let mut out = [0.0f32; dd::OUTPUTS];
@@ -66,22 +73,33 @@ fn large_model_through_the_in_place_apis() {
     let (xr, yr) = (rows(&xs), rows(&ys));
     let h1 = 784 * 128;
     let picks = [
-        h1 / 2 + 3,                        // a hidden1 weight
-        h1 + 5,                            // a hidden1 bias
-        h1 + 128 + 100,                    // a hidden2 weight
-        h1 + 128 + 128 * 64 + 7,           // a hidden2 bias
-        h1 + 128 + 128 * 64 + 64 + 321,    // an output weight
-        dd::PARAMETERS - 1,                // the last output bias
+        h1 / 2 + 3,                     // a hidden1 weight
+        h1 + 5,                         // a hidden1 bias
+        h1 + 128 + 100,                 // a hidden2 weight
+        h1 + 128 + 128 * 64 + 7,        // a hidden2 bias
+        h1 + 128 + 128 * 64 + 64 + 321, // an output weight
+        dd::PARAMETERS - 1,             // the last output bias
     ];
     for &k in &picks {
         let seeded: Vec<Dual64> = values
             .iter()
             .enumerate()
-            .map(|(i, &v)| if i == k { Dual64::new(v, 1.0) } else { Dual64::from_re(v) })
+            .map(|(i, &v)| {
+                if i == k {
+                    Dual64::new(v, 1.0)
+                } else {
+                    Dual64::from_re(v)
+                }
+            })
             .collect();
         let (j, _) = reference_cost(&model, &seeded, &[], &[], &xr, &yr);
         let r = rel_err(grads[k], j.eps, 1e-6);
-        assert!(r < 1e-3, "parameter {k}: backprop {} vs dual {} ({r:e})", grads[k], j.eps);
+        assert!(
+            r < 1e-3,
+            "parameter {k}: backprop {} vs dual {} ({r:e})",
+            grads[k],
+            j.eps
+        );
     }
 
     // Training steps in place: the cost falls.
@@ -102,6 +120,11 @@ fn large_model_through_the_in_place_apis() {
     let kept = trainer.params.digit_bias;
     trainer.reset();
     assert_eq!(trainer.params.digit_bias, kept);
-    assert!(trainer.m.hidden1_weights.as_flattened().iter().all(|&v| v == 0.0));
+    assert!(trainer
+        .m
+        .hidden1_weights
+        .as_flattened()
+        .iter()
+        .all(|&v| v == 0.0));
     assert_eq!(trainer.steps, 0);
 }

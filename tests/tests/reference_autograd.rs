@@ -248,7 +248,7 @@ fn compare(
     for (k, (&a, &b)) in got.iter().zip(want).enumerate() {
         let diff = (a - b).abs();
         let scale = a.abs().max(b.abs());
-        if !(diff <= rel * scale + floor) {
+        if diff.is_nan() || diff > rel * scale + floor {
             failures.push(format!(
                 "{what}[{k}]: sinew {a:e}, oracle {b:e} (difference {diff:.2e})"
             ));

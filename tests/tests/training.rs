@@ -9,13 +9,23 @@ use sinew_tests::{door_sensor, light_level, motor_current};
 fn door_data(n: usize) -> (Vec<[f64; 3]>, Vec<[f64; 1]>) {
     let mut rng = SplitMix64::new(2024);
     let xs: Vec<[f64; 3]> = (0..n)
-        .map(|_| [rng.uniform(-1.0, 1.0), rng.uniform(-1.0, 1.0), rng.uniform(-1.0, 1.0)])
+        .map(|_| {
+            [
+                rng.uniform(-1.0, 1.0),
+                rng.uniform(-1.0, 1.0),
+                rng.uniform(-1.0, 1.0),
+            ]
+        })
         .collect();
     let ys = xs
         .iter()
         .map(|x| {
             let open = x[0] + 0.5 * x[1] - x[2] > 0.0;
-            let class = if open { door_sensor::Class::Open } else { door_sensor::Class::Closed };
+            let class = if open {
+                door_sensor::Class::Open
+            } else {
+                door_sensor::Class::Closed
+            };
             class.target()
         })
         .collect();
@@ -60,20 +70,34 @@ fn adam_trainer_reduces_the_cost_in_f32() {
         .collect();
     let ys: Vec<[f32; 1]> = xs
         .iter()
-        .map(|x| if x[0] + x[1] > 1.0 { light_level::Class::Bright } else { light_level::Class::Dark }.target())
+        .map(|x| {
+            if x[0] + x[1] > 1.0 {
+                light_level::Class::Bright
+            } else {
+                light_level::Class::Dark
+            }
+            .target()
+        })
         .collect();
     let mut p = light_level::Params::init(43);
     // Scaling from the data, as the engine would compute it.
     for k in 0..2 {
         let mean = xs.iter().map(|x| x[k]).sum::<f32>() / 48.0;
-        let var = xs.iter().map(|x| (x[k] - mean) * (x[k] - mean)).sum::<f32>() / 48.0;
+        let var = xs
+            .iter()
+            .map(|x| (x[k] - mean) * (x[k] - mean))
+            .sum::<f32>()
+            / 48.0;
         p.input_mean[k] = mean;
         p.input_std[k] = var.sqrt();
     }
     let mut t = light_level::Trainer::new(p);
     let before = t.params.cost(&xs, &ys);
     for _ in 0..300 {
-        for (bx, by) in xs.chunks(light_level::Trainer::BATCH).zip(ys.chunks(light_level::Trainer::BATCH)) {
+        for (bx, by) in xs
+            .chunks(light_level::Trainer::BATCH)
+            .zip(ys.chunks(light_level::Trainer::BATCH))
+        {
             t.step(bx, by);
         }
     }
@@ -86,11 +110,18 @@ fn adam_trainer_reduces_the_cost_in_f32() {
 fn sgd_momentum_trainer_fits_a_regression_in_f32() {
     // Invented drive data: phase currents as a fixed smooth function of four settings.
     let mut rng = SplitMix64::new(99);
-    let xs: Vec<[f32; 4]> =
-        (0..32).map(|_| core::array::from_fn(|_| rng.uniform(-1.0, 1.0) as f32)).collect();
+    let xs: Vec<[f32; 4]> = (0..32)
+        .map(|_| core::array::from_fn(|_| rng.uniform(-1.0, 1.0) as f32))
+        .collect();
     let ys: Vec<[f32; 3]> = xs
         .iter()
-        .map(|x| [0.5 * x[0] - 0.2 * x[1], (x[2] * x[3]).tanh(), 0.3 * x[0] + 0.1])
+        .map(|x| {
+            [
+                0.5 * x[0] - 0.2 * x[1],
+                (x[2] * x[3]).tanh(),
+                0.3 * x[0] + 0.1,
+            ]
+        })
         .collect();
     let mut t = motor_current::Trainer::new(motor_current::Params::init(47));
     let before = t.params.cost(&xs, &ys);

@@ -40,7 +40,10 @@ fn mazur_step_by_step_example() {
 
     let mut t = relay_pair::Trainer::new(p.clone());
     let error = t.step(&xs, &ys);
-    assert!(matches_published(error, "0.298371109"), "total error {error}");
+    assert!(
+        matches_published(error, "0.298371109"),
+        "total error {error}"
+    );
     assert_eq!(error, p.cost(&xs, &ys));
 
     let [[w5, w6], [w7, w8]] = t.params.coils_weights;
@@ -55,10 +58,18 @@ fn mazur_step_by_step_example() {
         (w3, "0.24975114", "w3"),
         (w4, "0.29950229", "w4"),
     ] {
-        assert!(matches_published(value, published), "{name}: {value} vs published {published}");
+        assert!(
+            matches_published(value, published),
+            "{name}: {value} vs published {published}"
+        );
     }
     // Biases: plain SGD, b <- b - 0.5 dJ/db, with the gradient of the same step.
-    for (after, (before, g)) in t.params.hidden_bias.iter().zip(p.hidden_bias.iter().zip(&t.grad.hidden_bias)) {
+    for (after, (before, g)) in t
+        .params
+        .hidden_bias
+        .iter()
+        .zip(p.hidden_bias.iter().zip(&t.grad.hidden_bias))
+    {
         assert_eq!(*after, before - 0.5 * g);
     }
 }
@@ -70,7 +81,11 @@ fn mazur_step_by_step_example() {
 #[test]
 fn adam_steps_by_hand() {
     assert_eq!(
-        (tank_level::Trainer::BETA1, tank_level::Trainer::BETA2, tank_level::Trainer::EPSILON),
+        (
+            tank_level::Trainer::BETA1,
+            tank_level::Trainer::BETA2,
+            tank_level::Trainer::EPSILON
+        ),
         (0.9, 0.999, 1e-8)
     );
     let rate = tank_level::Trainer::RATE;
@@ -88,7 +103,11 @@ fn adam_steps_by_hand() {
     assert!((j - 1.805).abs() < 1e-15, "{j}");
     let w1 = 0.5 + 0.001 * 3.8 / (3.8 + 1e-8);
     let b1 = 0.1 + 0.001 * 1.9 / (1.9 + 1e-8);
-    assert!((t.params.level_weights[0][0] - w1).abs() < 1e-16, "{:?}", t.params.level_weights);
+    assert!(
+        (t.params.level_weights[0][0] - w1).abs() < 1e-16,
+        "{:?}",
+        t.params.level_weights
+    );
     assert!((t.params.level_bias[0] - b1).abs() < 1e-16);
     assert!((w1 - 0.500_999_999_997_368_4).abs() < 1e-15);
     assert!((t.m.level_weights[0][0] - 0.1 * -3.8).abs() < 1e-15);

@@ -56,7 +56,7 @@ pub(super) fn items(cx: &Ctx) -> TokenStream {
     } else {
         " The training target of this class: one-hot over the outputs."
     };
-    let target_doc = super::doc(&target_doc);
+    let target_doc = super::doc(target_doc);
     quote! {
         /// The classes of the output, in output order.
         #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]

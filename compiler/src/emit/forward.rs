@@ -267,7 +267,7 @@ pub(super) fn methods(cx: &Ctx) -> TokenStream {
         }
         Loss::SquaredError => " The loss of one sample (no penalty): `1/2 sum_j (a_j - y_j)^2`.",
     };
-    let loss_doc = super::doc(&loss_doc);
+    let loss_doc = super::doc(loss_doc);
     let penalty_sums = cx.names.layers.iter().map(|n| {
         let w = ident(&n.weights);
         quote!(sum += Self::PENALTY.sum(self.#w.as_flattened());)

@@ -24,7 +24,10 @@ enum Kind {
 
 fn kind(o: Optimizer) -> Kind {
     match o {
-        Optimizer::Sgd { rate, momentum } if momentum == 0.0 => Kind::Sgd { rate },
+        Optimizer::Sgd {
+            rate,
+            momentum: 0.0,
+        } => Kind::Sgd { rate },
         Optimizer::Sgd { rate, momentum } => Kind::Momentum { rate, mu: momentum },
         Optimizer::Adam {
             rate,

@@ -33,13 +33,19 @@ pub struct LayerCheck {
     pub failures: usize,
 }
 
-/// Tolerances of a check.
+/// How a check is run.
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub struct Tolerance {
-    /// Relative part.
+pub struct CheckOptions {
+    /// Finite-difference step h.
+    pub step: f64,
+    /// Relative part of the tolerance.
     pub rtol: f64,
-    /// Absolute part (the difference quotient's noise floor).
+    /// Absolute part of the tolerance (the difference quotient's noise floor).
     pub atol: f64,
+    /// Parameters checked per layer at most (drawn at random beyond it).
+    pub max_per_layer: usize,
+    /// Seed of the draws.
+    pub seed: u64,
 }
 
 /// The relative error used by the check.
@@ -48,21 +54,20 @@ pub fn relative_error(a: f64, b: f64) -> f64 {
 }
 
 /// Compares backprop with central differences on `xs`/`ys` (row-major f64) for every parameter,
-/// or for `max_per_layer` parameters drawn at random (seeded) per layer when a layer has more.
+/// or for `opts.max_per_layer` parameters drawn at random (seeded) per layer when a layer has
+/// more.
 pub fn check(
     model: &Model,
     params: &Params<f64>,
     xs: &[f64],
     ys: &[f64],
-    h: f64,
-    tol: Tolerance,
-    max_per_layer: usize,
-    seed: u64,
+    opts: &CheckOptions,
 ) -> Vec<LayerCheck> {
+    let (h, max_per_layer) = (opts.step, opts.max_per_layer);
     let net = Net::<f64>::new(model);
     let mut grad = Params::zero_gradient(model);
     let _ = batch::gradient_into(&net, params, xs, ys, &mut grad);
-    let mut rng = SplitMix64::new(seed);
+    let mut rng = SplitMix64::new(opts.seed);
     let mut p = params.clone();
     let mut out = Vec::new();
     for (l, layer) in model.layers.iter().enumerate() {
@@ -96,7 +101,7 @@ pub fn check(
             let e = relative_error(analytic, numeric);
             let abs = (analytic - numeric).abs();
             worst_abs = worst_abs.max(abs);
-            if abs > tol.atol + tol.rtol * analytic.abs().max(numeric.abs()) || !abs.is_finite() {
+            if abs > opts.atol + opts.rtol * analytic.abs().max(numeric.abs()) || !abs.is_finite() {
                 failures += 1;
             }
             if e >= worst.0 || worst.1.is_empty() {

@@ -623,7 +623,7 @@ fn syntax_error(
             found.map_or(eol, at),
         )
         .label("expected a class name")
-        .with_help("remove the trailing comma, or add the missing class name");
+        .with_help("remove the extra comma, or add the missing class name");
         return (d, meant);
     }
     let (Some(span), Some(word)) = (found, found_text) else {

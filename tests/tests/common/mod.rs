@@ -16,7 +16,11 @@ pub fn model_of<M: Net>() -> Model {
     let checked = sinew::check_source(M::SPEC);
     match checked.model {
         Some(m) => m,
-        None => panic!("{}: spec does not check: {:?}", M::NAME, checked.diagnostics),
+        None => panic!(
+            "{}: spec does not check: {:?}",
+            M::NAME,
+            checked.diagnostics
+        ),
     }
 }
 
@@ -126,7 +130,9 @@ pub fn data<M: Net>(model: &Model, m: usize, seed: u64) -> (Vec<M::X>, Vec<M::Y>
 
 /// Converts samples to f64 vectors.
 pub fn rows<S: Copy + Into<f64>, A: AsRef<[S]>>(v: &[A]) -> Vec<Vec<f64>> {
-    v.iter().map(|a| a.as_ref().iter().map(|&s| s.into()).collect()).collect()
+    v.iter()
+        .map(|a| a.as_ref().iter().map(|&s| s.into()).collect())
+        .collect()
 }
 
 /// The cost J written directly from DESIGN.md over any `num_dual` number type:
@@ -152,7 +158,13 @@ pub fn reference_cost<D: DualNum<f64> + Copy>(
         let mut a: Vec<D> = x
             .iter()
             .enumerate()
-            .map(|(i, &v)| if model.input.standardize { D::from((v - mean[i]) / std[i]) } else { D::from(v) })
+            .map(|(i, &v)| {
+                if model.input.standardize {
+                    D::from((v - mean[i]) / std[i])
+                } else {
+                    D::from(v)
+                }
+            })
             .collect();
         let mut offset = 0;
         for layer in &model.layers {
@@ -169,7 +181,10 @@ pub fn reference_cost<D: DualNum<f64> + Copy>(
                     s
                 })
                 .collect();
-            if matches!(layer.activation, Activation::Relu | Activation::LeakyRelu(_)) {
+            if matches!(
+                layer.activation,
+                Activation::Relu | Activation::LeakyRelu(_)
+            ) {
                 for zj in &z {
                     min_kink = min_kink.min(zj.re().abs());
                 }
@@ -196,7 +211,7 @@ pub fn reference_cost<D: DualNum<f64> + Copy>(
                 Activation::LeakyRelu(alpha) => {
                     for zj in z.iter_mut() {
                         if zj.re() <= 0.0 {
-                            *zj = *zj * alpha;
+                            *zj *= alpha;
                         }
                     }
                 }
@@ -210,14 +225,18 @@ pub fn reference_cost<D: DualNum<f64> + Copy>(
             a = z;
         }
         let loss = match (model.loss, model.output().activation) {
-            (Loss::CrossEntropy, Activation::Softmax) => {
-                a.iter().zip(y).fold(D::from(0.0), |s, (aj, &yj)| s - aj.ln() * yj)
-            }
+            (Loss::CrossEntropy, Activation::Softmax) => a
+                .iter()
+                .zip(y)
+                .fold(D::from(0.0), |s, (aj, &yj)| s - aj.ln() * yj),
             (Loss::CrossEntropy, _) => a.iter().zip(y).fold(D::from(0.0), |s, (aj, &yj)| {
                 s - (aj.ln() * yj + (D::from(1.0) - *aj).ln() * (1.0 - yj))
             }),
             (Loss::SquaredError, _) => {
-                a.iter().zip(y).fold(D::from(0.0), |s, (aj, &yj)| s + (*aj - yj) * (*aj - yj)) * 0.5
+                a.iter()
+                    .zip(y)
+                    .fold(D::from(0.0), |s, (aj, &yj)| s + (*aj - yj) * (*aj - yj))
+                    * 0.5
             }
         };
         total += loss;
@@ -260,7 +279,8 @@ pub fn data_away_from_kinks<M: Net>(
     let (mean, std) = scaling(params);
     for attempt in 0..1000 {
         let (xs, ys) = data::<M>(model, m, seed + attempt);
-        let (_, min_kink) = reference_cost::<f64>(model, &values, &mean, &std, &rows(&xs), &rows(&ys));
+        let (_, min_kink) =
+            reference_cost::<f64>(model, &values, &mean, &std, &rows(&xs), &rows(&ys));
         if min_kink > margin {
             return (xs, ys);
         }
