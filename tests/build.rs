@@ -249,6 +249,10 @@ impl crate::Net for {md}::Params {{
     fn finish(&self, g: &mut Self::Gradients, m: usize) {{ g.finish(self, m) }}
     fn batch_cost(&self, xs: &[Self::X], ys: &[Self::Y]) -> Self::Scalar {{ self.cost(xs, ys) }}
     fn penalty(&self, m: usize) -> Self::Scalar {{ self.penalty_cost(m) }}
+    type Trainer = {md}::Trainer;
+    fn trainer(params: Self) -> Self::Trainer {{ {md}::Trainer::new(params) }}
+    fn trainer_step(t: &mut Self::Trainer, xs: &[Self::X], ys: &[Self::Y]) -> Self::Scalar {{ t.step(xs, ys) }}
+    fn trainer_params(t: &Self::Trainer) -> &Self {{ &t.params }}
 }}
 "#,
         name = m.name

@@ -15,7 +15,11 @@ fn run(method: Option<Method>, epochs: Option<u32>) -> f64 {
         data: &data,
         split: 0.2,
         seed: 0,
-        options: TrainOptions { method, epochs, ..Default::default() },
+        options: TrainOptions {
+            method,
+            epochs,
+            ..Default::default()
+        },
         start: None,
     };
     let out = train(&model, &req, &mut |_| {}).unwrap();

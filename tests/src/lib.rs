@@ -61,6 +61,14 @@ pub trait Net: Sized + 'static {
     fn batch_cost(&self, xs: &[Self::X], ys: &[Self::Y]) -> Self::Scalar;
     /// `Params::penalty_cost`.
     fn penalty(&self, m: usize) -> Self::Scalar;
+    /// The generated `Trainer`.
+    type Trainer;
+    /// `Trainer::new(params)`.
+    fn trainer(params: Self) -> Self::Trainer;
+    /// `Trainer::step`.
+    fn trainer_step(t: &mut Self::Trainer, xs: &[Self::X], ys: &[Self::Y]) -> Self::Scalar;
+    /// The trainer's parameters.
+    fn trainer_params(t: &Self::Trainer) -> &Self;
 }
 
 /// A callback given a model's input mean and std, `f(mean, std)`.

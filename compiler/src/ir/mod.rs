@@ -172,7 +172,7 @@ pub struct Train {
 pub struct Budget {
     /// Limit on flash (parameter bytes), if given.
     pub flash: Option<u64>,
-    /// Limit on RAM (training RAM when the model is trained on device; see `report`), if given.
+    /// Limit on RAM held by inference (`report::Report::ram_inference_bytes`), if given.
     pub ram: Option<u64>,
 }
 

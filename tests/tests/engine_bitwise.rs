@@ -1,0 +1,125 @@
+//! Generated code against the host engine (`sinew::engine`), which calls the same runtime
+//! kernels in the same order: predictions, losses, gradients, costs and trainer steps must be
+//! bit-identical, for every model in both scalar types (DESIGN.md, numerical conventions; the
+//! check is on our own two back ends, the independent references are in `gradient_check.rs`,
+//! `dual_numbers.rs` and `worked_example.rs`).
+
+mod common;
+
+use common::*;
+use sinew::engine::{self, Scratch};
+use sinew_tests::{Net, Visit};
+
+/// Models above this size are exercised in `large_model.rs` through the in-place APIs only.
+const MAX_PARAMETERS: usize = 20_000;
+
+fn engine_params<M: Net>(model: &sinew::ir::Model, p: &mut M) -> engine::Params<M::Scalar> {
+    let flat = flat(p);
+    let mut layers = Vec::new();
+    let mut at = 0;
+    for l in &model.layers {
+        let w = flat[at..at + l.width * l.fan_in].to_vec();
+        let b = flat[at + l.width * l.fan_in..at + l.parameters()].to_vec();
+        at += l.parameters();
+        layers.push((w, b));
+    }
+    let (mean, std) = scaling(p);
+    let scaling = model
+        .input
+        .standardize
+        .then_some((mean.as_slice(), std.as_slice()));
+    engine::Params::from_f64(&layers, scaling)
+}
+
+fn bits<S: Copy + Into<f64>>(v: &[S]) -> Vec<u64> {
+    v.iter().map(|&s| s.into().to_bits()).collect()
+}
+
+struct SameAsEngine {
+    models: Vec<&'static str>,
+}
+
+impl Visit for SameAsEngine {
+    fn visit<M: Net>(&mut self)
+    where
+        M::Scalar: Send + Sync,
+    {
+        let model = model_of::<M>();
+        if model.parameters() > MAX_PARAMETERS {
+            return;
+        }
+        let mut p = generic_params::<M>(61);
+        let ep = engine_params(&model, &mut p);
+        let net = engine::Net::new(&model);
+        let mut s = Scratch::new(&model);
+        let (xs, ys) = data::<M>(&model, 9, 62);
+        let mut g = M::grad_zero();
+        let mut eg = engine::Params::zero_gradient(&model);
+        for (x, y) in xs.iter().zip(&ys) {
+            let mut out = vec![<M::Scalar as sinew_runtime::Real>::ZERO; model.output().width];
+            net.predict(&ep, x.as_ref(), &mut s, &mut out);
+            assert_eq!(
+                bits(p.forward(x).as_ref()),
+                bits(&out),
+                "{}: predict",
+                M::NAME
+            );
+            let l = p.sample_loss(x, y);
+            assert_eq!(
+                bits(&[l]),
+                bits(&[net.loss(&ep, x.as_ref(), y.as_ref(), &mut s)])
+            );
+            let lb = p.sample_backprop(x, y, &mut g);
+            let le = net.backprop(&ep, x.as_ref(), y.as_ref(), &mut eg, &mut s);
+            assert_eq!(bits(&[lb]), bits(&[le]), "{}: backprop loss", M::NAME);
+        }
+        p.finish(&mut g, xs.len());
+        net.finish(&mut eg, &ep, xs.len());
+        let mut generated = Vec::new();
+        M::grad_arrays(&g, &mut |a| generated.extend_from_slice(a));
+        let host: Vec<M::Scalar> = eg
+            .layers
+            .iter()
+            .flat_map(|l| l.weights.iter().chain(&l.bias).copied())
+            .collect();
+        assert_eq!(bits(&generated), bits(&host), "{}: gradient", M::NAME);
+        let flat_x: Vec<M::Scalar> = xs.iter().flat_map(|x| x.as_ref().to_vec()).collect();
+        let flat_y: Vec<M::Scalar> = ys.iter().flat_map(|y| y.as_ref().to_vec()).collect();
+        assert_eq!(
+            bits(&[p.batch_cost(&xs, &ys)]),
+            bits(&[net.cost(&ep, &flat_x, &flat_y)])
+        );
+
+        // Three optimizer steps of each trainer, from the same parameters.
+        let mut t = M::trainer(p);
+        let mut et = engine::Trainer::new(&model, ep);
+        for _ in 0..3 {
+            let a = M::trainer_step(&mut t, &xs, &ys);
+            let b = et.step(&flat_x, &flat_y);
+            assert_eq!(bits(&[a]), bits(&[b]), "{}: trainer cost", M::NAME);
+        }
+        let mut after = Vec::new();
+        M::trainer_params(&t).arrays(&mut |a| after.extend_from_slice(a));
+        let host: Vec<M::Scalar> = et
+            .params
+            .layers
+            .iter()
+            .flat_map(|l| l.weights.iter().chain(&l.bias).copied())
+            .collect();
+        assert_eq!(
+            bits(&after),
+            bits(&host),
+            "{}: parameters after 3 steps",
+            M::NAME
+        );
+        self.models.push(M::NAME);
+    }
+}
+
+#[test]
+fn generated_code_and_engine_agree_bit_for_bit() {
+    let mut v = SameAsEngine { models: Vec::new() };
+    sinew_tests::for_each_model(&mut v);
+    println!("bit-identical: {:?}", v.models);
+    assert!(v.models.len() >= 14, "{:?}", v.models);
+}
