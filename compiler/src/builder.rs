@@ -37,6 +37,8 @@ use std::path::{Component, Path, PathBuf};
 struct SpecEntry {
     /// The spec file, as given.
     path: PathBuf,
+    /// A weights file to bake in as `TRAINED`, if any.
+    weights: Option<PathBuf>,
 }
 
 /// Compiles spec files into Rust modules; setters return `&mut Self`, in the style of
@@ -90,6 +92,23 @@ impl Builder {
     pub fn spec(&mut self, path: impl AsRef<Path>) -> &mut Self {
         self.specs.push(SpecEntry {
             path: path.as_ref().to_path_buf(),
+            weights: None,
+        });
+        self
+    }
+
+    /// Adds a spec file together with a weights file (the JSON form written by `sinew train`);
+    /// the generated module then holds the parameters as `pub static TRAINED: Params`, exact to
+    /// the bit. The weights are checked against the spec (fingerprint, layers, shapes) and a
+    /// mismatch fails the build. Both files are watched by Cargo.
+    pub fn spec_with_weights(
+        &mut self,
+        path: impl AsRef<Path>,
+        weights: impl AsRef<Path>,
+    ) -> &mut Self {
+        self.specs.push(SpecEntry {
+            path: path.as_ref().to_path_buf(),
+            weights: Some(weights.as_ref().to_path_buf()),
         });
         self
     }
@@ -155,6 +174,9 @@ impl Builder {
         if self.cargo_metadata {
             for entry in &self.specs {
                 println!("cargo:rerun-if-changed={}", entry.path.display());
+                if let Some(w) = &entry.weights {
+                    println!("cargo:rerun-if-changed={}", w.display());
+                }
             }
         }
         let mut written: Vec<(String, PathBuf, PathBuf)> = Vec::new();
@@ -214,10 +236,19 @@ impl Builder {
                 second: path.clone(),
             });
         }
+        let weights = match &entry.weights {
+            Some(w) => Some(crate::workflow::load_weights(&model, w).map_err(|e| {
+                BuildError::Weights {
+                    spec: path.clone(),
+                    message: e.to_string(),
+                }
+            })?),
+            None => None,
+        };
         let options = EmitOptions {
             spec_name: spec_display_name(path),
             unroll_below: self.unroll_below,
-            weights: None,
+            weights: weights.as_ref().map(crate::workflow::baked),
         };
         let code = emit::generate(&model, &options);
         let out = out_dir.join(file_name);
@@ -253,6 +284,13 @@ fn output_file_name(name: &str) -> Option<String> {
 /// Why [`Builder::compile`] failed.
 #[derive(Debug)]
 pub enum BuildError {
+    /// A weights file could not be read or does not fit its spec.
+    Weights {
+        /// The spec file.
+        spec: PathBuf,
+        /// What is wrong, with the weights file's name.
+        message: String,
+    },
     /// No output folder: `OUT_DIR` is unset (not in a build script) and none was set.
     NoOutDir,
     /// A spec file could not be read.
@@ -305,6 +343,9 @@ impl fmt::Display for BuildError {
             }
             BuildError::Read { path, source } => {
                 write!(f, "cannot read spec `{}`: {source}", path.display())
+            }
+            BuildError::Weights { spec, message } => {
+                write!(f, "weights for spec `{}` do not fit: {message}", spec.display())
             }
             BuildError::Spec { path, errors } => write!(
                 f,

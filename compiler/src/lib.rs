@@ -17,6 +17,7 @@ pub mod diag;
 pub mod engine;
 pub mod fsutil;
 pub mod ir;
+pub mod pack;
 #[cfg(feature = "cli")]
 pub mod plot;
 pub mod report;

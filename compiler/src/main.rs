@@ -90,6 +90,17 @@ enum Command {
         #[arg(long)]
         json: bool,
     },
+    /// Write trained weights as a device weight blob (see the language reference).
+    Pack {
+        /// Spec file.
+        spec: PathBuf,
+        /// Weights file.
+        #[arg(long)]
+        weights: PathBuf,
+        /// Blob file to write (replaced atomically; its folder is created).
+        #[arg(short, long)]
+        output: PathBuf,
+    },
     /// Compare backprop with central finite differences, layer by layer.
     Gradcheck {
         /// Spec file.
@@ -198,6 +209,11 @@ fn main() -> ExitCode {
             data,
             json: _,
         } => grad(&spec, &weights, &data),
+        Command::Pack {
+            spec,
+            weights,
+            output,
+        } => pack(&spec, &weights, &output),
         Command::Gradcheck {
             spec,
             weights,
@@ -469,6 +485,38 @@ fn gradcheck(
     } else {
         ExitCode::from(SPEC_ERROR)
     }
+}
+
+fn pack(spec: &Path, weights: &Path, output: &Path) -> ExitCode {
+    let model = match model_of(spec) {
+        Ok(m) => m,
+        Err(code) => return code,
+    };
+    let w = match workflow::load_weights(&model, weights) {
+        Ok(w) => w,
+        Err(e) => return fail(&e),
+    };
+    let blob = match sinew::pack::encode(&model, &w) {
+        Ok(b) => b,
+        Err(e) => {
+            eprintln!("{e}");
+            return ExitCode::from(SPEC_ERROR);
+        }
+    };
+    if let Err(e) = sinew::pack::write(output, &blob) {
+        eprintln!("{e}");
+        return ExitCode::from(IO_ERROR);
+    }
+    println!(
+        "wrote {} ({} bytes: {} {} values, fingerprint 0x{:016x}, crc-32 0x{:08x})",
+        output.display(),
+        blob.len(),
+        sinew::pack::value_count(&model),
+        model.scalar.rust_name(),
+        model.fingerprint(),
+        sinew::pack::crc32(blob.get(..blob.len().saturating_sub(4)).unwrap_or(&[]))
+    );
+    ExitCode::SUCCESS
 }
 
 fn read(path: &Path) -> Result<String, ExitCode> {

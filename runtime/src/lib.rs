@@ -16,12 +16,13 @@
 //! | module | kernels |
 //! | --- | --- |
 //! | [`real`] | [`Real`]: the scalar trait (`f32`, `f64`) over libm |
-//! | [`linalg`] | [`affine`] `z = W x + b`, [`back`] `out = W^T d`, [`outer_acc`] `G += d a^T`, [`add_acc`] `g += d`, [`standardize`] `(x - mean) / std`, each with an `_n` array form where shapes matter |
+//! | [`linalg`] | [`affine`] `z = W x + b`, [`back`] `out = W^T d`, [`outer_acc`] `G += d a^T`, [`add_acc`] `g += d`, [`standardize`] `(x - mean) / std`, each with an `_n` array form where shapes matter; their batch forms over a block of samples ([`affine_batch`], [`back_batch`], [`outer_acc_batch`], [`add_acc_batch`]), bit for bit the per-sample loop |
 //! | [`act`] | [`act::identity`], [`act::sigmoid`], [`act::tanh`], [`act::relu`], [`act::leaky_relu`], [`act::softmax`] and their `_grad` forms; [`act::Activation`] |
 //! | [`loss`] | [`loss::softplus`], [`loss::log_sum_exp`], [`loss::logistic_cross_entropy`], [`loss::softmax_cross_entropy`], [`loss::squared_error`], [`loss::output_error`] |
 //! | [`penalty`] | [`penalty::Penalty`] (none, L2, L1: cost term and gradient), [`penalty::finish_bias`] |
 //! | [`optim`] | [`optim::sgd`], [`optim::momentum`], [`optim::adam`] |
 //! | [`rng`] | [`rng::SplitMix64`] with uniform and normal draws; [`rng::fill_uniform`], [`rng::fill_normal`], [`rng::glorot_limit`], [`rng::he_std`] |
+//! | [`blob`] | the device weight blob: [`blob::Values`] (checked decoding), [`blob::Writer`], [`blob::crc32`] |
 //!
 //! # Examples
 //!
@@ -61,6 +62,7 @@
 extern crate std;
 
 pub mod act;
+pub mod blob;
 pub mod linalg;
 pub mod loss;
 pub mod optim;
@@ -69,6 +71,8 @@ pub mod real;
 pub mod rng;
 
 pub use linalg::{
-    add_acc, affine, affine_n, back, back_n, outer_acc, outer_acc_n, standardize, standardize_n,
+    add_acc, add_acc_batch, affine, affine_batch, affine_batch_n, affine_n, back, back_batch,
+    back_batch_n, back_n, outer_acc, outer_acc_batch, outer_acc_batch_n, outer_acc_n, standardize,
+    standardize_n,
 };
 pub use real::Real;

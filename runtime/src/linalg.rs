@@ -13,12 +13,101 @@
 
 use crate::Real;
 
+/// Lanes of the dot-product accumulators of [`affine`]: product `i` of a row goes to lane
+/// `i % LANES`. Part of the order of arithmetic (it decides the bits of every `affine` result).
+pub const LANES: usize = 8;
+
+/// Rows of `W` that [`affine`] and [`back`] process together (reuse of each input load; it does not
+/// change any result).
+const ROWS: usize = 4;
+
+/// The lane sum of [`affine`]: `((l0 + l4) + (l2 + l6)) + ((l1 + l5) + (l3 + l7))` (halves folded
+/// onto each other, the shape of a SIMD horizontal sum).
+#[inline(always)]
+fn lane_sum<T: Real>(l: [T; LANES]) -> T {
+    let [l0, l1, l2, l3, l4, l5, l6, l7] = l;
+    ((l0 + l4) + (l2 + l6)) + ((l1 + l5) + (l3 + l7))
+}
+
+/// `acc_k += w_k * x_k` over the zip (at most [`LANES`] elements: a full chunk or a row's tail).
+#[inline(always)]
+fn lanes_mul_add<T: Real>(acc: &mut [T; LANES], w: &[T], x: &[T]) {
+    for ((a, wk), xk) in acc.iter_mut().zip(w).zip(x) {
+        *a += *wk * *xk;
+    }
+}
+
+/// The lane accumulators of one row: `acc_k = sum over i = k (mod LANES) of w_i x_i`, from `ZERO`
+/// in increasing `i`.
+#[inline(always)]
+fn row_lanes<T: Real>(w: &[T], x: &[T]) -> [T; LANES] {
+    let mut acc = [T::ZERO; LANES];
+    let (wc, xc) = (w.chunks_exact(LANES), x.chunks_exact(LANES));
+    let (wr, xr) = (wc.remainder(), xc.remainder());
+    for (wk, xk) in wc.zip(xc) {
+        lanes_mul_add(&mut acc, wk, xk);
+    }
+    lanes_mul_add(&mut acc, wr, xr);
+    acc
+}
+
+/// [`row_lanes`] of four rows against the same `x` (one load of `x` serves four rows; four
+/// independent accumulators). Each row gets exactly the operations of [`row_lanes`].
+#[inline(always)]
+fn rows4_lanes<T: Real>(r: [&[T]; ROWS], x: &[T]) -> [[T; LANES]; ROWS] {
+    let [r0, r1, r2, r3] = r;
+    let (mut a0, mut a1, mut a2, mut a3) = (
+        [T::ZERO; LANES],
+        [T::ZERO; LANES],
+        [T::ZERO; LANES],
+        [T::ZERO; LANES],
+    );
+    let (c0, c1, c2, c3) = (
+        r0.chunks_exact(LANES),
+        r1.chunks_exact(LANES),
+        r2.chunks_exact(LANES),
+        r3.chunks_exact(LANES),
+    );
+    let xc = x.chunks_exact(LANES);
+    let tails = (
+        c0.remainder(),
+        c1.remainder(),
+        c2.remainder(),
+        c3.remainder(),
+        xc.remainder(),
+    );
+    for ((((xk, w0), w1), w2), w3) in xc.zip(c0).zip(c1).zip(c2).zip(c3) {
+        lanes_mul_add(&mut a0, w0, xk);
+        lanes_mul_add(&mut a1, w1, xk);
+        lanes_mul_add(&mut a2, w2, xk);
+        lanes_mul_add(&mut a3, w3, xk);
+    }
+    let (t0, t1, t2, t3, xt) = tails;
+    lanes_mul_add(&mut a0, t0, xt);
+    lanes_mul_add(&mut a1, t1, xt);
+    lanes_mul_add(&mut a2, t2, xt);
+    lanes_mul_add(&mut a3, t3, xt);
+    [a0, a1, a2, a3]
+}
+
+/// Splits a block of `ROWS * n` weights into its rows (`None` if it is shorter).
+#[inline(always)]
+fn four_rows<T>(block: &[T], n: usize) -> Option<[&[T]; ROWS]> {
+    let mut it = block.chunks_exact(n);
+    Some([it.next()?, it.next()?, it.next()?, it.next()?])
+}
+
 /// Affine map of a dense layer: `z_j = (sum_i w[j*n + i] * x_i) + b_j`, with `n = x.len()`.
 ///
-/// Order: for each row, the sum starts at `ZERO` and adds the products `w[j*n+i] * x_i` in
-/// increasing `i`; the bias is added last. Rows are `w.chunks_exact(n)` zipped with `b` and `z`, so
-/// the number of rows written is the least of `w.len() / n`, `b.len()` and `z.len()`. With `n = 0`
-/// every row is empty and `z_j = ZERO + b_j` for `j < min(b.len(), z.len())`.
+/// Order (the bits of the result depend on it; the unrolled code the emitter writes follows it
+/// too): each row keeps [`LANES`] = 8 partial sums `l_k`, all starting at `ZERO`; product
+/// `w[j*n+i] * x_i` is added to `l_(i mod 8)`, in increasing `i`. The row's sum is then
+/// `s = ((l0 + l4) + (l2 + l6)) + ((l1 + l5) + (l3 + l7))`, and `z_j = s + b_j`. (Eight independent
+/// sums let the compiler use SIMD lanes and keep several additions in flight; the order is fixed
+/// in the source, so every target and every build gives the same bits.) Rows are
+/// `w.chunks_exact(n)` zipped with `b` and `z`, so the number of rows written is the least of
+/// `w.len() / n`, `b.len()` and `z.len()`. With `n = 0` every row is empty and
+/// `z_j = ZERO + b_j` for `j < min(b.len(), z.len())`.
 ///
 /// # Examples
 ///
@@ -38,12 +127,27 @@ pub fn affine<T: Real>(w: &[T], b: &[T], x: &[T], z: &mut [T]) {
         }
         return;
     }
-    for ((row, bj), zj) in w.chunks_exact(n).zip(b).zip(z.iter_mut()) {
-        let mut s = T::ZERO;
-        for (wji, xi) in row.iter().zip(x) {
-            s += *wji * *xi;
+    let blocks = (w.len() / n).min(b.len()).min(z.len()) / ROWS;
+    for ((wb, bb), zb) in w
+        .chunks_exact(ROWS * n)
+        .zip(b.chunks_exact(ROWS))
+        .zip(z.chunks_exact_mut(ROWS))
+        .take(blocks)
+    {
+        let Some(rows) = four_rows(wb, n) else {
+            continue;
+        };
+        for ((zj, bj), l) in zb.iter_mut().zip(bb).zip(rows4_lanes(rows, x)) {
+            *zj = lane_sum(l) + *bj;
         }
-        *zj = s + *bj;
+    }
+    for ((row, bj), zj) in w
+        .chunks_exact(n)
+        .zip(b)
+        .zip(z.iter_mut())
+        .skip(blocks * ROWS)
+    {
+        *zj = lane_sum(row_lanes(row, x)) + *bj;
     }
 }
 
@@ -94,7 +198,22 @@ pub fn back<T: Real>(w: &[T], d: &[T], out: &mut [T]) {
     for o in out.iter_mut() {
         *o = T::ZERO;
     }
-    for (row, dj) in w.chunks_exact(n).zip(d) {
+    // Four rows per pass over `out`: `o = (((o + w0 d0) + w1 d1) + w2 d2) + w3 d3` is the same
+    // sequence of additions as four passes of one row each.
+    let blocks = (w.len() / n).min(d.len()) / ROWS;
+    for (wb, db) in w
+        .chunks_exact(ROWS * n)
+        .zip(d.chunks_exact(ROWS))
+        .take(blocks)
+    {
+        let (Some([r0, r1, r2, r3]), [d0, d1, d2, d3]) = (four_rows(wb, n), db) else {
+            continue;
+        };
+        for ((((o, w0), w1), w2), w3) in out.iter_mut().zip(r0).zip(r1).zip(r2).zip(r3) {
+            *o = (((*o + *w0 * *d0) + *w1 * *d1) + *w2 * *d2) + *w3 * *d3;
+        }
+    }
+    for (row, dj) in w.chunks_exact(n).zip(d).skip(blocks * ROWS) {
         for (o, wji) in out.iter_mut().zip(row) {
             *o += *wji * *dj;
         }
@@ -223,11 +342,302 @@ pub fn standardize_n<T: Real, const N: usize>(
     standardize(x, mean, std, out);
 }
 
+/// Batch form of [`affine`]: for every sample `s`, `z_s = W x_s + b`, bit for bit the result of
+/// `affine(w, b, x_s, z_s)`.
+///
+/// The samples are the pairs of `xs.chunks_exact(n)` and `zs.chunks_exact_mut(b.len())` (row-major
+/// blocks of samples). Each group of four rows of `W` is applied to every sample before the next
+/// group is read, so a large matrix travels from memory once per call rather than once per sample;
+/// the arithmetic of each output is exactly that of [`affine`]. With `n = 0` every output row is
+/// `ZERO + b` (as [`affine`] with an empty input).
+///
+/// # Examples
+///
+/// ```
+/// let w = [1.0, 2.0, 3.0, 4.0]; // 2 inputs -> 2 units
+/// let xs = [1.0, 0.0, 0.0, 1.0]; // two samples
+/// let mut zs = [0.0; 4];
+/// sinew_runtime::linalg::affine_batch(&w, &[0.5, 0.5], &xs, &mut zs, 2);
+/// assert_eq!(zs, [1.5, 3.5, 2.5, 4.5]);
+/// ```
+pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize) {
+    let o = b.len();
+    if o == 0 {
+        return;
+    }
+    if n == 0 {
+        for z in zs.chunks_exact_mut(o) {
+            affine(w, b, &[], z);
+        }
+        return;
+    }
+    let rows = (w.len() / n).min(o);
+    let blocks = rows / ROWS;
+    for (jb, (wb, bb)) in w
+        .chunks_exact(ROWS * n)
+        .zip(b.chunks_exact(ROWS))
+        .take(blocks)
+        .enumerate()
+    {
+        let Some(r) = four_rows(wb, n) else {
+            continue;
+        };
+        let j = jb * ROWS;
+        for (x, z) in xs.chunks_exact(n).zip(zs.chunks_exact_mut(o)) {
+            let Some(zb) = z.get_mut(j..j + ROWS) else {
+                continue;
+            };
+            for ((zj, bj), l) in zb.iter_mut().zip(bb).zip(rows4_lanes(r, x)) {
+                *zj = lane_sum(l) + *bj;
+            }
+        }
+    }
+    for (j, (row, bj)) in w
+        .chunks_exact(n)
+        .zip(b)
+        .enumerate()
+        .take(rows)
+        .skip(blocks * ROWS)
+    {
+        for (x, z) in xs.chunks_exact(n).zip(zs.chunks_exact_mut(o)) {
+            if let Some(zj) = z.get_mut(j) {
+                *zj = lane_sum(row_lanes(row, x)) + *bj;
+            }
+        }
+    }
+}
+
+/// Array form of [`affine_batch`]: `zs[s] = W xs[s] + b` for every pair of `xs` and `zs`.
+///
+/// Calls `affine_batch(w.as_flattened(), b, xs.as_flattened(), zs.as_flattened_mut(), I)`.
+///
+/// # Examples
+///
+/// ```
+/// let w = [[1.0_f32, 0.0], [0.0, 1.0]];
+/// let mut zs = [[0.0; 2]; 2];
+/// sinew_runtime::linalg::affine_batch_n(&w, &[1.0, 1.0], &[[1.0, 2.0], [3.0, 4.0]], &mut zs);
+/// assert_eq!(zs, [[2.0, 3.0], [4.0, 5.0]]);
+/// ```
+#[inline]
+pub fn affine_batch_n<T: Real, const I: usize, const O: usize>(
+    w: &[[T; I]; O],
+    b: &[T; O],
+    xs: &[[T; I]],
+    zs: &mut [[T; O]],
+) {
+    affine_batch(
+        w.as_flattened(),
+        b,
+        xs.as_flattened(),
+        zs.as_flattened_mut(),
+        I,
+    );
+}
+
+/// Batch form of [`back`]: for every sample `s`, `out_s = W^T d_s`, bit for bit the result of
+/// `back(w, d_s, out_s)`.
+///
+/// `W` has `n` columns and `o = w.len() / n` rows; the samples are the pairs of
+/// `ds.chunks_exact(o)` and `outs.chunks_exact_mut(n)`. With `n = 0` or `o = 0` nothing is
+/// written.
+///
+/// # Examples
+///
+/// ```
+/// let w = [1.0, 2.0, 3.0, 4.0]; // 2 inputs -> 2 units
+/// let mut outs = [0.0; 4];
+/// sinew_runtime::linalg::back_batch(&w, &[1.0, 0.0, 0.0, 1.0], &mut outs, 2);
+/// assert_eq!(outs, [1.0, 2.0, 3.0, 4.0]);
+/// ```
+pub fn back_batch<T: Real>(w: &[T], ds: &[T], outs: &mut [T], n: usize) {
+    if n == 0 {
+        return;
+    }
+    let o = w.len() / n;
+    if o == 0 {
+        return;
+    }
+    for (d, out) in ds.chunks_exact(o).zip(outs.chunks_exact_mut(n)) {
+        back(w, d, out);
+    }
+}
+
+/// Array form of [`back_batch`]: `outs[s] = W^T ds[s]` for every pair of `ds` and `outs`.
+///
+/// # Examples
+///
+/// ```
+/// let w = [[1.0_f64, 2.0], [3.0, 4.0]];
+/// let mut outs = [[0.0; 2]; 1];
+/// sinew_runtime::linalg::back_batch_n(&w, &[[1.0, 1.0]], &mut outs);
+/// assert_eq!(outs, [[4.0, 6.0]]);
+/// ```
+#[inline]
+pub fn back_batch_n<T: Real, const I: usize, const O: usize>(
+    w: &[[T; I]; O],
+    ds: &[[T; O]],
+    outs: &mut [[T; I]],
+) {
+    back_batch(
+        w.as_flattened(),
+        ds.as_flattened(),
+        outs.as_flattened_mut(),
+        I,
+    );
+}
+
+/// `acc += (gradient tile)`: loads the `R x C` tile of `g` at row `j`, column `i`, adds
+/// `d_s[j + r] * a_s[i + c]` for every sample in order, and stores it back.
+#[inline(always)]
+fn outer_tile<T: Real, const R: usize, const C: usize>(
+    rows: &mut [T],
+    ds: &[T],
+    xs: &[T],
+    (j, i, n, o): (usize, usize, usize, usize),
+) {
+    let mut acc = [[T::ZERO; C]; R];
+    for (a, row) in acc.iter_mut().zip(rows.chunks_exact(n)) {
+        for (v, g) in a.iter_mut().zip(row.iter().skip(i)) {
+            *v = *g;
+        }
+    }
+    for (drow, xrow) in ds.chunks_exact(o).zip(xs.chunks_exact(n)) {
+        let (Some(dv), Some(xv)) = (drow.get(j..j + R), xrow.get(i..i + C)) else {
+            continue;
+        };
+        let (Ok(dv), Ok(xv)) = (<&[T; R]>::try_from(dv), <&[T; C]>::try_from(xv)) else {
+            continue;
+        };
+        for (a, dj) in acc.iter_mut().zip(dv) {
+            for (v, xk) in a.iter_mut().zip(xv) {
+                *v += *dj * *xk;
+            }
+        }
+    }
+    for (a, row) in acc.iter().zip(rows.chunks_exact_mut(n)) {
+        for (v, g) in a.iter().zip(row.iter_mut().skip(i)) {
+            *g = *v;
+        }
+    }
+}
+
+/// All column tiles of a group of `R` gradient rows starting at row `j`.
+#[inline(always)]
+fn outer_rows<T: Real, const R: usize>(
+    rows: &mut [T],
+    ds: &[T],
+    xs: &[T],
+    (j, n, o): (usize, usize, usize),
+) {
+    let mut i = 0;
+    while i + 16 <= n {
+        outer_tile::<T, R, 16>(rows, ds, xs, (j, i, n, o));
+        i += 16;
+    }
+    if i + 8 <= n {
+        outer_tile::<T, R, 8>(rows, ds, xs, (j, i, n, o));
+        i += 8;
+    }
+    if i + 4 <= n {
+        outer_tile::<T, R, 4>(rows, ds, xs, (j, i, n, o));
+        i += 4;
+    }
+    while i < n {
+        outer_tile::<T, R, 1>(rows, ds, xs, (j, i, n, o));
+        i += 1;
+    }
+}
+
+/// Batch form of [`outer_acc`]: `G += sum_s d_s a_s^T`, bit for bit the result of calling
+/// `outer_acc(g, d_s, a_s)` for every sample in order.
+///
+/// `G` has `n` columns and `o = g.len() / n` rows; the samples are the pairs of
+/// `ds.chunks_exact(o)` and `xs.chunks_exact(n)`. Order: every element receives the additions
+/// `g + d_sj * a_si` of the samples in increasing `s`, exactly as the per-sample loop does. The
+/// work runs tile by tile (four rows by up to sixteen columns of `G` held in registers while all
+/// the samples pass), so `G` is read and written once per call instead of once per sample. With
+/// `n = 0` or `o = 0` nothing is written.
+///
+/// # Examples
+///
+/// ```
+/// let mut g = [0.0; 2]; // 1 unit, 2 inputs
+/// sinew_runtime::linalg::outer_acc_batch(&mut g, &[1.0, 2.0], &[1.0, 10.0, 3.0, 30.0], 2);
+/// assert_eq!(g, [7.0, 70.0]);
+/// ```
+pub fn outer_acc_batch<T: Real>(g: &mut [T], ds: &[T], xs: &[T], n: usize) {
+    if n == 0 {
+        return;
+    }
+    let o = g.len() / n;
+    if o == 0 {
+        return;
+    }
+    let blocks = o / ROWS;
+    for (jb, rows) in g.chunks_exact_mut(ROWS * n).take(blocks).enumerate() {
+        outer_rows::<T, ROWS>(rows, ds, xs, (jb * ROWS, n, o));
+    }
+    for (j, row) in g
+        .chunks_exact_mut(n)
+        .enumerate()
+        .take(o)
+        .skip(blocks * ROWS)
+    {
+        outer_rows::<T, 1>(row, ds, xs, (j, n, o));
+    }
+}
+
+/// Array form of [`outer_acc_batch`]: `G += sum_s ds[s] xs[s]^T`, samples in order.
+///
+/// # Examples
+///
+/// ```
+/// let mut g = [[0.0_f32; 2]; 1];
+/// sinew_runtime::linalg::outer_acc_batch_n(&mut g, &[[1.0], [2.0]], &[[1.0, 10.0], [3.0, 30.0]]);
+/// assert_eq!(g, [[7.0, 70.0]]);
+/// ```
+#[inline]
+pub fn outer_acc_batch_n<T: Real, const I: usize, const O: usize>(
+    g: &mut [[T; I]; O],
+    ds: &[[T; O]],
+    xs: &[[T; I]],
+) {
+    outer_acc_batch(
+        g.as_flattened_mut(),
+        ds.as_flattened(),
+        xs.as_flattened(),
+        I,
+    );
+}
+
+/// Batch form of [`add_acc`]: `g += sum_s d_s`, adding the rows `ds.chunks_exact(g.len())` in
+/// order, bit for bit the per-sample loop. With an empty `g` nothing is written.
+///
+/// Works for arrays too: pass `ds.as_flattened()` for a slice of `[T; N]` rows.
+///
+/// # Examples
+///
+/// ```
+/// let mut g = [0.0, 1.0];
+/// sinew_runtime::linalg::add_acc_batch(&mut g, &[1.0, 2.0, 3.0, 4.0]);
+/// assert_eq!(g, [4.0, 7.0]);
+/// ```
+pub fn add_acc_batch<T: Real>(g: &mut [T], ds: &[T]) {
+    if g.is_empty() {
+        return;
+    }
+    for d in ds.chunks_exact(g.len()) {
+        add_acc(g, d);
+    }
+}
+
 #[cfg(test)]
 mod tests {
     //! Each kernel against a naive indexed loop written straight from its formula (the reference
     //! of matrixmultiply-style kernel tests; common practice), over every size 1..=9 x 1..=9 and
-    //! a few large layer shapes, bit-exact because the reference adds in the documented order.
+    //! a few large layer shapes, bit-exact because the reference adds in the documented order;
+    //! the batch kernels against their per-sample kernels, bit for bit.
     use super::*;
     use crate::rng::SplitMix64;
     use std::boxed::Box;
@@ -257,16 +667,26 @@ mod tests {
         v.iter().map(|x| x.to_f64().to_bits()).collect()
     }
 
+    /// The documented order of `affine`, written as plainly as possible: eight lane sums
+    /// (product `i` into lane `i % 8`), folded `((l0+l4)+(l2+l6))+((l1+l5)+(l3+l7))`, plus bias.
     fn naive_affine<T: Real>(w: &[T], b: &[T], x: &[T], n: usize, o: usize) -> Vec<T> {
         let mut z = vec![T::ZERO; o];
         for j in 0..o {
-            let mut s = T::ZERO;
+            let mut l = [T::ZERO; 8];
             for i in 0..n {
-                s += w[j * n + i] * x[i];
+                l[i % 8] += w[j * n + i] * x[i];
             }
+            let s = ((l[0] + l[4]) + (l[2] + l[6])) + ((l[1] + l[5]) + (l[3] + l[7]));
             z[j] = s + b[j];
         }
         z
+    }
+
+    /// Plain sequential dot products (the textbook order), for a tolerance check of the lanes.
+    fn sequential_affine(w: &[f64], b: &[f64], x: &[f64], n: usize, o: usize) -> Vec<f64> {
+        (0..o)
+            .map(|j| (0..n).map(|i| w[j * n + i] * x[i]).sum::<f64>() + b[j])
+            .collect()
     }
 
     fn naive_back<T: Real>(w: &[T], d: &[T], n: usize, o: usize) -> Vec<T> {
@@ -334,6 +754,120 @@ mod tests {
             standardize(&x, &mean, &std, &mut xs);
             let want: Vec<T> = (0..n).map(|i| (x[i] - mean[i]) / std[i]).collect();
             assert_eq!(bits(&xs), bits(&want), "standardize {n}");
+        }
+    }
+
+    /// Every batch kernel equals its per-sample kernel applied to each sample in order, bit for
+    /// bit, for 0..=9 samples and every shape of the sweep.
+    fn batch_sweep<T: Real>() {
+        let mut rng = SplitMix64::new(23);
+        for (n, o) in shapes() {
+            for m in [0, 1, 2, 3, 5, 9] {
+                if n * o * m > 200_000 {
+                    continue;
+                }
+                let w = data::<T>(n * o, &mut rng);
+                let b = data::<T>(o, &mut rng);
+                let xs = data::<T>(m * n, &mut rng);
+                let ds = data::<T>(m * o, &mut rng);
+                let g0 = data::<T>(n * o, &mut rng);
+
+                let mut zs = vec![T::ONE; m * o];
+                affine_batch(&w, &b, &xs, &mut zs, n);
+                let mut want = vec![T::ONE; m * o];
+                for (x, z) in xs.chunks_exact(n).zip(want.chunks_exact_mut(o)) {
+                    affine(&w, &b, x, z);
+                }
+                assert_eq!(bits(&zs), bits(&want), "affine_batch {n}x{o} m={m}");
+
+                let mut outs = vec![T::ONE; m * n];
+                back_batch(&w, &ds, &mut outs, n);
+                let mut want = vec![T::ONE; m * n];
+                for (d, out) in ds.chunks_exact(o).zip(want.chunks_exact_mut(n)) {
+                    back(&w, d, out);
+                }
+                assert_eq!(bits(&outs), bits(&want), "back_batch {n}x{o} m={m}");
+
+                let mut g = g0.clone();
+                outer_acc_batch(&mut g, &ds, &xs, n);
+                let mut want = g0.clone();
+                for (d, x) in ds.chunks_exact(o).zip(xs.chunks_exact(n)) {
+                    outer_acc(&mut want, d, x);
+                }
+                assert_eq!(bits(&g), bits(&want), "outer_acc_batch {n}x{o} m={m}");
+
+                let mut gb = b.clone();
+                add_acc_batch(&mut gb, &ds);
+                let mut want = b.clone();
+                for d in ds.chunks_exact(o) {
+                    add_acc(&mut want, d);
+                }
+                assert_eq!(bits(&gb), bits(&want), "add_acc_batch {o} m={m}");
+            }
+        }
+    }
+
+    #[test]
+    fn batch_kernels_equal_per_sample_kernels_f32() {
+        batch_sweep::<f32>();
+    }
+
+    #[test]
+    fn batch_kernels_equal_per_sample_kernels_f64() {
+        batch_sweep::<f64>();
+    }
+
+    #[test]
+    fn batch_array_forms_equal_slice_forms() {
+        let mut rng = SplitMix64::new(31);
+        let w: [[f32; 5]; 3] =
+            core::array::from_fn(|_| core::array::from_fn(|_| rng.uniform(-1.0, 1.0) as f32));
+        let b: [f32; 3] = core::array::from_fn(|_| rng.uniform(-1.0, 1.0) as f32);
+        let xs: [[f32; 5]; 4] =
+            core::array::from_fn(|_| core::array::from_fn(|_| rng.uniform(-1.0, 1.0) as f32));
+        let ds: [[f32; 3]; 4] =
+            core::array::from_fn(|_| core::array::from_fn(|_| rng.uniform(-1.0, 1.0) as f32));
+        let mut za = [[0.0; 3]; 4];
+        affine_batch_n(&w, &b, &xs, &mut za);
+        let mut zs = [0.0; 12];
+        affine_batch(w.as_flattened(), &b, xs.as_flattened(), &mut zs, 5);
+        assert_eq!(bits(za.as_flattened()), bits(&zs));
+        let mut oa = [[0.0; 5]; 4];
+        back_batch_n(&w, &ds, &mut oa);
+        let mut os = [0.0; 20];
+        back_batch(w.as_flattened(), ds.as_flattened(), &mut os, 5);
+        assert_eq!(bits(oa.as_flattened()), bits(&os));
+        let mut ga = [[0.0; 5]; 3];
+        outer_acc_batch_n(&mut ga, &ds, &xs);
+        let mut gs = [0.0; 15];
+        outer_acc_batch(&mut gs, ds.as_flattened(), xs.as_flattened(), 5);
+        assert_eq!(bits(ga.as_flattened()), bits(&gs));
+        // Fewer outputs than inputs: only the pairs are computed.
+        let mut z1 = [[7.0_f32; 3]; 1];
+        affine_batch_n(&w, &b, &xs, &mut z1);
+        assert_eq!(z1[0], za[0]);
+    }
+
+    #[test]
+    fn lane_order_stays_close_to_the_sequential_sum() {
+        // Reordering a sum changes only rounding: against the textbook order in f64 the lanes
+        // agree to a few ulps of the sum of magnitudes (common practice for summation error).
+        let mut rng = SplitMix64::new(5);
+        for (n, o) in shapes() {
+            let w = data::<f64>(n * o, &mut rng);
+            let b = data::<f64>(o, &mut rng);
+            let x = data::<f64>(n, &mut rng);
+            let mut z = vec![0.0; o];
+            affine(&w, &b, &x, &mut z);
+            let want = sequential_affine(&w, &b, &x, n, o);
+            for (j, (a, e)) in z.iter().zip(&want).enumerate() {
+                let scale: f64 =
+                    (0..n).map(|i| (w[j * n + i] * x[i]).abs()).sum::<f64>() + b[j].abs();
+                assert!(
+                    (a - e).abs() <= 2.0 * n as f64 * f64::EPSILON * scale,
+                    "{n}x{o} row {j}"
+                );
+            }
         }
     }
 

@@ -17,7 +17,7 @@ include!("baked_values.rs");
 /// forwards to the generated API of the same name (see `build.rs`).
 pub trait Net: Sized + 'static {
     /// The generated `Scalar`.
-    type Scalar: sinew_runtime::Real + Into<f64>;
+    type Scalar: sinew_runtime::Real + Into<f64> + Send + Sync;
     /// The generated `Gradients`.
     type Gradients;
     /// `[Scalar; INPUTS]`.

@@ -102,18 +102,19 @@ pub(super) fn affine(cx: &Ctx, i: usize, dest: Dest) -> TokenStream {
             },
         };
     }
-    // Unrolled: z_j = (((ZERO + w_j0 u_0) + w_j1 u_1) + ...) + b_j, the runtime's order.
+    // Unrolled: z_j = lane_sum(w_j, u) + b_j, in the runtime's order (see `lane_sum`).
     let wpat = matrix_pattern("w", layer.width, layer.fan_in);
     let bs = vector_names("b", layer.width);
     let us = vector_names("u", layer.fan_in);
     let rows = (0..layer.width).map(|j| {
-        let terms = (0..layer.fan_in).map(|k| {
+        let products = (0..layer.fan_in).map(|k| {
             let wk = format_ident!("w{}_{}", j, k);
             let uk = &us[k];
-            quote!(+ #wk * #uk)
+            quote!(#wk * #uk)
         });
+        let sum = lane_sum(products.collect());
         let bj = &bs[j];
-        quote!(ZERO #(#terms)* + #bj)
+        quote!(#sum + #bj)
     });
     let inval = input.value();
     let block = quote! {{
@@ -133,6 +134,41 @@ pub(super) fn affine(cx: &Ctx, i: usize, dest: Dest) -> TokenStream {
         } => quote!(let #name = #block;),
         Dest::Param(out) => quote!(*#out = #block;),
     }
+}
+
+/// The sum of `products` in the order of `rt::affine` (`sinew_runtime::linalg::LANES` = 8 lane
+/// sums from `ZERO`, product `i` into lane `i % 8`, folded `((l0 + l4) + (l2 + l6)) + ((l1 + l5) +
+/// (l3 + l7))`), so unrolled code gives the runtime's bits. A lane that receives no product stays
+/// `+0` and is left out of the fold: every lane sum starts at `+0` and so is never `-0`, and adding
+/// `+0` to anything else but `-0` changes nothing.
+fn lane_sum(products: Vec<TokenStream>) -> TokenStream {
+    const LANES: usize = sinew_runtime::linalg::LANES;
+    let mut lanes: Vec<Option<TokenStream>> = vec![None; LANES];
+    for (i, p) in products.into_iter().enumerate() {
+        let lane = &mut lanes[i % LANES];
+        *lane = Some(match lane.take() {
+            None => quote!(ZERO + #p),
+            Some(acc) => quote!(#acc + #p),
+        });
+    }
+    let fold = |a: Option<TokenStream>, b: Option<TokenStream>| match (a, b) {
+        (Some(a), Some(b)) => Some(quote!((#a) + (#b))),
+        (a, None) => a,
+        (None, b) => b,
+    };
+    let mut width = LANES;
+    while width > 1 {
+        width /= 2;
+        let (low, high) = lanes.split_at_mut(width);
+        for (l, h) in low.iter_mut().zip(high.iter_mut()) {
+            *l = fold(l.take(), h.take());
+        }
+    }
+    lanes
+        .into_iter()
+        .next()
+        .flatten()
+        .unwrap_or_else(|| quote!(ZERO))
 }
 
 /// `[[w0_0, w0_1], [w1_0, w1_1]]`.

@@ -2,9 +2,9 @@
 //!
 //! [`generate`] builds the module from `quote!` fragments (one file per concern: [`ident`] picks
 //! every name, `params` the sizes, structs, initialisation and baked weights, `forward` inference
-//! and the cost, `backward` backprop and the batch finish, `classes` the class enum, `optim` the
-//! on-device trainer), then `pretty` parses it into a `syn::File`, prints it with prettyplease
-//! and prepends the header. It does no I/O; [`crate::builder`] writes the files.
+//! and the cost, `backward` backprop and the batch finish, `batch` the blocked batch gradient,
+//! `classes` the class enum, `optim` the on-device trainer), then `pretty` parses it into a
+//! `syn::File`, prints it with prettyplease and prepends the header. It does no I/O; [`crate::builder`] writes the files.
 //!
 //! Invariants of the output (tests check each one):
 //!
@@ -20,6 +20,8 @@
 pub mod ident;
 
 mod backward;
+mod batch;
+mod blob;
 mod classes;
 mod forward;
 mod optim;
@@ -164,7 +166,9 @@ pub fn generate(model: &Model, options: &EmitOptions) -> String {
     let classes = classes::items(&cx);
     let params_impl = params::impl_params(&cx);
     let gradients_impl = backward::impl_gradients(&cx);
+    let batch = batch::items(&cx);
     let trainer = optim::items(&cx);
+    let blob = blob::items(&cx);
     let trained = options.weights.as_ref().map(|w| params::trained(&cx, w));
     let tokens = quote! {
         pub mod #module {
@@ -175,7 +179,9 @@ pub fn generate(model: &Model, options: &EmitOptions) -> String {
             #classes
             #params_impl
             #gradients_impl
+            #batch
             #trainer
+            #blob
             #trained
         }
     };

@@ -1,0 +1,223 @@
+//! Benchmarks of sinew against what an engineer would otherwise write or use, in one run.
+//!
+//! The three networks of the performance issue, each in four forms with the same parameters:
+//!
+//! - (a) [`generated`]: the code `bench/build.rs` generates from `bench/specs/` through the public
+//!   build API ([`unrolled`] holds N1 and N2 again with every matrix kernel unrolled);
+//! - (b) [`nalg`]: the same network hand-written with nalgebra's static matrices (`SMatrix`),
+//!   with std's `exp`/`tanh` ([`nalg::StdMath`]) or libm's ([`nalg::LibmMath`], sinew's functions);
+//! - (c) [`plain`]: hand-written `Vec<f32>` loops;
+//! - (d) the sinew host engine (`sinew::engine`).
+//!
+//! [`Shape`] gives the multiply-add counts behind the GFLOP/s figures (two flops per
+//! multiply-add); [`Data`] the samples. The criterion benches are in `benches/nets.rs`, the table
+//! printer in `src/bin/table.rs`, the instruction-count driver in `src/bin/count.rs`, and
+//! `bench/run.sh` runs everything.
+
+#![deny(missing_docs)]
+
+use sinew_runtime::rng::SplitMix64;
+
+pub mod cases;
+pub mod check;
+pub mod nalg;
+pub mod plain;
+
+/// The generated modules (`bench_n1`, `bench_n2`, `bench_n3`), default options.
+#[allow(missing_docs)]
+pub mod generated {
+    include!(concat!(env!("OUT_DIR"), "/bench_n1.rs"));
+    include!(concat!(env!("OUT_DIR"), "/bench_n2.rs"));
+    include!(concat!(env!("OUT_DIR"), "/bench_n3.rs"));
+}
+
+/// N1 and N2 generated with every matrix kernel unrolled (`unroll_below(usize::MAX)`).
+#[allow(missing_docs)]
+pub mod unrolled {
+    include!(concat!(env!("OUT_DIR"), "/unrolled/bench_n1.rs"));
+    include!(concat!(env!("OUT_DIR"), "/unrolled/bench_n2.rs"));
+}
+
+/// The spec text of each network (what `build.rs` compiled).
+pub const SPECS: [(&str, &str); 3] = [
+    ("n1", include_str!("../specs/bench_n1.sinew")),
+    ("n2", include_str!("../specs/bench_n2.sinew")),
+    ("n3", include_str!("../specs/bench_n3.sinew")),
+];
+
+/// Samples in the batch-gradient benchmark.
+pub const BATCH: usize = 256;
+
+/// A network's layer widths, input first.
+#[derive(Debug, Clone, Copy)]
+pub struct Shape {
+    /// `n1`, `n2`, `n3`.
+    pub name: &'static str,
+    /// Widths, input first.
+    pub widths: &'static [usize],
+}
+
+/// N1 = 6-10-8-3 (sigmoid, sigmoid, softmax).
+pub const N1: Shape = Shape {
+    name: "n1",
+    widths: &[6, 10, 8, 3],
+};
+/// N2 = 64-32-10 (tanh, softmax).
+pub const N2: Shape = Shape {
+    name: "n2",
+    widths: &[64, 32, 10],
+};
+/// N3 = 784-128-64-10 (relu, relu, softmax).
+pub const N3: Shape = Shape {
+    name: "n3",
+    widths: &[784, 128, 64, 10],
+};
+
+/// All three, in order.
+pub const SHAPES: [Shape; 3] = [N1, N2, N3];
+
+impl Shape {
+    /// Multiply-adds of one inference: `sum W` over the layers.
+    pub fn macs_inference(&self) -> usize {
+        self.widths.windows(2).map(|w| w[0] * w[1]).sum()
+    }
+
+    /// Multiply-adds of one sample's backprop: the forward pass, `W^T d` for every layer but the
+    /// first, and the outer product `d a^T` of every layer.
+    pub fn macs_backprop(&self) -> usize {
+        let fwd = self.macs_inference();
+        let first = self.widths[0] * self.widths[1];
+        fwd + (fwd - first) + fwd
+    }
+
+    /// Input width.
+    pub fn inputs(&self) -> usize {
+        self.widths[0]
+    }
+
+    /// Output width.
+    pub fn outputs(&self) -> usize {
+        self.widths[self.widths.len() - 1]
+    }
+}
+
+/// Benchmark samples: inputs uniform on [-1, 1), one-hot targets, drawn from SplitMix64.
+#[derive(Debug, Clone)]
+pub struct Data {
+    /// Inputs, row-major (`BATCH` rows).
+    pub xs: Vec<f32>,
+    /// One-hot targets, row-major.
+    pub ys: Vec<f32>,
+}
+
+impl Data {
+    /// `m` samples for `shape` from `seed`.
+    pub fn new(shape: Shape, m: usize, seed: u64) -> Data {
+        let mut rng = SplitMix64::new(seed);
+        let (n_in, n_out) = (shape.inputs(), shape.outputs());
+        let mut xs = Vec::with_capacity(m * n_in);
+        let mut ys = Vec::with_capacity(m * n_out);
+        for _ in 0..m {
+            xs.extend((0..n_in).map(|_| rng.uniform(-1.0, 1.0) as f32));
+            let c = (rng.next_u64() % n_out as u64) as usize;
+            ys.extend((0..n_out).map(|j| if j == c { 1.0 } else { 0.0 }));
+        }
+        Data { xs, ys }
+    }
+
+    /// The inputs as fixed-size rows (the generated API's form).
+    pub fn x_rows<const I: usize>(&self) -> Vec<[f32; I]> {
+        self.xs
+            .chunks_exact(I)
+            .map(|c| c.try_into().expect("row width"))
+            .collect()
+    }
+
+    /// The targets as fixed-size rows.
+    pub fn y_rows<const O: usize>(&self) -> Vec<[f32; O]> {
+        self.ys
+            .chunks_exact(O)
+            .map(|c| c.try_into().expect("row width"))
+            .collect()
+    }
+}
+
+/// Parameters as plain row-major vectors: per layer (weights, biases).
+pub type Layers = Vec<(Vec<f32>, Vec<f32>)>;
+
+/// The model of a spec (panics on a bad spec: the specs are this crate's own).
+pub fn model(name: &str) -> sinew::ir::Model {
+    let src = SPECS
+        .iter()
+        .find(|(n, _)| *n == name)
+        .map(|(_, s)| *s)
+        .expect("known network");
+    sinew::check_source(src).model.expect("spec checks")
+}
+
+/// The engine's parameters holding `layers`.
+pub fn engine_params(layers: &Layers) -> sinew::engine::Params<f32> {
+    sinew::engine::Params {
+        layers: layers
+            .iter()
+            .map(|(w, b)| sinew::engine::LayerParams {
+                weights: w.clone(),
+                bias: b.clone(),
+            })
+            .collect(),
+        mean: Vec::new(),
+        std: Vec::new(),
+    }
+}
+
+/// N1's generated parameters as [`Layers`].
+pub fn n1_layers(p: &generated::bench_n1::Params) -> Layers {
+    vec![
+        (p.h1_weights.as_flattened().to_vec(), p.h1_bias.to_vec()),
+        (p.h2_weights.as_flattened().to_vec(), p.h2_bias.to_vec()),
+        (p.y_weights.as_flattened().to_vec(), p.y_bias.to_vec()),
+    ]
+}
+
+/// N2's generated parameters as [`Layers`].
+pub fn n2_layers(p: &generated::bench_n2::Params) -> Layers {
+    vec![
+        (p.h1_weights.as_flattened().to_vec(), p.h1_bias.to_vec()),
+        (p.y_weights.as_flattened().to_vec(), p.y_bias.to_vec()),
+    ]
+}
+
+/// N3's generated parameters as [`Layers`].
+pub fn n3_layers(p: &generated::bench_n3::Params) -> Layers {
+    vec![
+        (p.h1_weights.as_flattened().to_vec(), p.h1_bias.to_vec()),
+        (p.h2_weights.as_flattened().to_vec(), p.h2_bias.to_vec()),
+        (p.y_weights.as_flattened().to_vec(), p.y_bias.to_vec()),
+    ]
+}
+
+/// N1's generated gradient as [`Layers`].
+pub fn n1_grad(g: &generated::bench_n1::Gradients) -> Layers {
+    vec![
+        (g.h1_weights.as_flattened().to_vec(), g.h1_bias.to_vec()),
+        (g.h2_weights.as_flattened().to_vec(), g.h2_bias.to_vec()),
+        (g.y_weights.as_flattened().to_vec(), g.y_bias.to_vec()),
+    ]
+}
+
+/// N2's generated gradient as [`Layers`].
+pub fn n2_grad(g: &generated::bench_n2::Gradients) -> Layers {
+    vec![
+        (g.h1_weights.as_flattened().to_vec(), g.h1_bias.to_vec()),
+        (g.y_weights.as_flattened().to_vec(), g.y_bias.to_vec()),
+    ]
+}
+
+/// N3's generated gradient as [`Layers`].
+pub fn n3_grad(g: &generated::bench_n3::Gradients) -> Layers {
+    vec![
+        (g.h1_weights.as_flattened().to_vec(), g.h1_bias.to_vec()),
+        (g.h2_weights.as_flattened().to_vec(), g.h2_bias.to_vec()),
+        (g.y_weights.as_flattened().to_vec(), g.y_bias.to_vec()),
+    ]
+}

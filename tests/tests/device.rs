@@ -1,0 +1,907 @@
+//! The firmware of `samples/device` on three emulated microcontroller boards, checked against the
+//! workstation.
+//!
+//! For each target (`thumbv7em-none-eabihf` on QEMU `mps2-an386`, a Cortex-M4F;
+//! `thumbv6m-none-eabi` on QEMU `microbit`, a Cortex-M0; `riscv32imc-unknown-none-elf` on QEMU
+//! `virt`) and each optimisation level (`opt-level = "z"`, the product profile, and `3`) the test
+//! builds the firmware, runs it under QEMU with a timeout and checks:
+//!
+//! - every printed value (classes, output probabilities, blob checksums, the cost of every
+//!   on-device training step, the outputs after training) is bit for bit what the sinew engine
+//!   computes on the workstation for the same inputs and weights, and the cost falls;
+//! - the linked image has no `core::panicking` symbol and no panic handler (so no bounds check
+//!   or other panicking path slipped into the generated code, the runtime or libm), while the
+//!   `panic_probe` image, which indexes an array with an unknown number, has them: the check
+//!   can see a panic;
+//! - the baked weights (`TRAINED`) take exactly the flash bytes `report::Report` says, and the
+//!   trainer's state exactly its part of the training RAM.
+//!
+//! It also measures, per target: flash of the model's code (the generated module, the runtime,
+//! libm and the soft-float helpers, from the symbol table), the stack high-water marks of one
+//! inference and one training step (painted stack), the stack frames of the same functions from
+//! nightly `-Z emit-stack-sizes` (a measurement build only; the product builds on stable), and
+//! the instructions of one inference and one training step (QEMU one instruction per translation
+//! block, `-d exec`: instructions, not cycles).
+//!
+//! Without the Rust targets or QEMU the test prints why it skipped and passes; with
+//! `SINEW_DEVICE=require` (what `.ci/run` sets after installing them) a missing tool fails it.
+//! `SINEW_DEVICE_FIGURES=FILE` writes the Markdown table of figures to FILE
+//! (`bash tests/device/run.sh --figures` puts it into the README).
+
+use sinew::engine::{Net, Params, Scratch, Trainer};
+use sinew::ir::Model;
+use sinew::report::Report;
+use std::collections::BTreeMap;
+use std::fmt::Write as _;
+use std::path::{Path, PathBuf};
+use std::process::{Command, Stdio};
+use std::time::{Duration, Instant};
+
+mod demo {
+    #![allow(dead_code)]
+    include!("../../samples/device/src/demo_data.rs");
+}
+
+/// An emulated board and the Rust target for its core.
+struct Board {
+    target: &'static str,
+    core: &'static str,
+    qemu: &'static str,
+    machine: &'static str,
+    extra: &'static [&'static str],
+    /// Thumb code: ELF function addresses carry bit 0.
+    thumb: bool,
+}
+
+const BOARDS: [Board; 3] = [
+    Board {
+        target: "thumbv7em-none-eabihf",
+        core: "Cortex-M4F",
+        qemu: "qemu-system-arm",
+        machine: "mps2-an386",
+        extra: &[],
+        thumb: true,
+    },
+    Board {
+        target: "thumbv6m-none-eabi",
+        core: "Cortex-M0",
+        qemu: "qemu-system-arm",
+        machine: "microbit",
+        extra: &[],
+        thumb: true,
+    },
+    Board {
+        target: "riscv32imc-unknown-none-elf",
+        core: "RV32IMC",
+        qemu: "qemu-system-riscv32",
+        machine: "virt",
+        extra: &["-bios", "none"],
+        thumb: false,
+    },
+];
+
+/// Cargo profiles of the device crate and their `opt-level`.
+const PROFILES: [(&str, &str); 2] = [("release", "z"), ("speed", "3")];
+
+/// Longest a QEMU run may take.
+const RUN_TIMEOUT: Duration = Duration::from_secs(120);
+
+fn repo() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("..")
+        .canonicalize()
+        .expect("the repository root exists")
+}
+
+fn device_dir() -> PathBuf {
+    repo().join("samples/device")
+}
+
+/// Runs a command to completion with a time limit; `Err` says what failed.
+fn run(cmd: &mut Command, limit: Duration) -> Result<(Option<i32>, String, String), String> {
+    let what = format!("{cmd:?}");
+    let mut child = cmd
+        .stdin(Stdio::null())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .map_err(|e| format!("cannot start {what}: {e}"))?;
+    let mut out = child.stdout.take().expect("piped");
+    let mut err = child.stderr.take().expect("piped");
+    let reader = std::thread::spawn(move || {
+        let mut s = Vec::new();
+        std::io::Read::read_to_end(&mut out, &mut s).ok();
+        s
+    });
+    let err_reader = std::thread::spawn(move || {
+        let mut s = Vec::new();
+        std::io::Read::read_to_end(&mut err, &mut s).ok();
+        s
+    });
+    let start = Instant::now();
+    let status = loop {
+        if let Some(s) = child.try_wait().map_err(|e| format!("{what}: {e}"))? {
+            break s;
+        }
+        if start.elapsed() > limit {
+            let _ = child.kill();
+            let _ = child.wait();
+            return Err(format!("{what} did not finish within {limit:?}"));
+        }
+        std::thread::sleep(Duration::from_millis(20));
+    };
+    let stdout = String::from_utf8_lossy(&reader.join().unwrap_or_default()).into_owned();
+    let stderr = String::from_utf8_lossy(&err_reader.join().unwrap_or_default()).into_owned();
+    Ok((status.code(), stdout, stderr))
+}
+
+fn quiet_ok(cmd: &mut Command) -> bool {
+    cmd.stdin(Stdio::null())
+        .stdout(Stdio::null())
+        .stderr(Stdio::null())
+        .status()
+        .is_ok_and(|s| s.success())
+}
+
+/// The sysroot of `toolchain` has the standard library of `target`.
+fn has_target(toolchain: Option<&str>, target: &str) -> bool {
+    let mut c = Command::new("rustc");
+    if let Some(t) = toolchain {
+        c.arg(format!("+{t}"));
+    }
+    let Ok(out) = c
+        .args(["--print", "target-libdir", "--target", target])
+        .stderr(Stdio::null())
+        .output()
+    else {
+        return false;
+    };
+    let dir = PathBuf::from(String::from_utf8_lossy(&out.stdout).trim());
+    out.status.success()
+        && std::fs::read_dir(dir).is_ok_and(|mut d| {
+            d.any(|e| {
+                e.is_ok_and(|e| e.file_name().to_string_lossy().starts_with("libcore-"))
+            })
+        })
+}
+
+/// What is missing for the device checks (empty: everything is there).
+fn missing_tools() -> Vec<String> {
+    let mut missing = Vec::new();
+    for b in &BOARDS {
+        if !has_target(None, b.target) {
+            missing.push(format!(
+                "the Rust target {} (`rustup target add {}`)",
+                b.target, b.target
+            ));
+        }
+    }
+    for q in ["qemu-system-arm", "qemu-system-riscv32"] {
+        if !quiet_ok(Command::new(q).arg("--version")) {
+            missing.push(format!(
+                "{q} (Debian: `apt-get install qemu-system-arm qemu-system-misc`)"
+            ));
+        }
+    }
+    missing
+}
+
+/// What is missing for the stack-frame measurement (nightly with the three targets).
+fn missing_nightly() -> Vec<String> {
+    let mut missing = Vec::new();
+    if !quiet_ok(Command::new("cargo").args(["+nightly", "--version"])) {
+        missing.push("a nightly toolchain (`rustup toolchain install nightly`)".to_string());
+        return missing;
+    }
+    for b in &BOARDS {
+        if !has_target(Some("nightly"), b.target) {
+            missing.push(format!(
+                "the nightly target {} (`rustup +nightly target add {}`)",
+                b.target, b.target
+            ));
+        }
+    }
+    missing
+}
+
+/// Builds every binary of the device crate for `target` with `profile`.
+fn build(
+    toolchain: Option<&str>,
+    target_dir: &Path,
+    target: &str,
+    profile: &str,
+    rustflags: Option<&str>,
+) -> Result<PathBuf, String> {
+    let mut c = Command::new("cargo");
+    if let Some(t) = toolchain {
+        c.arg(format!("+{t}"));
+    }
+    c.args(["build", "--bins", "--profile", profile, "--target", target])
+        .arg("--manifest-path")
+        .arg(device_dir().join("Cargo.toml"))
+        .env("CARGO_TARGET_DIR", target_dir)
+        .env("CARGO_TERM_COLOR", "never");
+    // Nothing of the outer build may leak into the firmware build.
+    for v in [
+        "RUSTFLAGS",
+        "CARGO_ENCODED_RUSTFLAGS",
+        "CARGO_BUILD_RUSTFLAGS",
+        "CARGO_BUILD_TARGET",
+        "CARGO_MAKEFLAGS",
+        "MAKEFLAGS",
+        "MFLAGS",
+        "OUT_DIR",
+        "RUSTC",
+        "RUSTDOC",
+        "RUSTUP_TOOLCHAIN",
+    ] {
+        c.env_remove(v);
+    }
+    if let Some(f) = rustflags {
+        c.env("RUSTFLAGS", f);
+    }
+    let (code, _, stderr) = run(&mut c, Duration::from_secs(1800))?;
+    if code != Some(0) {
+        let tail: Vec<&str> = stderr.lines().rev().take(40).collect();
+        let tail: Vec<&str> = tail.into_iter().rev().collect();
+        return Err(format!(
+            "building the firmware for {target} ({profile}) failed:\n{}",
+            tail.join("\n")
+        ));
+    }
+    Ok(target_dir.join(target).join(profile))
+}
+
+/// Runs an image under QEMU; returns the exit code and what it printed.
+fn emulate(board: &Board, elf: &Path, extra: &[&str]) -> Result<(Option<i32>, String), String> {
+    let mut c = Command::new(board.qemu);
+    c.args(["-M", board.machine, "-nographic", "-monitor", "none"])
+        .args(["-semihosting-config", "enable=on,target=native"])
+        .args(board.extra)
+        .args(extra)
+        .arg("-kernel")
+        .arg(elf);
+    let (code, out, err) = run(&mut c, RUN_TIMEOUT)?;
+    if code.is_none() {
+        return Err(format!("{} was killed: {err}", board.qemu));
+    }
+    Ok((code, out.replace('\r', "")))
+}
+
+// ---------------------------------------------------------------------------------------------
+// The workstation's side
+
+/// What the engine computes for the device's inputs, as the lines the firmware prints.
+struct Host {
+    model: Model,
+    report: Report,
+    /// Every line after the header, but the stack line.
+    lines: Vec<String>,
+}
+
+fn bits(v: f32) -> String {
+    format!("{:08x}", v.to_bits())
+}
+
+/// The first largest output, as the generated `classify` picks it.
+fn classify(out: &[f32]) -> (usize, f32) {
+    let mut best = (0, out[0]);
+    for (i, &p) in out.iter().enumerate().skip(1) {
+        if p > best.1 {
+            best = (i, p);
+        }
+    }
+    best
+}
+
+fn classified(model: &Model, out: &[f32]) -> String {
+    let (c, p) = classify(out);
+    let names = model.classes.as_ref().expect("a classifier");
+    let outs: Vec<String> = out.iter().map(|&v| bits(v)).collect();
+    format!(
+        "class={c}:{} p={} out={}",
+        names[c],
+        bits(p),
+        outs.join(",")
+    )
+}
+
+fn stored_crc(blob: &[u8]) -> String {
+    let n = blob.len();
+    format!(
+        "{:08x}",
+        u32::from_le_bytes([blob[n - 4], blob[n - 3], blob[n - 2], blob[n - 1]])
+    )
+}
+
+fn host() -> Host {
+    let dir = device_dir();
+    let spec = std::fs::read_to_string(repo().join("samples/pump_health.sinew")).expect("spec");
+    let model = sinew::check_source(&spec).model.expect("the spec checks");
+    let weights = sinew::weights::Weights::load_checked(
+        &dir.join("pump_health.weights.json"),
+        &model,
+    )
+    .expect("the committed weights fit the spec");
+    let s = weights.standardization.as_ref().expect("standardized");
+    let params =
+        Params::<f32>::from_f64(&weights.layers_flat(), Some((&s.mean[..], &s.std[..])));
+    let net = Net::new(&model);
+    let mut scratch = Scratch::new(&model);
+    let outputs = model.output().width;
+    let mut lines = Vec::new();
+
+    for (i, x) in demo::RAW_INPUTS.iter().enumerate() {
+        let mut out = vec![0.0f32; outputs];
+        net.predict(&params, x, &mut scratch, &mut out);
+        lines.push(format!("infer {i} {}", classified(&model, &out)));
+    }
+    let blob = sinew::pack::encode(&model, &weights).expect("weights fit");
+    lines.push(format!(
+        "blob written={} crc={} same_as_packed=1",
+        blob.len(),
+        stored_crc(&blob)
+    ));
+    lines.push("blob corrupt=checksum other_model=fingerprint short=length unchanged=1".into());
+    lines.push("blob load=ok equal=1".into());
+
+    let xs: Vec<f32> = demo::NEW_INPUTS.iter().flatten().copied().collect();
+    let ys: Vec<f32> = demo::NEW_LABELS
+        .iter()
+        .flat_map(|&l| (0..outputs).map(move |k| if k == l { 1.0 } else { 0.0 }))
+        .collect();
+    let mut trainer = Trainer::new(&model, params.clone());
+    for step in 0..demo::TRAIN_STEPS {
+        let cost = trainer.step(&xs, &ys);
+        lines.push(format!("train {step} cost={}", bits(cost)));
+    }
+    let final_cost = net.cost(&trainer.params, &xs, &ys);
+    lines.push(format!("train final cost={}", bits(final_cost)));
+    for (i, x) in demo::NEW_INPUTS.iter().enumerate() {
+        let mut out = vec![0.0f32; outputs];
+        net.predict(&trainer.params, x, &mut scratch, &mut out);
+        lines.push(format!("after {i} {}", classified(&model, &out)));
+    }
+    let learned = sinew::weights::Weights::from_params(
+        &model,
+        trainer.params.layers_f64(),
+        trainer.params.scaling_f64(),
+        None,
+    );
+    let saved = sinew::pack::encode(&model, &learned).expect("weights fit");
+    lines.push(format!(
+        "saved written={} crc={}",
+        saved.len(),
+        stored_crc(&saved)
+    ));
+    lines.push("done ok=1".into());
+    let report = Report::of(&model);
+    Host {
+        model,
+        report,
+        lines,
+    }
+}
+
+// ---------------------------------------------------------------------------------------------
+// The device's output
+
+struct DeviceRun {
+    header: String,
+    lines: Vec<String>,
+    /// Painted stack of one inference and one training step, and the painted span.
+    stack: (usize, usize, usize),
+}
+
+fn field(line: &str, key: &str) -> Option<usize> {
+    line.split_whitespace()
+        .find_map(|w| w.strip_prefix(key)?.strip_prefix('=')?.parse().ok())
+}
+
+fn parse_run(out: &str) -> Result<DeviceRun, String> {
+    let mut header = None;
+    let mut lines = Vec::new();
+    let mut stack = None;
+    for l in out.lines() {
+        if l.starts_with("sinew-device ") {
+            header = Some(l.to_string());
+        } else if l.starts_with("stack ") {
+            let get = |k| field(l, k).ok_or_else(|| format!("no {k} in `{l}`"));
+            stack = Some((get("predict")?, get("step")?, get("painted")?));
+        } else if header.is_some() && !l.trim().is_empty() {
+            lines.push(l.to_string());
+        }
+    }
+    Ok(DeviceRun {
+        header: header.ok_or_else(|| format!("no header line in:\n{out}"))?,
+        lines,
+        stack: stack.ok_or_else(|| format!("no stack line in:\n{out}"))?,
+    })
+}
+
+// ---------------------------------------------------------------------------------------------
+// The image
+
+struct Symbol {
+    name: String,
+    address: u64,
+    size: u64,
+    function: bool,
+}
+
+struct Image {
+    symbols: Vec<Symbol>,
+    /// Function address -> stack frame bytes, from a `-Z emit-stack-sizes` build.
+    stack_sizes: BTreeMap<u64, u64>,
+}
+
+fn read_image(path: &Path, thumb: bool) -> Image {
+    use object::{Object, ObjectSection, ObjectSymbol, SymbolKind};
+    let data = std::fs::read(path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+    let file = object::File::parse(&*data).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+    let mask = if thumb { !1u64 } else { !0u64 };
+    let symbols = file
+        .symbols()
+        .filter_map(|s| {
+            let function = match s.kind() {
+                SymbolKind::Text => true,
+                SymbolKind::Data => false,
+                _ => return None,
+            };
+            let raw = s.name().ok()?;
+            Some(Symbol {
+                name: format!("{:#}", rustc_demangle::demangle(raw)),
+                address: if function {
+                    s.address() & mask
+                } else {
+                    s.address()
+                },
+                size: s.size(),
+                function,
+            })
+        })
+        .collect();
+    let mut stack_sizes = BTreeMap::new();
+    if let Some(sec) = file.section_by_name(".stack_sizes") {
+        let bytes = sec.data().unwrap_or(&[]);
+        let width = if file.is_64() { 8 } else { 4 };
+        let mut i = 0;
+        while i + width <= bytes.len() {
+            let mut addr = 0u64;
+            for (k, b) in bytes[i..i + width].iter().enumerate() {
+                addr |= u64::from(*b) << (8 * k);
+            }
+            i += width;
+            let (mut size, mut shift) = (0u64, 0);
+            while let Some(&b) = bytes.get(i) {
+                i += 1;
+                size |= u64::from(b & 0x7f) << shift;
+                shift += 7;
+                if b & 0x80 == 0 {
+                    break;
+                }
+            }
+            stack_sizes.insert(addr & mask, size);
+        }
+    }
+    Image {
+        symbols,
+        stack_sizes,
+    }
+}
+
+impl Image {
+    fn find(&self, pred: impl Fn(&str) -> bool) -> Vec<&Symbol> {
+        self.symbols.iter().filter(|s| pred(&s.name)).collect()
+    }
+
+    fn function(&self, name: &str) -> Option<&Symbol> {
+        self.symbols.iter().find(|s| s.function && s.name == name)
+    }
+
+    /// Symbols of a panicking path: the `core::panicking` functions and the panic handler.
+    fn panic_symbols(&self) -> Vec<String> {
+        self.find(|n| n.contains("core::panicking") || n.contains("rust_begin_unwind"))
+            .into_iter()
+            .map(|s| s.name.clone())
+            .collect()
+    }
+}
+
+/// Flash of the model's code in an image, by origin (bytes; aliases counted once).
+#[derive(Default, Clone, Copy)]
+struct Flash {
+    generated: u64,
+    runtime: u64,
+    libm: u64,
+    soft_float: u64,
+    weights: u64,
+}
+
+impl Flash {
+    fn code(&self) -> u64 {
+        self.generated + self.runtime + self.libm + self.soft_float
+    }
+}
+
+/// The compiler's soft-float helpers (for cores without an FPU), by their C names.
+fn is_soft_float(name: &str) -> bool {
+    const PREFIXES: [&str; 4] = [
+        "compiler_builtins::float::",
+        "__aeabi_f",
+        "__aeabi_d",
+        "__aeabi_i2f",
+    ];
+    const NAMES: [&str; 26] = [
+        "__addsf3",
+        "__subsf3",
+        "__mulsf3",
+        "__divsf3",
+        "__eqsf2",
+        "__nesf2",
+        "__ltsf2",
+        "__lesf2",
+        "__gtsf2",
+        "__gesf2",
+        "__unordsf2",
+        "__fixsfsi",
+        "__fixunssfsi",
+        "__floatsisf",
+        "__floatunsisf",
+        "__aeabi_ui2f",
+        "__adddf3",
+        "__subdf3",
+        "__muldf3",
+        "__divdf3",
+        "__extendsfdf2",
+        "__truncdfsf2",
+        "__fixdfsi",
+        "__floatsidf",
+        "__cmpsf2",
+        "__aeabi_l2f",
+    ];
+    PREFIXES.iter().any(|p| name.starts_with(p)) || NAMES.contains(&name)
+}
+
+fn flash(img: &Image) -> Flash {
+    let mut f = Flash::default();
+    let mut seen = std::collections::BTreeSet::new();
+    for s in img.symbols.iter().filter(|s| s.function && s.size > 0) {
+        if !seen.insert(s.address) {
+            continue;
+        }
+        let n = s.name.as_str();
+        if n.contains("pump_health::") {
+            f.generated += s.size;
+        } else if n.starts_with("sinew_runtime::") || n.contains(" as sinew_runtime::") {
+            f.runtime += s.size;
+        } else if n.starts_with("libm::") {
+            f.libm += s.size;
+        } else if is_soft_float(n) {
+            f.soft_float += s.size;
+        }
+    }
+    f.weights = img
+        .symbols
+        .iter()
+        .filter(|s| !s.function && s.name.ends_with("pump_health::TRAINED"))
+        .map(|s| s.size)
+        .sum();
+    f
+}
+
+/// Stack frames (bytes) of the firmware's `infer` and `train_step` and of the generated
+/// functions they call that kept a symbol of their own.
+fn frames(img: &Image) -> Vec<(String, u64)> {
+    let mut v = Vec::new();
+    for s in &img.symbols {
+        let n = s.name.as_str();
+        let wanted = n == "sinew_device_sample::infer"
+            || n == "sinew_device_sample::train_step"
+            || (n.contains("pump_health::") && s.function);
+        if wanted {
+            if let Some(&size) = img.stack_sizes.get(&s.address) {
+                let short = n.rsplit("::").take(2).collect::<Vec<_>>();
+                v.push((format!("{}::{}", short[1], short[0]), size));
+            }
+        }
+    }
+    v.sort();
+    v.dedup();
+    v
+}
+
+/// Instructions executed between pairs of marker functions of the `count` image.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+struct Counts {
+    infer: u64,
+    step: u64,
+}
+
+fn count_instructions(board: &Board, elf: &Path, img: &Image) -> Result<Counts, String> {
+    let mark = |name: &str| -> Result<u64, String> {
+        img.function(&format!("count::{name}"))
+            .map(|s| s.address)
+            .ok_or_else(|| format!("no marker {name} in {}", elf.display()))
+    };
+    let pairs = [
+        (mark("mark_empty_begin")?, mark("mark_empty_end")?),
+        (mark("mark_infer_begin")?, mark("mark_infer_end")?),
+        (mark("mark_step_begin")?, mark("mark_step_end")?),
+    ];
+    let log = std::env::temp_dir().join(format!(
+        "sinew-device-exec-{}-{}.log",
+        std::process::id(),
+        board.target
+    ));
+    let log_s = log.to_string_lossy().into_owned();
+    let (code, out) = emulate(
+        board,
+        elf,
+        &[
+            "-accel",
+            "tcg,one-insn-per-tb=on",
+            "-d",
+            "exec,nochain",
+            "-D",
+            &log_s,
+        ],
+    )?;
+    if code != Some(0) {
+        return Err(format!("the count image failed ({code:?}):\n{out}"));
+    }
+    let text = std::fs::read_to_string(&log).map_err(|e| format!("{log_s}: {e}"))?;
+    let _ = std::fs::remove_file(&log);
+    // Each line is one executed instruction: `Trace 0: HOST [CS_BASE/PC/FLAGS/CFLAGS] SYMBOL`.
+    let mut counts = [0u64; 3];
+    let mut k = 0;
+    let mut open = false;
+    for line in text.lines() {
+        let Some(pc) = line
+            .split_once('[')
+            .and_then(|(_, rest)| rest.split('/').nth(1))
+            .and_then(|pc| u64::from_str_radix(pc, 16).ok())
+        else {
+            continue;
+        };
+        let Some(&(begin, end)) = pairs.get(k) else {
+            break;
+        };
+        if !open && pc == begin {
+            open = true;
+        } else if open && pc == end {
+            open = false;
+            k += 1;
+            continue;
+        }
+        if open {
+            counts[k] += 1;
+        }
+    }
+    if k < pairs.len() {
+        return Err(format!("the exec log of {} ended before the markers", board.target));
+    }
+    Ok(Counts {
+        infer: counts[1] - counts[0],
+        step: counts[2] - counts[0],
+    })
+}
+
+// ---------------------------------------------------------------------------------------------
+// The test
+
+/// Figures of one target at one optimisation level.
+struct Row {
+    board: &'static Board,
+    opt: &'static str,
+    flash: Flash,
+    stack: (usize, usize, usize),
+    frames: Vec<(String, u64)>,
+    counts: Counts,
+    trainer_bytes: usize,
+}
+
+fn skip_or_fail(why: &[String]) {
+    let text = format!(
+        "device checks SKIPPED: missing {}.\n  Install them (see README, \"Device figures\") or run `bash .ci/run`, which does.",
+        why.join("; ")
+    );
+    if std::env::var("SINEW_DEVICE").is_ok_and(|v| v == "require") {
+        panic!("SINEW_DEVICE=require, but {text}");
+    }
+    eprintln!("\n!! {text}\n");
+}
+
+#[test]
+fn firmware_on_emulated_boards_matches_the_workstation() {
+    let missing = missing_tools();
+    if !missing.is_empty() {
+        skip_or_fail(&missing);
+        return;
+    }
+    let host = host();
+    let target_dir = repo().join("target/device");
+    let mut rows = Vec::new();
+    for board in &BOARDS {
+        for (profile, opt) in PROFILES {
+            let dir = build(None, &target_dir, board.target, profile, None)
+                .unwrap_or_else(|e| panic!("{e}"));
+            let elf = dir.join("device");
+            let (code, out) = emulate(board, &elf, &[]).unwrap_or_else(|e| panic!("{e}"));
+            let got = parse_run(&out).unwrap_or_else(|e| panic!("{}: {e}", board.target));
+            eprintln!("{} opt-level {opt}: {}", board.core, got.header);
+            assert_eq!(
+                code,
+                Some(0),
+                "{} ({opt}): the firmware reported a failed check:\n{out}",
+                board.target
+            );
+            let want_header = format!(
+                "sinew-device 1 target={} model=pump_health fingerprint={:016x} values={} blob_bytes={}",
+                board.target,
+                host.model.fingerprint(),
+                sinew::pack::value_count(&host.model),
+                sinew::pack::blob_len(&host.model)
+            );
+            assert!(
+                got.header.starts_with(&want_header),
+                "{}\n{want_header}",
+                got.header
+            );
+            for (i, (d, h)) in got.lines.iter().zip(&host.lines).enumerate() {
+                assert_eq!(
+                    d, h,
+                    "{} opt-level {opt}, line {i}: the device differs from the engine",
+                    board.target
+                );
+            }
+            assert_eq!(
+                got.lines.len(),
+                host.lines.len(),
+                "{}: {:?}",
+                board.target,
+                got.lines
+            );
+
+            let img = read_image(&elf, board.thumb);
+            let panics = img.panic_symbols();
+            assert!(
+                panics.is_empty(),
+                "{} opt-level {opt}: the device image can panic: {panics:?}",
+                board.target
+            );
+            let probe = read_image(&dir.join("panic_probe"), board.thumb);
+            assert!(
+                probe.panic_symbols().iter().any(|n| n.contains("core::panicking")),
+                "{}: the no-panic check does not see the bounds check of panic_probe",
+                board.target
+            );
+            let f = flash(&img);
+            assert_eq!(
+                f.weights, host.report.flash_bytes,
+                "{}: TRAINED takes {} bytes of flash, the report says {}",
+                board.target, f.weights, host.report.flash_bytes
+            );
+            let trainer_bytes = field(&got.header, "trainer_bytes").expect("trainer_bytes");
+            let count = count_instructions(board, &dir.join("count"), &read_image(&dir.join("count"), board.thumb))
+                .unwrap_or_else(|e| panic!("{e}"));
+            let (predict, step, painted) = got.stack;
+            assert!(
+                predict < painted && step < painted,
+                "{}: the stack went below the painted {painted} bytes",
+                board.target
+            );
+            rows.push(Row {
+                board,
+                opt,
+                flash: f,
+                stack: got.stack,
+                frames: Vec::new(),
+                counts: count,
+                trainer_bytes,
+            });
+        }
+    }
+
+    // The trainer's state is the report's training RAM without the per-sample working set:
+    // parameters, gradient and Adam's two moments, plus the step counter.
+    let r = &host.report;
+    let per_sample =
+        host.model.input.width * usize::from(host.model.input.standardize) + 2 * widths(&host.model)
+            + host.model.output().width;
+    let state = r.ram_training_bytes as usize - per_sample * r.scalar_bytes as usize;
+    for row in &rows {
+        assert_eq!(
+            row.trainer_bytes,
+            state + 4,
+            "{}: the trainer holds {} bytes, the report's state is {state} (+ 4 for the step count)",
+            row.board.target,
+            row.trainer_bytes
+        );
+    }
+
+    // Stack frames from a nightly measurement build (never the product build).
+    let nightly = missing_nightly();
+    if nightly.is_empty() {
+        let dir = repo().join("target/device-nightly");
+        for row in rows.iter_mut() {
+            let profile = PROFILES
+                .iter()
+                .find(|(_, o)| *o == row.opt)
+                .map(|(p, _)| *p)
+                .expect("a profile");
+            let out = build(
+                Some("nightly"),
+                &dir,
+                row.board.target,
+                profile,
+                Some("-Z emit-stack-sizes"),
+            )
+            .unwrap_or_else(|e| panic!("{e}"));
+            let img = read_image(&out.join("device"), row.board.thumb);
+            row.frames = frames(&img);
+            assert!(
+                !row.frames.is_empty(),
+                "{}: no stack sizes for the model's functions",
+                row.board.target
+            );
+        }
+    } else {
+        skip_or_fail(&nightly);
+    }
+
+    let table = figures(&host, &rows);
+    eprintln!("{table}");
+    if let Ok(path) = std::env::var("SINEW_DEVICE_FIGURES") {
+        std::fs::write(&path, &table).unwrap_or_else(|e| panic!("{path}: {e}"));
+    }
+}
+
+fn widths(m: &Model) -> usize {
+    m.layers.iter().map(|l| l.width).sum()
+}
+
+/// The Markdown table of figures.
+fn figures(host: &Host, rows: &[Row]) -> String {
+    let r = &host.report;
+    let mut t = String::new();
+    let _ = writeln!(
+        t,
+        "Model `pump_health` ({} parameters, f32). Report (`sinew check`): flash {} B for the weights, RAM {} B for inference and {} B for training, {} multiply-adds per inference and {} per training sample.\n",
+        r.parameters, r.flash_bytes, r.ram_inference_bytes, r.ram_training_bytes, r.macs_inference, r.macs_training
+    );
+    let _ = writeln!(
+        t,
+        "| target (QEMU board) | opt-level | flash: code | flash: weights | RAM: inference (stack) | RAM: training (state + stack) | stack frames (nightly) | instructions / inference | instructions / training step |"
+    );
+    let _ = writeln!(t, "| --- | --- | ---: | ---: | ---: | ---: | --- | ---: | ---: |");
+    for row in rows {
+        let f = &row.flash;
+        let frames: Vec<String> = row
+            .frames
+            .iter()
+            .map(|(n, s)| format!("`{n}` {s}"))
+            .collect();
+        let _ = writeln!(
+            t,
+            "| {} {} ({}) | {} | {} B ({} generated, {} runtime, {} libm, {} soft-float) | {} B | {} B | {} B + {} B | {} | {} | {} |",
+            row.board.core,
+            row.board.target,
+            row.board.machine,
+            row.opt,
+            f.code(),
+            f.generated,
+            f.runtime,
+            f.libm,
+            f.soft_float,
+            f.weights,
+            row.stack.0,
+            row.trainer_bytes,
+            row.stack.1,
+            if frames.is_empty() { "-".to_string() } else { frames.join(", ") },
+            row.counts.infer,
+            row.counts.step
+        );
+    }
+    t
+}
