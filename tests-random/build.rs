@@ -94,7 +94,13 @@ fn spec(i: usize, rng: &mut SplitMix64) -> String {
         } else {
             pick(rng, &HIDDEN)
         };
-        let _ = writeln!(s, "layer h{} {} {}", k + 1, width(rng), activation(rng, act));
+        let _ = writeln!(
+            s,
+            "layer h{} {} {}",
+            k + 1,
+            width(rng),
+            activation(rng, act)
+        );
     }
     let classes = |n: usize| -> String {
         let names: Vec<String> = (0..n).map(|k| format!("c{k}")).collect();
@@ -105,7 +111,11 @@ fn spec(i: usize, rng: &mut SplitMix64) -> String {
         let with_classes = rng.next_u64() % 3 == 0;
         if softmax {
             let n = int(rng, 2, 16);
-            let c = if with_classes { classes(n) } else { String::new() };
+            let c = if with_classes {
+                classes(n)
+            } else {
+                String::new()
+            };
             let _ = writeln!(s, "output out {n} softmax{c}");
         } else {
             let n = int(rng, 1, 16);
@@ -263,7 +273,10 @@ fn glue(model: &Model, unrolled: bool) -> String {
     let mut each_grad = String::new();
     for l in &names.layers {
         let (w, b) = (&l.weights, &l.bias);
-        let _ = write!(each_mut, "f(self.{w}.as_flattened_mut()); f(&mut self.{b}); ");
+        let _ = write!(
+            each_mut,
+            "f(self.{w}.as_flattened_mut()); f(&mut self.{b}); "
+        );
         let _ = write!(each, "f(self.{w}.as_flattened()); f(&self.{b}); ");
         let _ = write!(each_grad, "f(g.{w}.as_flattened()); f(&g.{b}); ");
     }

@@ -102,7 +102,10 @@ macro_rules! generated_cases {
         let mut p = Box::new(net::Params::zeroed());
         p.init_in_place($seed);
         let p: &'static net::Params = Box::leak(p);
-        let (xs, ys) = (&*Box::leak(xs.into_boxed_slice()), &*Box::leak(ys.into_boxed_slice()));
+        let (xs, ys) = (
+            &*Box::leak(xs.into_boxed_slice()),
+            &*Box::leak(ys.into_boxed_slice()),
+        );
         $v.push(case($shape, Op::Inference, $imp, move |iters| {
             let mut out = [0.0; net::OUTPUTS];
             for k in 0..iters as usize {
@@ -259,7 +262,12 @@ fn engine_cases(v: &mut Vec<Case>, shape: Shape, layers: &crate::Layers) {
         let mut out = vec![0.0; n_out];
         for k in 0..iters as usize {
             let i = k % BATCH;
-            net.predict(p, black_box(&data.xs[i * n_in..(i + 1) * n_in]), &mut s, &mut out);
+            net.predict(
+                p,
+                black_box(&data.xs[i * n_in..(i + 1) * n_in]),
+                &mut s,
+                &mut out,
+            );
             black_box(&out);
         }
     }));
@@ -279,7 +287,13 @@ fn engine_cases(v: &mut Vec<Case>, shape: Shape, layers: &crate::Layers) {
     v.push(case(shape, Op::Batch, "engine", move |iters| {
         let mut grad = engine::Params::zero_gradient(model);
         for _ in 0..iters {
-            black_box(batch::gradient_into(net, p, black_box(&data.xs), &data.ys, &mut grad));
+            black_box(batch::gradient_into(
+                net,
+                p,
+                black_box(&data.xs),
+                &data.ys,
+                &mut grad,
+            ));
         }
         black_box(&grad);
     }));
@@ -295,7 +309,16 @@ pub fn all() -> Vec<Case> {
     let l1 = crate::n1_layers(p1);
     nalgebra3::<StdMath, Sigmoid, Sigmoid, 6, 10, 8, 3>(&mut v, N1, "nalgebra", &l1);
     nalgebra3::<LibmMath, Sigmoid, Sigmoid, 6, 10, 8, 3>(&mut v, N1, "nalgebra_libm", &l1);
-    plain_cases(&mut v, N1, &l1, &[plain::Act::Sigmoid, plain::Act::Sigmoid, plain::Act::Softmax]);
+    plain_cases(
+        &mut v,
+        N1,
+        &l1,
+        &[
+            plain::Act::Sigmoid,
+            plain::Act::Sigmoid,
+            plain::Act::Softmax,
+        ],
+    );
     engine_cases(&mut v, N1, &l1);
 
     let p2 = generated_cases!(v, N2, g::bench_n2, "generated", 2, false);
@@ -310,12 +333,19 @@ pub fn all() -> Vec<Case> {
     let l3 = crate::n3_layers(p3);
     nalgebra3::<StdMath, Relu, Relu, 784, 128, 64, 10>(&mut v, N3, "nalgebra", &l3);
     nalgebra3::<LibmMath, Relu, Relu, 784, 128, 64, 10>(&mut v, N3, "nalgebra_libm", &l3);
-    plain_cases(&mut v, N3, &l3, &[plain::Act::Relu, plain::Act::Relu, plain::Act::Softmax]);
+    plain_cases(
+        &mut v,
+        N3,
+        &l3,
+        &[plain::Act::Relu, plain::Act::Relu, plain::Act::Softmax],
+    );
     engine_cases(&mut v, N3, &l3);
     v
 }
 
 /// Makes rayon's global pool single-threaded (once; later calls do nothing).
 pub fn single_thread() {
-    let _ = rayon::ThreadPoolBuilder::new().num_threads(1).build_global();
+    let _ = rayon::ThreadPoolBuilder::new()
+        .num_threads(1)
+        .build_global();
 }

@@ -44,7 +44,11 @@ fn engine_flat(p: &engine::Params<f32>) -> Vec<f32> {
 
 /// Engine results for `layers`: (predictions of the first 8 samples, per-sample gradient of
 /// the first 8 samples, batch cost, batch gradient).
-fn engine_run(shape: Shape, layers: &crate::Layers, data: &Data) -> (Vec<f32>, Vec<f32>, f32, Vec<f32>) {
+fn engine_run(
+    shape: Shape,
+    layers: &crate::Layers,
+    data: &Data,
+) -> (Vec<f32>, Vec<f32>, f32, Vec<f32>) {
     let model = crate::model(shape.name);
     let net = engine::Net::<f32>::new(&model);
     let p = crate::engine_params(layers);
@@ -52,7 +56,12 @@ fn engine_run(shape: Shape, layers: &crate::Layers, data: &Data) -> (Vec<f32>, V
     let (n_in, n_out) = (shape.inputs(), shape.outputs());
     let mut preds = Vec::new();
     let mut grad = engine::Params::zero_gradient(&model);
-    for (x, y) in data.xs.chunks_exact(n_in).zip(data.ys.chunks_exact(n_out)).take(8) {
+    for (x, y) in data
+        .xs
+        .chunks_exact(n_in)
+        .zip(data.ys.chunks_exact(n_out))
+        .take(8)
+    {
         let mut out = vec![0.0; n_out];
         net.predict(&p, x, &mut s, &mut out);
         preds.extend(out);
@@ -90,9 +99,18 @@ macro_rules! generated_run {
         let grad_loop = gflat(&grad, &layers);
         let mut scratch = Box::new(net::BatchScratch::zeroed());
         let cost = p.gradient(&xs, &ys, &mut grad, &mut scratch);
-        same("generated blocked batch gradient vs per-sample loop", &gflat(&grad, &layers), &grad_loop)?;
-        same("generated blocked batch cost vs per-sample loop", &[cost], &[cost_loop])?;
-        (layers, preds, per_sample, cost, gflat(&grad, &layers))
+        same(
+            "generated blocked batch gradient vs per-sample loop",
+            &gflat(&grad, &layers),
+            &grad_loop,
+        )?;
+        same(
+            "generated blocked batch cost vs per-sample loop",
+            &[cost],
+            &[cost_loop],
+        )?;
+        let batch_grad = gflat(&grad, &layers);
+        (layers, preds, per_sample, cost, batch_grad)
     }};
 }
 
@@ -107,50 +125,118 @@ pub fn agree() -> Result<(), String> {
         };
         let name = shape.name;
         let (e_preds, e_per_sample, e_cost, e_grad) = engine_run(shape, &layers, &data);
-        same(&format!("{name}: generated vs engine predictions"), &preds, &e_preds)?;
-        same(&format!("{name}: generated vs engine per-sample gradient"), &per_sample, &e_per_sample)?;
-        same(&format!("{name}: generated vs engine batch cost"), &[cost], &[e_cost])?;
-        same(&format!("{name}: generated vs engine batch gradient"), &grad, &e_grad)?;
+        same(
+            &format!("{name}: generated vs engine predictions"),
+            &preds,
+            &e_preds,
+        )?;
+        same(
+            &format!("{name}: generated vs engine per-sample gradient"),
+            &per_sample,
+            &e_per_sample,
+        )?;
+        same(
+            &format!("{name}: generated vs engine batch cost"),
+            &[cost],
+            &[e_cost],
+        )?;
+        same(
+            &format!("{name}: generated vs engine batch gradient"),
+            &grad,
+            &e_grad,
+        )?;
 
         // Hand-written forms: same values up to rounding.
         let (n_in, n_out) = (shape.inputs(), shape.outputs());
         let acts: &[plain::Act] = match name {
-            "n1" => &[plain::Act::Sigmoid, plain::Act::Sigmoid, plain::Act::Softmax],
+            "n1" => &[
+                plain::Act::Sigmoid,
+                plain::Act::Sigmoid,
+                plain::Act::Softmax,
+            ],
             "n2" => &[plain::Act::Tanh, plain::Act::Softmax],
             _ => &[plain::Act::Relu, plain::Act::Relu, plain::Act::Softmax],
         };
         let pn = plain::Net::new(&layers, acts, 1e-3);
-        let p_preds: Vec<f32> = data.xs.chunks_exact(n_in).take(8).flat_map(|x| pn.predict(x)).collect();
-        close(&format!("{name}: plain vs generated predictions"), &p_preds, &preds, 1e-4)?;
+        let p_preds: Vec<f32> = data
+            .xs
+            .chunks_exact(n_in)
+            .take(8)
+            .flat_map(|x| pn.predict(x))
+            .collect();
+        close(
+            &format!("{name}: plain vs generated predictions"),
+            &p_preds,
+            &preds,
+            1e-4,
+        )?;
         let mut pg = pn.zero_grad();
         let p_cost = pn.gradient(&data.xs, &data.ys, &mut pg);
-        close(&format!("{name}: plain vs generated cost"), &[p_cost], &[cost], 1e-4)?;
-        close(&format!("{name}: plain vs generated gradient"), &flat(&pg), &grad, 1e-3)?;
+        close(
+            &format!("{name}: plain vs generated cost"),
+            &[p_cost],
+            &[cost],
+            1e-4,
+        )?;
+        close(
+            &format!("{name}: plain vs generated gradient"),
+            &flat(&pg),
+            &grad,
+            1e-3,
+        )?;
         let (n_preds, n_cost) = match name {
             "n1" => {
                 let n = nalg::Net3::<StdMath, Sigmoid, Sigmoid, 6, 10, 8, 3>::new(&layers, 1e-3);
                 let xs = nalg::vectors::<6>(&data.xs);
                 let ys = nalg::vectors::<3>(&data.ys);
                 let mut gr = nalg::Net3::<StdMath, Sigmoid, Sigmoid, 6, 10, 8, 3>::zero_grad();
-                (xs.iter().take(8).flat_map(|x| n.predict(x).iter().copied().collect::<Vec<_>>()).collect::<Vec<f32>>(), n.gradient(&xs, &ys, &mut gr))
+                (
+                    xs.iter()
+                        .take(8)
+                        .flat_map(|x| n.predict(x).iter().copied().collect::<Vec<_>>())
+                        .collect::<Vec<f32>>(),
+                    n.gradient(&xs, &ys, &mut gr),
+                )
             }
             "n2" => {
                 let n = nalg::Net2::<StdMath, Tanh, 64, 32, 10>::new(&layers, 1e-3);
                 let xs = nalg::vectors::<64>(&data.xs);
                 let ys = nalg::vectors::<10>(&data.ys);
                 let mut gr = nalg::Net2::<StdMath, Tanh, 64, 32, 10>::zero_grad();
-                (xs.iter().take(8).flat_map(|x| n.predict(x).iter().copied().collect::<Vec<_>>()).collect::<Vec<f32>>(), n.gradient(&xs, &ys, &mut gr))
+                (
+                    xs.iter()
+                        .take(8)
+                        .flat_map(|x| n.predict(x).iter().copied().collect::<Vec<_>>())
+                        .collect::<Vec<f32>>(),
+                    n.gradient(&xs, &ys, &mut gr),
+                )
             }
             _ => {
                 let n = nalg::Net3::<StdMath, Relu, Relu, 784, 128, 64, 10>::new(&layers, 1e-3);
                 let xs = nalg::vectors::<784>(&data.xs);
                 let ys = nalg::vectors::<10>(&data.ys);
                 let mut gr = nalg::Net3::<StdMath, Relu, Relu, 784, 128, 64, 10>::zero_grad();
-                (xs.iter().take(8).flat_map(|x| n.predict(x).iter().copied().collect::<Vec<_>>()).collect::<Vec<f32>>(), n.gradient(&xs, &ys, &mut gr))
+                (
+                    xs.iter()
+                        .take(8)
+                        .flat_map(|x| n.predict(x).iter().copied().collect::<Vec<_>>())
+                        .collect::<Vec<f32>>(),
+                    n.gradient(&xs, &ys, &mut gr),
+                )
             }
         };
-        close(&format!("{name}: nalgebra vs generated predictions"), &n_preds, &preds, 1e-4)?;
-        close(&format!("{name}: nalgebra vs generated cost"), &[n_cost], &[cost], 1e-4)?;
+        close(
+            &format!("{name}: nalgebra vs generated predictions"),
+            &n_preds,
+            &preds,
+            1e-4,
+        )?;
+        close(
+            &format!("{name}: nalgebra vs generated cost"),
+            &[n_cost],
+            &[cost],
+            1e-4,
+        )?;
         let _ = n_out;
     }
     Ok(())

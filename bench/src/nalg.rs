@@ -154,7 +154,8 @@ impl<const I: usize, const O: usize> Dense<I, O> {
     /// Batch finish: `G / m + (lambda / m) W`, `g_b / m`; the penalty term `sum W^2`.
     pub fn finish(&mut self, params: &Dense<I, O>, m: f32, lambda: f32) -> f32 {
         *self.w /= m;
-        self.w.axpy(lambda / m, &*params.w, 1.0);
+        let k = lambda / m;
+        self.w.zip_apply(&*params.w, |g, w| *g += k * w);
         self.b /= m;
         params.w.norm_squared()
     }
@@ -195,8 +196,15 @@ pub struct Net3<M, A1, A2, const I: usize, const H1: usize, const H2: usize, con
 pub type Grad3<const I: usize, const H1: usize, const H2: usize, const O: usize> =
     (Dense<I, H1>, Dense<H1, H2>, Dense<H2, O>);
 
-impl<M: Math, A1: Act, A2: Act, const I: usize, const H1: usize, const H2: usize, const O: usize>
-    Net3<M, A1, A2, I, H1, H2, O>
+impl<
+        M: Math,
+        A1: Act,
+        A2: Act,
+        const I: usize,
+        const H1: usize,
+        const H2: usize,
+        const O: usize,
+    > Net3<M, A1, A2, I, H1, H2, O>
 {
     /// From row-major (weights, biases) per layer.
     pub fn new(layers: &crate::Layers, lambda: f32) -> Self {

@@ -236,15 +236,16 @@ impl Builder {
                 second: path.clone(),
             });
         }
-        let weights = match &entry.weights {
-            Some(w) => Some(crate::workflow::load_weights(&model, w).map_err(|e| {
-                BuildError::Weights {
-                    spec: path.clone(),
-                    message: e.to_string(),
-                }
-            })?),
-            None => None,
-        };
+        let weights =
+            match &entry.weights {
+                Some(w) => Some(crate::workflow::load_weights(&model, w).map_err(|e| {
+                    BuildError::Weights {
+                        spec: path.clone(),
+                        message: e.to_string(),
+                    }
+                })?),
+                None => None,
+            };
         let options = EmitOptions {
             spec_name: spec_display_name(path),
             unroll_below: self.unroll_below,
@@ -345,7 +346,11 @@ impl fmt::Display for BuildError {
                 write!(f, "cannot read spec `{}`: {source}", path.display())
             }
             BuildError::Weights { spec, message } => {
-                write!(f, "weights for spec `{}` do not fit: {message}", spec.display())
+                write!(
+                    f,
+                    "weights for spec `{}` do not fit: {message}",
+                    spec.display()
+                )
             }
             BuildError::Spec { path, errors } => write!(
                 f,

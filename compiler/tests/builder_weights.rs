@@ -40,7 +40,10 @@ fn baked_weights_appear_with_exact_bit_patterns() {
         for v in wts.iter().chain(&bias) {
             let pat = format!("{:#x}", v.to_bits());
             let plain = format!("{:x}", v.to_bits());
-            assert!(code.contains(&pat) || code.contains(&plain) || *v == 0.0, "missing {v} ({pat})");
+            assert!(
+                code.contains(&pat) || code.contains(&plain) || *v == 0.0,
+                "missing {v} ({pat})"
+            );
         }
     }
 }
@@ -58,7 +61,10 @@ fn weights_of_another_model_fail_the_build() {
         .compile()
         .unwrap_err();
     let text = err.to_string();
-    assert!(matches!(err, sinew::builder::BuildError::Weights { .. }), "{text}");
+    assert!(
+        matches!(err, sinew::builder::BuildError::Weights { .. }),
+        "{text}"
+    );
     assert!(text.contains("other.json"), "{text}");
     assert!(!dir.join("pump_health.rs").exists());
 }

@@ -33,7 +33,11 @@ fn root() -> PathBuf {
 }
 
 fn corpus(target: &str) -> Vec<PathBuf> {
-    files_in(&Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fuzz_corpus").join(target))
+    files_in(
+        &Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("tests/fuzz_corpus")
+            .join(target),
+    )
 }
 
 fn spec_seeds() -> Vec<Vec<u8>> {
@@ -59,7 +63,10 @@ fn file_seeds() -> Vec<Vec<u8>> {
 #[test]
 fn parse_check_corpus_replays_cleanly() {
     let inputs = corpus("parse_check");
-    assert!(!inputs.is_empty(), "the parse_check regression corpus is empty");
+    assert!(
+        !inputs.is_empty(),
+        "the parse_check regression corpus is empty"
+    );
     for p in &inputs {
         let bytes = std::fs::read(p).expect("read corpus file");
         harness::parse_check(&bytes);

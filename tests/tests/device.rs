@@ -159,9 +159,7 @@ fn has_target(toolchain: Option<&str>, target: &str) -> bool {
     let dir = PathBuf::from(String::from_utf8_lossy(&out.stdout).trim());
     out.status.success()
         && std::fs::read_dir(dir).is_ok_and(|mut d| {
-            d.any(|e| {
-                e.is_ok_and(|e| e.file_name().to_string_lossy().starts_with("libcore-"))
-            })
+            d.any(|e| e.is_ok_and(|e| e.file_name().to_string_lossy().starts_with("libcore-")))
         })
 }
 
@@ -318,14 +316,11 @@ fn host() -> Host {
     let dir = device_dir();
     let spec = std::fs::read_to_string(repo().join("samples/pump_health.sinew")).expect("spec");
     let model = sinew::check_source(&spec).model.expect("the spec checks");
-    let weights = sinew::weights::Weights::load_checked(
-        &dir.join("pump_health.weights.json"),
-        &model,
-    )
-    .expect("the committed weights fit the spec");
+    let weights =
+        sinew::weights::Weights::load_checked(&dir.join("pump_health.weights.json"), &model)
+            .expect("the committed weights fit the spec");
     let s = weights.standardization.as_ref().expect("standardized");
-    let params =
-        Params::<f32>::from_f64(&weights.layers_flat(), Some((&s.mean[..], &s.std[..])));
+    let params = Params::<f32>::from_f64(&weights.layers_flat(), Some((&s.mean[..], &s.std[..])));
     let net = Net::new(&model);
     let mut scratch = Scratch::new(&model);
     let outputs = model.output().width;
@@ -679,7 +674,10 @@ fn count_instructions(board: &Board, elf: &Path, img: &Image) -> Result<Counts, 
         }
     }
     if k < pairs.len() {
-        return Err(format!("the exec log of {} ended before the markers", board.target));
+        return Err(format!(
+            "the exec log of {} ended before the markers",
+            board.target
+        ));
     }
     Ok(Counts {
         infer: counts[1] - counts[0],
@@ -772,7 +770,10 @@ fn firmware_on_emulated_boards_matches_the_workstation() {
             );
             let probe = read_image(&dir.join("panic_probe"), board.thumb);
             assert!(
-                probe.panic_symbols().iter().any(|n| n.contains("core::panicking")),
+                probe
+                    .panic_symbols()
+                    .iter()
+                    .any(|n| n.contains("core::panicking")),
                 "{}: the no-panic check does not see the bounds check of panic_probe",
                 board.target
             );
@@ -783,8 +784,12 @@ fn firmware_on_emulated_boards_matches_the_workstation() {
                 board.target, f.weights, host.report.flash_bytes
             );
             let trainer_bytes = field(&got.header, "trainer_bytes").expect("trainer_bytes");
-            let count = count_instructions(board, &dir.join("count"), &read_image(&dir.join("count"), board.thumb))
-                .unwrap_or_else(|e| panic!("{e}"));
+            let count = count_instructions(
+                board,
+                &dir.join("count"),
+                &read_image(&dir.join("count"), board.thumb),
+            )
+            .unwrap_or_else(|e| panic!("{e}"));
             let (predict, step, painted) = got.stack;
             assert!(
                 predict < painted && step < painted,
@@ -806,9 +811,9 @@ fn firmware_on_emulated_boards_matches_the_workstation() {
     // The trainer's state is the report's training RAM without the per-sample working set:
     // parameters, gradient and Adam's two moments, plus the step counter.
     let r = &host.report;
-    let per_sample =
-        host.model.input.width * usize::from(host.model.input.standardize) + 2 * widths(&host.model)
-            + host.model.output().width;
+    let per_sample = host.model.input.width * usize::from(host.model.input.standardize)
+        + 2 * widths(&host.model)
+        + host.model.output().width;
     let state = r.ram_training_bytes as usize - per_sample * r.scalar_bytes as usize;
     for row in &rows {
         assert_eq!(
@@ -874,7 +879,10 @@ fn figures(host: &Host, rows: &[Row]) -> String {
         t,
         "| target (QEMU board) | opt-level | flash: code | flash: weights | RAM: inference (stack) | RAM: training (state + stack) | stack frames (nightly) | instructions / inference | instructions / training step |"
     );
-    let _ = writeln!(t, "| --- | --- | ---: | ---: | ---: | ---: | --- | ---: | ---: |");
+    let _ = writeln!(
+        t,
+        "| --- | --- | ---: | ---: | ---: | ---: | --- | ---: | ---: |"
+    );
     for row in rows {
         let f = &row.flash;
         let frames: Vec<String> = row

@@ -47,7 +47,10 @@ fn main() {
             let exe = std::env::current_exe().expect("own path");
             println!("| case | instructions per call | per sample |");
             println!("| --- | ---: | ---: |");
-            for case in all.iter().filter(|c| filter.is_none_or(|f| c.id().contains(f))) {
+            for case in all
+                .iter()
+                .filter(|c| filter.is_none_or(|f| c.id().contains(f)))
+            {
                 let n = iters(case);
                 let out = Command::new("valgrind")
                     .args([
@@ -61,7 +64,9 @@ fn main() {
                 let out = match out {
                     Ok(o) => o,
                     Err(e) => {
-                        eprintln!("cannot run valgrind ({e}); install it: apt-get install -y valgrind");
+                        eprintln!(
+                            "cannot run valgrind ({e}); install it: apt-get install -y valgrind"
+                        );
                         std::process::exit(1);
                     }
                 };

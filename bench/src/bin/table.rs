@@ -166,10 +166,16 @@ fn numpy_rows(s: Shape, op: Op, np: &Value, base: Option<f64>, peak: f64) {
     let net = &np["nets"][s.name];
     let rows: Vec<(&str, f64, usize)> = match op {
         Op::Inference => vec![
-            ("numpy, one sample", net["inference_single_ns"].as_f64().unwrap_or(f64::NAN), 1),
+            (
+                "numpy, one sample",
+                net["inference_single_ns"].as_f64().unwrap_or(f64::NAN),
+                1,
+            ),
             (
                 "numpy, 256 samples batched (per sample)",
-                net["inference_batched_ns_per_sample"].as_f64().unwrap_or(f64::NAN),
+                net["inference_batched_ns_per_sample"]
+                    .as_f64()
+                    .unwrap_or(f64::NAN),
                 1,
             ),
         ],
@@ -184,7 +190,11 @@ fn numpy_rows(s: Shape, op: Op, np: &Value, base: Option<f64>, peak: f64) {
         if !t.is_finite() {
             continue;
         }
-        let macs = if samples == 1 { op.macs(s) / op.samples() } else { op.macs(s) };
+        let macs = if samples == 1 {
+            op.macs(s) / op.samples()
+        } else {
+            op.macs(s)
+        };
         let gflops = 2.0 * macs as f64 / t;
         let ratio = base.map_or("".to_string(), |bt| {
             format!("{:.2}x", t / (bt / (op.samples() / samples) as f64))
@@ -328,7 +338,8 @@ fn build_n3_module(workspace: &Path, source: &str) -> Result<f64, String> {
     };
     cargo("first build")?;
     // Touch the module so that only it is rebuilt, then time that.
-    std::fs::write(dir.join("src/bench_n3.rs"), format!("{source}\n")).map_err(|e| e.to_string())?;
+    std::fs::write(dir.join("src/bench_n3.rs"), format!("{source}\n"))
+        .map_err(|e| e.to_string())?;
     let t = Instant::now();
     cargo("timed build")?;
     Ok(t.elapsed().as_secs_f64())

@@ -73,7 +73,9 @@ pub(super) fn items(cx: &Ctx) -> TokenStream {
         fields.push((ident(&n.errors), cx.width_const(i)));
     }
     let names: Vec<&Ident> = fields.iter().map(|(f, _)| f).collect();
-    let decls = fields.iter().map(|(f, w)| quote!(#f: [[Scalar; #w]; #block],));
+    let decls = fields
+        .iter()
+        .map(|(f, w)| quote!(#f: [[Scalar; #w]; #block],));
     let zeros = fields.iter().map(|(f, w)| quote!(#f: [[0.0; #w]; #block],));
     let gets = fields.iter().map(|(f, _)| quote!(#f.get_mut(..m)));
     let somes = fields.iter().map(|(f, _)| quote!(Some(#f)));
