@@ -30,7 +30,7 @@ use std::path::PathBuf;
 /// How many networks are generated and compiled.
 const NETWORKS: usize = 240;
 /// The generator's seed: change it to draw a different family of networks.
-const SEED: u64 = 0x5eed_0f_5e1f;
+const SEED: u64 = 0x005e_ed0f_5e1f;
 /// Unrolling threshold for the networks compiled with unrolled kernels.
 const UNROLL_BELOW: usize = 48;
 
@@ -81,7 +81,7 @@ fn spec(i: usize, rng: &mut SplitMix64) -> String {
     let _ = writeln!(s, "# Random network {i} (tests-random/build.rs)");
     let _ = writeln!(s, "model net_{i:03}");
     let _ = writeln!(s, "scalar {}", pick(rng, &["f32", "f64"]));
-    let std = if rng.next_u64() % 3 == 0 {
+    let std = if rng.next_u64().is_multiple_of(3) {
         " standardize"
     } else {
         ""
@@ -106,9 +106,9 @@ fn spec(i: usize, rng: &mut SplitMix64) -> String {
         let names: Vec<String> = (0..n).map(|k| format!("c{k}")).collect();
         format!(" classes {}", names.join(", "))
     };
-    if i % 2 == 0 {
-        let softmax = rng.next_u64() % 2 == 0;
-        let with_classes = rng.next_u64() % 3 == 0;
+    if i.is_multiple_of(2) {
+        let softmax = rng.next_u64().is_multiple_of(2);
+        let with_classes = rng.next_u64().is_multiple_of(3);
         if softmax {
             let n = int(rng, 2, 16);
             let c = if with_classes {
@@ -144,7 +144,7 @@ fn spec(i: usize, rng: &mut SplitMix64) -> String {
         }
         k => {
             let kind = if k == 2 { "l2" } else { "l1" };
-            let lambda = if rng.next_u64() % 8 == 0 {
+            let lambda = if rng.next_u64().is_multiple_of(8) {
                 "0".to_string()
             } else {
                 decimal(rng, 0.001, 0.1)
@@ -195,7 +195,7 @@ fn spec(i: usize, rng: &mut SplitMix64) -> String {
             let _ = writeln!(s, "train adam rate {}", decimal(rng, 0.001, 0.1));
         }
     }
-    if rng.next_u64() % 6 == 0 {
+    if rng.next_u64().is_multiple_of(6) {
         let _ = writeln!(s, "budget flash 4 MiB ram 1 MiB");
     }
     s

@@ -195,7 +195,7 @@ impl Builder {
         done: &[(String, PathBuf, PathBuf)],
     ) -> Result<(String, PathBuf, PathBuf), BuildError> {
         let path = &entry.path;
-        let src = std::fs::read_to_string(path).map_err(|source| BuildError::Read {
+        let src = fsutil::read_spec(path).map_err(|source| BuildError::Read {
             path: path.clone(),
             source,
         })?;

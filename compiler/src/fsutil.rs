@@ -1,12 +1,72 @@
-//! Atomic file output shared by every writer (generated code, weights, blobs, plots).
+//! Atomic file output shared by every writer (generated code, weights, blobs, plots), and the
+//! bounded read of spec files.
 //!
 //! A file is written to a temporary sibling, flushed to disk, then renamed over the target, so a
 //! reader (or an interrupted run) sees either the old file or the complete new one, never a
-//! truncated one.
+//! truncated one. A run killed midway can leave its temporary file behind (named
+//! `<file>.<pid>-<n>.tmp`); it never replaces the target.
 
 use std::fs;
-use std::io::{self, Write};
+use std::io::{self, Read, Write};
 use std::path::{Path, PathBuf};
+
+/// The largest spec file that the build API and the `sinew` command read: 1 MiB. A spec is a
+/// short text file; a larger one (a generator gone wrong, a wrong path) is refused after
+/// reading at most one byte more than this, so it never fills memory.
+pub const MAX_SPEC_BYTES: u64 = 1 << 20;
+
+/// Reads the whole file at `path` when it holds at most `limit` bytes. A longer file is refused
+/// with an [`io::ErrorKind::InvalidData`] error saying so, after reading at most `limit + 1`
+/// bytes of it (so a huge file, or an endless one such as a device, costs no more memory).
+///
+/// # Examples
+/// ```
+/// let dir = std::env::temp_dir().join(format!("sinew-doc-read-limited-{}", std::process::id()));
+/// std::fs::create_dir_all(&dir).unwrap();
+/// let path = dir.join("spec.sinew");
+/// std::fs::write(&path, "model m\n").unwrap();
+/// assert_eq!(sinew::fsutil::read_limited(&path, 8).unwrap(), b"model m\n");
+/// let err = sinew::fsutil::read_limited(&path, 7).unwrap_err();
+/// assert_eq!(err.to_string(), "the file is larger than 7 bytes");
+/// # std::fs::remove_dir_all(dir).unwrap();
+/// ```
+pub fn read_limited(path: &Path, limit: u64) -> io::Result<Vec<u8>> {
+    let mut bytes = Vec::new();
+    fs::File::open(path)?
+        .take(limit.saturating_add(1))
+        .read_to_end(&mut bytes)?;
+    if bytes.len() as u64 > limit {
+        return Err(io::Error::new(
+            io::ErrorKind::InvalidData,
+            format!("the file is larger than {limit} bytes"),
+        ));
+    }
+    Ok(bytes)
+}
+
+/// Reads a spec file as UTF-8 text, refusing one larger than [`MAX_SPEC_BYTES`] (see
+/// [`read_limited`]) or one that is not UTF-8.
+pub fn read_spec(path: &Path) -> io::Result<String> {
+    let bytes = read_limited(path, MAX_SPEC_BYTES).map_err(|e| {
+        if e.kind() == io::ErrorKind::InvalidData {
+            io::Error::new(
+                io::ErrorKind::InvalidData,
+                format!("{e} (1 MiB), the limit for a spec file"),
+            )
+        } else {
+            e
+        }
+    })?;
+    String::from_utf8(bytes).map_err(|e| {
+        io::Error::new(
+            io::ErrorKind::InvalidData,
+            format!(
+                "the file is not UTF-8 text (invalid byte at offset {})",
+                e.utf8_error().valid_up_to()
+            ),
+        )
+    })
+}
 
 fn temp_sibling(path: &Path) -> io::Result<PathBuf> {
     let name = path.file_name().ok_or_else(|| {

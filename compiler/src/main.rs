@@ -520,7 +520,7 @@ fn pack(spec: &Path, weights: &Path, output: &Path) -> ExitCode {
 }
 
 fn read(path: &Path) -> Result<String, ExitCode> {
-    std::fs::read(path)
+    sinew::fsutil::read_limited(path, sinew::fsutil::MAX_SPEC_BYTES)
         .map(|bytes| String::from_utf8_lossy(&bytes).into_owned())
         .map_err(|e| {
             eprintln!("error: cannot read {}: {e}", path.display());

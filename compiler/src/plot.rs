@@ -46,9 +46,13 @@ fn no_text(text: bool) -> Option<String> {
     })
 }
 
-/// Draws the training (and validation, when present) cost per epoch into `path`. The file is
-/// written to a temporary sibling and renamed into place. Returns a note for the user when the
-/// PNG had to be drawn without text.
+/// Plot size in pixels.
+const SIZE: (u32, u32) = (900, 560);
+
+/// Draws the training (and validation, when present) cost per epoch into `path`. The picture is
+/// drawn in memory, then written with [`crate::fsutil::write_atomic`] (temporary sibling, flushed
+/// to disk, renamed into place), so a failed or interrupted write leaves an existing file as it
+/// was. Returns a note for the user when the plot had to be drawn without text.
 pub fn cost_curves(
     history: &[EpochReport],
     title: &str,
@@ -59,32 +63,29 @@ pub fn cost_curves(
         .and_then(|e| e.to_str())
         .unwrap_or("")
         .to_ascii_lowercase();
-    // The temporary file keeps the extension: the PNG encoder picks its format from it.
-    let stem = path
-        .file_stem()
-        .map(|s| s.to_string_lossy().into_owned())
-        .unwrap_or_default();
-    let tmp = path.with_file_name(format!(".{stem}.{}.tmp.{ext}", std::process::id()));
-    let result = match ext.as_str() {
+    let (bytes, note) = match ext.as_str() {
         "svg" => {
             let text = register_font();
+            let mut svg = String::new();
             draw(
-                SVGBackend::new(&tmp, (900, 560)).into_drawing_area(),
+                SVGBackend::with_string(&mut svg, SIZE).into_drawing_area(),
                 history,
                 title,
                 text,
-            )
-            .map(|_| no_text(text))
+            )?;
+            (svg.into_bytes(), no_text(text))
         }
         "png" => {
             let text = register_font();
+            let (w, h) = SIZE;
+            let mut rgb = vec![0u8; w as usize * h as usize * 3];
             draw(
-                BitMapBackend::new(&tmp, (900, 560)).into_drawing_area(),
+                BitMapBackend::with_buffer(&mut rgb, SIZE).into_drawing_area(),
                 history,
                 title,
                 text,
-            )
-            .map(|_| no_text(text))
+            )?;
+            (png_bytes(&rgb, w, h)?, no_text(text))
         }
         _ => {
             return Err(format!(
@@ -93,17 +94,22 @@ pub fn cost_curves(
             ))
         }
     };
-    match result {
-        Ok(note) => {
-            std::fs::rename(&tmp, path)
-                .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
-            Ok(note)
-        }
-        Err(e) => {
-            let _ = std::fs::remove_file(&tmp);
-            Err(e)
-        }
-    }
+    crate::fsutil::write_atomic(path, &bytes)
+        .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+    Ok(note)
+}
+
+/// An 8-bit RGB image encoded as PNG in memory.
+fn png_bytes(rgb: &[u8], width: u32, height: u32) -> Result<Vec<u8>, String> {
+    let err = |e: png::EncodingError| format!("cannot encode the plot as PNG: {e}");
+    let mut out = Vec::new();
+    let mut encoder = png::Encoder::new(&mut out, width, height);
+    encoder.set_color(png::ColorType::Rgb);
+    encoder.set_depth(png::BitDepth::Eight);
+    let mut writer = encoder.write_header().map_err(err)?;
+    writer.write_image_data(rgb).map_err(err)?;
+    writer.finish().map_err(err)?;
+    Ok(out)
 }
 
 fn draw<DB: DrawingBackend>(

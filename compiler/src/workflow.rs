@@ -8,7 +8,7 @@ use crate::data::{self, DataError, Dataset};
 use crate::engine::train::{EpochReport, Samples, TrainError, TrainOptions, TrainSummary};
 use crate::engine::{batch, eval, gradcheck, train, Net, Params};
 use crate::ir::{Model, Scalar};
-use crate::weights::{data_hash, Provenance, Weights, WeightsError};
+use crate::weights::{Provenance, Weights, WeightsError};
 use sinew_runtime::rng::SplitMix64;
 use sinew_runtime::Real;
 use std::fmt;
@@ -130,6 +130,25 @@ fn samples<T: Real>(ds: &Dataset) -> Samples<T> {
     Samples::from_rows(&ds.inputs, &ds.targets, ds.labels.as_deref())
 }
 
+/// [`crate::weights::data_hash`] of the file at `path`, read in pieces so that a large data file is never held
+/// in memory whole.
+fn file_hash(path: &Path) -> std::io::Result<String> {
+    use std::io::Read;
+    let mut f = std::fs::File::open(path)?;
+    let mut buf = vec![0u8; 1 << 16];
+    let mut h = crate::ir::FNV1A64_OFFSET;
+    loop {
+        let n = match f.read(&mut buf) {
+            Ok(0) => break,
+            Ok(n) => n,
+            Err(e) if e.kind() == std::io::ErrorKind::Interrupted => continue,
+            Err(e) => return Err(e),
+        };
+        h = crate::ir::fnv1a64_extend(h, buf.get(..n).unwrap_or(&[]));
+    }
+    Ok(format!("{h:016x}"))
+}
+
 /// Reads the data, splits it, sets the standardization from the training split, trains, and
 /// evaluates. Nothing is written; on divergence the error names the epoch.
 pub fn train(
@@ -137,7 +156,7 @@ pub fn train(
     req: &TrainRequest<'_>,
     on_epoch: &mut dyn FnMut(&EpochReport),
 ) -> Result<TrainOutcome, WorkflowError> {
-    let bytes = std::fs::read(req.data)
+    let hash = file_hash(req.data)
         .map_err(|e| WorkflowError::Io(format!("cannot read {}: {e}", req.data.display())))?;
     let ds = data::read_csv(req.data, model)?;
     let (tr, va) = if req.split > 0.0 {
@@ -151,7 +170,6 @@ pub fn train(
         .file_name()
         .map(|f| f.to_string_lossy().into_owned())
         .unwrap_or_default();
-    let hash = data_hash(&bytes);
     match model.scalar {
         Scalar::F32 => train_t::<f32>(model, req, &tr, va.as_ref(), file_name, hash, on_epoch),
         Scalar::F64 => train_t::<f64>(model, req, &tr, va.as_ref(), file_name, hash, on_epoch),
@@ -363,5 +381,23 @@ pub fn baked(w: &Weights) -> crate::emit::BakedParams {
         layers: w.layers_flat(),
         mean: w.standardization.as_ref().map(|s| s.mean.clone()),
         std: w.standardization.as_ref().map(|s| s.std.clone()),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    #[test]
+    fn file_hash_is_the_data_hash_of_the_bytes() {
+        let dir = std::env::temp_dir().join(format!("sinew-workflow-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let path = dir.join("data.csv");
+        // More than one read buffer, so the hash is continued across pieces.
+        let bytes: Vec<u8> = (0..200_000u32).map(|i| (i % 251) as u8).collect();
+        std::fs::write(&path, &bytes).unwrap();
+        assert_eq!(
+            super::file_hash(&path).unwrap(),
+            crate::weights::data_hash(&bytes)
+        );
+        std::fs::remove_dir_all(dir).unwrap();
     }
 }

@@ -6,6 +6,8 @@
 //! `compiler/tests/fuzz_regressions.rs` (corpus replay and proptest, stable).
 
 use sinew::data;
+use sinew::pack;
+use sinew_runtime::blob;
 use sinew::emit::{self, EmitOptions};
 use sinew::engine::{self, Scratch};
 use sinew::ir::Model;
@@ -102,23 +104,29 @@ fn models() -> Vec<Model> {
         .collect()
 }
 
-/// A file input: the first byte picks the reader (even: weights JSON, odd: CSV) and, for CSV,
-/// the model (`(byte / 2) % 3`); the rest is the file.
+/// A file input: the first byte picks the reader (`byte % 3`: 0 weights JSON, 1 CSV, 2 device
+/// blob) and, for CSV, the model (`(byte / 3) % 3`); the rest is the file.
 ///
 /// Invariants: an accepted weights file round-trips (save form, read again, same values and
 /// the same text), and fits or is refused by each model without a panic, and evaluates when
 /// it fits; an accepted CSV has at least one sample, rows of the model's widths, only finite
-/// values and labels in range, and can be split and standardized.
+/// values and labels in range, and can be split and standardized; a blob that decodes (for one
+/// of the models, or for the fingerprint and count in its own header) is re-encoded by both
+/// encoders, the runtime's `Writer` and `sinew::pack`, to exactly its own bytes.
 pub fn files(data: &[u8]) {
     let Some((&selector, rest)) = data.split_first() else {
         return;
     };
     let models = models();
     let text = String::from_utf8_lossy(rest);
-    if selector % 2 == 0 {
-        weights(&text, &models);
-    } else if let Some(model) = models.get(usize::from(selector / 2) % models.len()) {
-        csv(&text, model);
+    match selector % 3 {
+        0 => weights(&text, &models),
+        1 => {
+            if let Some(model) = models.get(usize::from(selector / 3) % models.len()) {
+                csv(&text, model);
+            }
+        }
+        _ => blob(rest, &models),
     }
 }
 
@@ -169,4 +177,59 @@ fn csv(text: &str, model: &Model) {
     let (train, validation) = data::split(&ds, 0.25, 7);
     assert_eq!(train.len() + validation.len(), ds.len());
     let _ = data::mean_std(&ds);
+}
+
+fn blob(bytes: &[u8], models: &[Model]) {
+    let Ok(header) = blob::Header::parse(bytes) else {
+        return;
+    };
+    let count = usize::try_from(header.count).unwrap_or(usize::MAX);
+    // Against the blob's own header: reaches the length, checksum and value checks.
+    match header.kind {
+        blob::ScalarKind::F32 => reencode::<f32>(bytes, header.fingerprint, count),
+        blob::ScalarKind::F64 => reencode::<f64>(bytes, header.fingerprint, count),
+    }
+    for model in models {
+        if let Ok(values) = pack::decode(model, bytes) {
+            assert_eq!(values.len(), pack::value_count(model));
+            assert_eq!(bytes.len(), pack::blob_len(model));
+            // Through the weights form and `sinew pack`'s encoder.
+            let mut at = 0;
+            let mut layers = Vec::new();
+            for l in &model.layers {
+                let n = l.width * l.fan_in;
+                layers.push((
+                    values[at..at + n].to_vec(),
+                    values[at + n..at + n + l.width].to_vec(),
+                ));
+                at += n + l.width;
+            }
+            let scaling = model.input.standardize.then(|| {
+                let w = model.input.width;
+                (values[at..at + w].to_vec(), values[at + w..at + 2 * w].to_vec())
+            });
+            let w = Weights::from_params(model, layers, scaling, None);
+            if let Ok(again) = pack::encode(model, &w) {
+                assert_eq!(again, bytes, "sinew pack re-encodes a decoded blob differently");
+            }
+        }
+    }
+}
+
+/// Decodes with the runtime's `Values` and, when that succeeds, writes the values back with the
+/// runtime's `Writer`: the bytes must be the same.
+fn reencode<T: blob::BlobScalar + Copy + Default>(bytes: &[u8], fingerprint: u64, count: usize) {
+    let Ok(mut values) = blob::Values::<T>::open(bytes, fingerprint, count) else {
+        return;
+    };
+    let mut v = vec![T::default(); count];
+    assert_eq!(values.read_into(&mut v), count);
+    assert_eq!(values.remaining(), 0);
+    let mut out = vec![0u8; bytes.len()];
+    let Ok(mut w) = blob::Writer::<T>::new(&mut out, fingerprint, count) else {
+        panic!("a blob that decodes cannot be written again");
+    };
+    w.write(&v);
+    assert_eq!(w.finish().ok(), Some(bytes.len()));
+    assert_eq!(out, bytes);
 }

@@ -52,12 +52,12 @@ pub fn identity_grad<T: Real>(a: &[T], d: &mut [T]) {
 pub fn sigmoid<T: Real>(v: &mut [T]) {
     for x in v.iter_mut() {
         let z = *x;
-        *x = if z >= T::ZERO {
-            T::ONE / (T::ONE + (-z).exp())
-        } else {
-            let e = z.exp();
-            e / (T::ONE + e)
-        };
+        // One exponential of `-|z|` (which is `-z` for `z >= 0` and `z` for `z < 0`, exactly) and
+        // a select instead of a branch: the same operations as the two cases above, without a
+        // mispredicted jump on every other unit.
+        let e = (-z.abs()).exp();
+        let numerator = if z >= T::ZERO { T::ONE } else { e };
+        *x = numerator / (T::ONE + e);
     }
 }
 

@@ -16,7 +16,7 @@
 //! | module | kernels |
 //! | --- | --- |
 //! | [`real`] | [`Real`]: the scalar trait (`f32`, `f64`) over libm |
-//! | [`linalg`] | [`affine`] `z = W x + b`, [`back`] `out = W^T d`, [`outer_acc`] `G += d a^T`, [`add_acc`] `g += d`, [`standardize`] `(x - mean) / std`, each with an `_n` array form where shapes matter; their batch forms over a block of samples ([`affine_batch`], [`back_batch`], [`outer_acc_batch`], [`add_acc_batch`]), bit for bit the per-sample loop |
+//! | [`linalg`] | [`affine`] `z = W x + b`, [`back`] `out = W^T d`, [`outer_acc`] `G += d a^T`, [`add_acc`] `g += d`, [`standardize`] `(x - mean) / std`, each with an `_n` array form where shapes matter; their batch forms over a block of samples ([`affine_batch`], [`back_batch`], [`outer_acc_batch`] and its row-range form [`outer_acc_batch_rows`], [`add_acc_batch`]), bit for bit the per-sample loop |
 //! | [`act`] | [`act::identity`], [`act::sigmoid`], [`act::tanh`], [`act::relu`], [`act::leaky_relu`], [`act::softmax`] and their `_grad` forms; [`act::Activation`] |
 //! | [`loss`] | [`loss::softplus`], [`loss::log_sum_exp`], [`loss::logistic_cross_entropy`], [`loss::softmax_cross_entropy`], [`loss::squared_error`], [`loss::output_error`] |
 //! | [`penalty`] | [`penalty::Penalty`] (none, L2, L1: cost term and gradient), [`penalty::finish_bias`] |
@@ -72,7 +72,7 @@ pub mod rng;
 
 pub use linalg::{
     add_acc, add_acc_batch, affine, affine_batch, affine_batch_n, affine_n, back, back_batch,
-    back_batch_n, back_n, outer_acc, outer_acc_batch, outer_acc_batch_n, outer_acc_n, standardize,
-    standardize_n,
+    back_batch_n, back_n, outer_acc, outer_acc_batch, outer_acc_batch_n, outer_acc_batch_rows,
+    outer_acc_n, standardize, standardize_n,
 };
 pub use real::Real;

@@ -23,38 +23,62 @@ const ROWS: usize = 4;
 
 /// The lane sum of [`affine`]: `((l0 + l4) + (l2 + l6)) + ((l1 + l5) + (l3 + l7))` (halves folded
 /// onto each other, the shape of a SIMD horizontal sum).
-#[inline(always)]
+///
+/// Not inlined: inlined, the compiler vectorizes the sums of four rows together and then keeps
+/// the accumulators of the main loop transposed across rows, with a shuffle per product.
+#[inline(never)]
 fn lane_sum<T: Real>(l: [T; LANES]) -> T {
     let [l0, l1, l2, l3, l4, l5, l6, l7] = l;
     ((l0 + l4) + (l2 + l6)) + ((l1 + l5) + (l3 + l7))
 }
 
-/// `acc_k += w_k * x_k` over the zip (at most [`LANES`] elements: a full chunk or a row's tail).
+/// `acc_k += w_k * x_k` for the `LANES` lanes (one SIMD multiply and add per vector register).
 #[inline(always)]
-fn lanes_mul_add<T: Real>(acc: &mut [T; LANES], w: &[T], x: &[T]) {
+fn lanes_mul_add<T: Real>(acc: &mut [T; LANES], w: &[T; LANES], x: &[T; LANES]) {
     for ((a, wk), xk) in acc.iter_mut().zip(w).zip(x) {
         *a += *wk * *xk;
     }
 }
 
-/// The lane accumulators of one row: `acc_k = sum over i = k (mod LANES) of w_i x_i`, from `ZERO`
-/// in increasing `i`.
+/// The chunk as an array (`None` only if it is not `LANES` long, which `chunks_exact` rules out).
 #[inline(always)]
-fn row_lanes<T: Real>(w: &[T], x: &[T]) -> [T; LANES] {
+fn lanes<T>(c: &[T]) -> Option<&[T; LANES]> {
+    c.try_into().ok()
+}
+
+/// A row's tail (fewer than `LANES` values) padded with zeros to a full chunk.
+///
+/// Adding the padded products `0 * 0 = +0` to the lane sums changes no bit: a lane sum starts at
+/// `+0` and so is never `-0` (in round-to-nearest, `a + b` is `-0` only when both are `-0`), and
+/// `s + (+0) = s` for every `s` other than `-0`, NaN and infinities included.
+#[inline(always)]
+fn padded<T: Real>(tail: &[T]) -> [T; LANES] {
+    // Lane by lane (a copy of a run-time length would become a call to `memcpy`).
+    core::array::from_fn(|k| tail.get(k).copied().unwrap_or(T::ZERO))
+}
+
+/// The lane accumulators of one row: `acc_k = sum over i = k (mod LANES) of w_i x_i`, from `ZERO`
+/// in increasing `i`. `xt` is the input's tail, padded.
+#[inline(always)]
+fn row_lanes<T: Real>(w: &[T], x: &[T], xt: &[T; LANES]) -> [T; LANES] {
     let mut acc = [T::ZERO; LANES];
-    let (wc, xc) = (w.chunks_exact(LANES), x.chunks_exact(LANES));
-    let (wr, xr) = (wc.remainder(), xc.remainder());
-    for (wk, xk) in wc.zip(xc) {
-        lanes_mul_add(&mut acc, wk, xk);
+    let wc = w.chunks_exact(LANES);
+    let wr = wc.remainder();
+    for (wk, xk) in wc.zip(x.chunks_exact(LANES)) {
+        if let (Some(wk), Some(xk)) = (lanes(wk), lanes(xk)) {
+            lanes_mul_add(&mut acc, wk, xk);
+        }
     }
-    lanes_mul_add(&mut acc, wr, xr);
+    if !wr.is_empty() {
+        lanes_mul_add(&mut acc, &padded(wr), xt);
+    }
     acc
 }
 
 /// [`row_lanes`] of four rows against the same `x` (one load of `x` serves four rows; four
 /// independent accumulators). Each row gets exactly the operations of [`row_lanes`].
 #[inline(always)]
-fn rows4_lanes<T: Real>(r: [&[T]; ROWS], x: &[T]) -> [[T; LANES]; ROWS] {
+fn rows4_lanes<T: Real>(r: [&[T]; ROWS], x: &[T], xt: &[T; LANES]) -> [[T; LANES]; ROWS] {
     let [r0, r1, r2, r3] = r;
     let (mut a0, mut a1, mut a2, mut a3) = (
         [T::ZERO; LANES],
@@ -68,25 +92,28 @@ fn rows4_lanes<T: Real>(r: [&[T]; ROWS], x: &[T]) -> [[T; LANES]; ROWS] {
         r2.chunks_exact(LANES),
         r3.chunks_exact(LANES),
     );
-    let xc = x.chunks_exact(LANES);
-    let tails = (
+    let (t0, t1, t2, t3) = (
         c0.remainder(),
         c1.remainder(),
         c2.remainder(),
         c3.remainder(),
-        xc.remainder(),
     );
-    for ((((xk, w0), w1), w2), w3) in xc.zip(c0).zip(c1).zip(c2).zip(c3) {
-        lanes_mul_add(&mut a0, w0, xk);
-        lanes_mul_add(&mut a1, w1, xk);
-        lanes_mul_add(&mut a2, w2, xk);
-        lanes_mul_add(&mut a3, w3, xk);
+    for ((((xk, w0), w1), w2), w3) in x.chunks_exact(LANES).zip(c0).zip(c1).zip(c2).zip(c3) {
+        if let (Some(xk), Some(w0), Some(w1), Some(w2), Some(w3)) =
+            (lanes(xk), lanes(w0), lanes(w1), lanes(w2), lanes(w3))
+        {
+            lanes_mul_add(&mut a0, w0, xk);
+            lanes_mul_add(&mut a1, w1, xk);
+            lanes_mul_add(&mut a2, w2, xk);
+            lanes_mul_add(&mut a3, w3, xk);
+        }
     }
-    let (t0, t1, t2, t3, xt) = tails;
-    lanes_mul_add(&mut a0, t0, xt);
-    lanes_mul_add(&mut a1, t1, xt);
-    lanes_mul_add(&mut a2, t2, xt);
-    lanes_mul_add(&mut a3, t3, xt);
+    if !t0.is_empty() {
+        lanes_mul_add(&mut a0, &padded(t0), xt);
+        lanes_mul_add(&mut a1, &padded(t1), xt);
+        lanes_mul_add(&mut a2, &padded(t2), xt);
+        lanes_mul_add(&mut a3, &padded(t3), xt);
+    }
     [a0, a1, a2, a3]
 }
 
@@ -95,6 +122,12 @@ fn rows4_lanes<T: Real>(r: [&[T]; ROWS], x: &[T]) -> [[T; LANES]; ROWS] {
 fn four_rows<T>(block: &[T], n: usize) -> Option<[&[T]; ROWS]> {
     let mut it = block.chunks_exact(n);
     Some([it.next()?, it.next()?, it.next()?, it.next()?])
+}
+
+/// The input's tail (past the last full chunk), padded.
+#[inline(always)]
+fn input_tail<T: Real>(x: &[T]) -> [T; LANES] {
+    padded(x.chunks_exact(LANES).remainder())
 }
 
 /// Affine map of a dense layer: `z_j = (sum_i w[j*n + i] * x_i) + b_j`, with `n = x.len()`.
@@ -119,6 +152,7 @@ fn four_rows<T>(block: &[T], n: usize) -> Option<[&[T]; ROWS]> {
 /// sinew_runtime::affine(&w, &b, &[1.0, -1.0], &mut z);
 /// assert_eq!(z, [-0.5, -1.5, -1.0]);
 /// ```
+#[inline(always)]
 pub fn affine<T: Real>(w: &[T], b: &[T], x: &[T], z: &mut [T]) {
     let n = x.len();
     if n == 0 {
@@ -127,6 +161,7 @@ pub fn affine<T: Real>(w: &[T], b: &[T], x: &[T], z: &mut [T]) {
         }
         return;
     }
+    let xt = input_tail(x);
     let blocks = (w.len() / n).min(b.len()).min(z.len()) / ROWS;
     for ((wb, bb), zb) in w
         .chunks_exact(ROWS * n)
@@ -137,7 +172,7 @@ pub fn affine<T: Real>(w: &[T], b: &[T], x: &[T], z: &mut [T]) {
         let Some(rows) = four_rows(wb, n) else {
             continue;
         };
-        for ((zj, bj), l) in zb.iter_mut().zip(bb).zip(rows4_lanes(rows, x)) {
+        for ((zj, bj), l) in zb.iter_mut().zip(bb).zip(rows4_lanes(rows, x, &xt)) {
             *zj = lane_sum(l) + *bj;
         }
     }
@@ -147,7 +182,7 @@ pub fn affine<T: Real>(w: &[T], b: &[T], x: &[T], z: &mut [T]) {
         .zip(z.iter_mut())
         .skip(blocks * ROWS)
     {
-        *zj = lane_sum(row_lanes(row, x)) + *bj;
+        *zj = lane_sum(row_lanes(row, x, &xt)) + *bj;
     }
 }
 
@@ -190,6 +225,7 @@ pub fn affine_n<T: Real, const I: usize, const O: usize>(
 /// sinew_runtime::back(&w, &[1.0, 0.0, -1.0], &mut out);
 /// assert_eq!(out, [1.0 - 5.0, 2.0 - 6.0]);
 /// ```
+#[inline(always)]
 pub fn back<T: Real>(w: &[T], d: &[T], out: &mut [T]) {
     let n = out.len();
     if n == 0 {
@@ -254,6 +290,7 @@ pub fn back_n<T: Real, const I: usize, const O: usize>(
 /// sinew_runtime::outer_acc(&mut g, &[1.0, 2.0, 3.0], &[10.0, 20.0]);
 /// assert_eq!(g, [11.0, 21.0, 21.0, 41.0, 31.0, 61.0]);
 /// ```
+#[inline(always)]
 pub fn outer_acc<T: Real>(g: &mut [T], d: &[T], a: &[T]) {
     let n = a.len();
     if n == 0 {
@@ -297,6 +334,7 @@ pub fn outer_acc_n<T: Real, const I: usize, const O: usize>(
 /// sinew_runtime::add_acc(&mut g, &[0.5, 0.25]);
 /// assert_eq!(g, [1.5, 2.25]);
 /// ```
+#[inline(always)]
 pub fn add_acc<T: Real>(g: &mut [T], d: &[T]) {
     for (gj, dj) in g.iter_mut().zip(d) {
         *gj += *dj;
@@ -360,6 +398,7 @@ pub fn standardize_n<T: Real, const N: usize>(
 /// sinew_runtime::linalg::affine_batch(&w, &[0.5, 0.5], &xs, &mut zs, 2);
 /// assert_eq!(zs, [1.5, 3.5, 2.5, 4.5]);
 /// ```
+#[inline(always)]
 pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize) {
     let o = b.len();
     if o == 0 {
@@ -387,7 +426,7 @@ pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize)
             let Some(zb) = z.get_mut(j..j + ROWS) else {
                 continue;
             };
-            for ((zj, bj), l) in zb.iter_mut().zip(bb).zip(rows4_lanes(r, x)) {
+            for ((zj, bj), l) in zb.iter_mut().zip(bb).zip(rows4_lanes(r, x, &input_tail(x))) {
                 *zj = lane_sum(l) + *bj;
             }
         }
@@ -401,7 +440,7 @@ pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize)
     {
         for (x, z) in xs.chunks_exact(n).zip(zs.chunks_exact_mut(o)) {
             if let Some(zj) = z.get_mut(j) {
-                *zj = lane_sum(row_lanes(row, x)) + *bj;
+                *zj = lane_sum(row_lanes(row, x, &input_tail(x))) + *bj;
             }
         }
     }
@@ -450,6 +489,7 @@ pub fn affine_batch_n<T: Real, const I: usize, const O: usize>(
 /// sinew_runtime::linalg::back_batch(&w, &[1.0, 0.0, 0.0, 1.0], &mut outs, 2);
 /// assert_eq!(outs, [1.0, 2.0, 3.0, 4.0]);
 /// ```
+#[inline(always)]
 pub fn back_batch<T: Real>(w: &[T], ds: &[T], outs: &mut [T], n: usize) {
     if n == 0 {
         return;
@@ -566,25 +606,55 @@ fn outer_rows<T: Real, const R: usize>(
 /// sinew_runtime::linalg::outer_acc_batch(&mut g, &[1.0, 2.0], &[1.0, 10.0, 3.0, 30.0], 2);
 /// assert_eq!(g, [7.0, 70.0]);
 /// ```
+#[inline(always)]
 pub fn outer_acc_batch<T: Real>(g: &mut [T], ds: &[T], xs: &[T], n: usize) {
     if n == 0 {
         return;
     }
     let o = g.len() / n;
-    if o == 0 {
+    outer_acc_batch_rows(g, ds, xs, n, (0, o));
+}
+
+/// Part of [`outer_acc_batch`] for splitting the work between threads: `g` holds the rows
+/// `first..first + g.len() / n` of a gradient with `o` rows in all (`rows = (first, o)`), and
+/// receives exactly the additions that [`outer_acc_batch`] on the whole gradient gives those
+/// rows. The error rows `ds.chunks_exact(o)` are full rows. Nothing is written for `n = 0`,
+/// `o = 0`, or rows past `o`.
+///
+/// # Examples
+///
+/// ```
+/// // One sample: 2 units, 1 input. The second row alone gets what the whole gives it.
+/// let (ds, xs) = ([1.0, 2.0], [3.0]);
+/// let mut whole = [0.0; 2];
+/// sinew_runtime::linalg::outer_acc_batch(&mut whole, &ds, &xs, 1);
+/// let mut second = [0.0; 1];
+/// sinew_runtime::linalg::outer_acc_batch_rows(&mut second, &ds, &xs, 1, (1, 2));
+/// assert_eq!(second[0], whole[1]);
+/// ```
+#[inline(always)]
+pub fn outer_acc_batch_rows<T: Real>(
+    g: &mut [T],
+    ds: &[T],
+    xs: &[T],
+    n: usize,
+    (first, o): (usize, usize),
+) {
+    if n == 0 || o == 0 {
         return;
     }
-    let blocks = o / ROWS;
-    for (jb, rows) in g.chunks_exact_mut(ROWS * n).take(blocks).enumerate() {
-        outer_rows::<T, ROWS>(rows, ds, xs, (jb * ROWS, n, o));
+    let rows = (g.len() / n).min(o.saturating_sub(first));
+    let blocks = rows / ROWS;
+    for (jb, block) in g.chunks_exact_mut(ROWS * n).take(blocks).enumerate() {
+        outer_rows::<T, ROWS>(block, ds, xs, (first + jb * ROWS, n, o));
     }
     for (j, row) in g
         .chunks_exact_mut(n)
         .enumerate()
-        .take(o)
+        .take(rows)
         .skip(blocks * ROWS)
     {
-        outer_rows::<T, 1>(row, ds, xs, (j, n, o));
+        outer_rows::<T, 1>(row, ds, xs, (first + j, n, o));
     }
 }
 
@@ -623,6 +693,7 @@ pub fn outer_acc_batch_n<T: Real, const I: usize, const O: usize>(
 /// sinew_runtime::linalg::add_acc_batch(&mut g, &[1.0, 2.0, 3.0, 4.0]);
 /// assert_eq!(g, [4.0, 7.0]);
 /// ```
+#[inline(always)]
 pub fn add_acc_batch<T: Real>(g: &mut [T], ds: &[T]) {
     if g.is_empty() {
         return;
@@ -803,6 +874,26 @@ mod tests {
                     add_acc(&mut want, d);
                 }
                 assert_eq!(bits(&gb), bits(&want), "add_acc_batch {o} m={m}");
+            }
+        }
+    }
+
+    #[test]
+    fn row_parts_of_the_batch_outer_product_equal_the_whole() {
+        let mut rng = SplitMix64::new(41);
+        for (n, o) in [(5, 9), (16, 13), (33, 7), (784, 10)] {
+            let m = 6;
+            let ds = data::<f32>(m * o, &mut rng);
+            let xs = data::<f32>(m * n, &mut rng);
+            let g0 = data::<f32>(n * o, &mut rng);
+            let mut whole = g0.clone();
+            outer_acc_batch(&mut whole, &ds, &xs, n);
+            for split in [1, 3, 4, 5] {
+                let mut parts = g0.clone();
+                for (k, part) in parts.chunks_mut(split * n).enumerate() {
+                    outer_acc_batch_rows(part, &ds, &xs, n, (k * split, o));
+                }
+                assert_eq!(bits(&parts), bits(&whole), "{n}x{o} split {split}");
             }
         }
     }

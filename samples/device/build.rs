@@ -1,8 +1,8 @@
 //! Generates the pump model with its trained weights baked in, packs the same weights as a device
 //! weight blob, and picks the memory map of the board the target runs on.
 //!
-//! Every input is listed with `cargo:rerun-if-changed`, so Cargo reruns this script when the spec,
-//! the weights, a memory map or this file changes.
+//! Every input is listed with `cargo:rerun-if-changed` (the builder lists the spec and the
+//! weights), so Cargo reruns this script when one of them, a memory map or this file changes.
 
 use std::error::Error;
 use std::path::{Path, PathBuf};
@@ -24,30 +24,22 @@ fn memory_map(target: &str) -> Option<&'static str> {
 fn main() -> Result<(), Box<dyn Error>> {
     let out = PathBuf::from(std::env::var("OUT_DIR")?);
     let target = std::env::var("TARGET")?;
-    for input in [SPEC, WEIGHTS, "build.rs", "memory"] {
+    // The builder prints the lines of the spec and the weights.
+    for input in ["build.rs", "memory"] {
         println!("cargo:rerun-if-changed={input}");
     }
 
-    let src = std::fs::read_to_string(SPEC)?;
-    let checked = sinew::check_source(&src);
-    if !checked.diagnostics.is_empty() {
-        eprint!(
-            "{}",
-            sinew::diag::render(SPEC, &src, &checked.diagnostics, false)
-        );
-    }
-    let model = checked
-        .model
-        .ok_or_else(|| format!("{SPEC} has errors (diagnostics above)"))?;
-    let weights = sinew::weights::Weights::load_checked(Path::new(WEIGHTS), &model)?;
+    // The model with its trained weights baked in as `pump_health::TRAINED`: OUT_DIR/pump_health.rs.
+    sinew::Builder::new()
+        .spec_with_weights(SPEC, WEIGHTS)
+        .compile()?;
 
-    let options = sinew::emit::EmitOptions {
-        spec_name: "pump_health.sinew".into(),
-        unroll_below: 0,
-        weights: Some(sinew::workflow::baked(&weights)),
-    };
-    let code = sinew::emit::generate(&model, &options);
-    sinew::fsutil::write_if_changed(&out.join("pump_health.rs"), code.as_bytes())?;
+    // The same weights as a device weight blob, the bytes `sinew pack` writes.
+    let src = std::fs::read_to_string(SPEC)?;
+    let model = sinew::check_source(&src)
+        .model
+        .ok_or_else(|| format!("{SPEC} has errors"))?;
+    let weights = sinew::weights::Weights::load_checked(Path::new(WEIGHTS), &model)?;
     let blob = sinew::pack::encode(&model, &weights)?;
     sinew::fsutil::write_if_changed(&out.join("pump_health.bin"), &blob)?;
 

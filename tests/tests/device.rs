@@ -720,109 +720,30 @@ fn firmware_on_emulated_boards_matches_the_workstation() {
     let host = host();
     let target_dir = repo().join("target/device");
     let mut rows = Vec::new();
+    // Every problem found, reported together at the end (after the figures).
+    let mut problems: Vec<String> = Vec::new();
     for board in &BOARDS {
         for (profile, opt) in PROFILES {
             let dir = build(None, &target_dir, board.target, profile, None)
                 .unwrap_or_else(|e| panic!("{e}"));
-            let elf = dir.join("device");
-            let (code, out) = emulate(board, &elf, &[]).unwrap_or_else(|e| panic!("{e}"));
-            let got = parse_run(&out).unwrap_or_else(|e| panic!("{}: {e}", board.target));
-            eprintln!("{} opt-level {opt}: {}", board.core, got.header);
-            assert_eq!(
-                code,
-                Some(0),
-                "{} ({opt}): the firmware reported a failed check:\n{out}",
-                board.target
-            );
-            let want_header = format!(
-                "sinew-device 1 target={} model=pump_health fingerprint={:016x} values={} blob_bytes={}",
-                board.target,
-                host.model.fingerprint(),
-                sinew::pack::value_count(&host.model),
-                sinew::pack::blob_len(&host.model)
-            );
-            assert!(
-                got.header.starts_with(&want_header),
-                "{}\n{want_header}",
-                got.header
-            );
-            for (i, (d, h)) in got.lines.iter().zip(&host.lines).enumerate() {
-                assert_eq!(
-                    d, h,
-                    "{} opt-level {opt}, line {i}: the device differs from the engine",
-                    board.target
-                );
+            let at = format!("{} ({}) opt-level {opt}", board.target, board.core);
+            match check_run(board, &dir, &host) {
+                Ok(run) => {
+                    eprintln!("{at}: {}", run.header);
+                    problems.extend(run.problems.iter().map(|p| format!("{at}: {p}")));
+                    rows.push(Row {
+                        board,
+                        opt,
+                        flash: run.flash,
+                        stack: run.stack,
+                        frames: Vec::new(),
+                        counts: run.counts,
+                        trainer_bytes: run.trainer_bytes,
+                    });
+                }
+                Err(e) => problems.push(format!("{at}: {e}")),
             }
-            assert_eq!(
-                got.lines.len(),
-                host.lines.len(),
-                "{}: {:?}",
-                board.target,
-                got.lines
-            );
-
-            let img = read_image(&elf, board.thumb);
-            let panics = img.panic_symbols();
-            assert!(
-                panics.is_empty(),
-                "{} opt-level {opt}: the device image can panic: {panics:?}",
-                board.target
-            );
-            let probe = read_image(&dir.join("panic_probe"), board.thumb);
-            assert!(
-                probe
-                    .panic_symbols()
-                    .iter()
-                    .any(|n| n.contains("core::panicking")),
-                "{}: the no-panic check does not see the bounds check of panic_probe",
-                board.target
-            );
-            let f = flash(&img);
-            assert_eq!(
-                f.weights, host.report.flash_bytes,
-                "{}: TRAINED takes {} bytes of flash, the report says {}",
-                board.target, f.weights, host.report.flash_bytes
-            );
-            let trainer_bytes = field(&got.header, "trainer_bytes").expect("trainer_bytes");
-            let count = count_instructions(
-                board,
-                &dir.join("count"),
-                &read_image(&dir.join("count"), board.thumb),
-            )
-            .unwrap_or_else(|e| panic!("{e}"));
-            let (predict, step, painted) = got.stack;
-            assert!(
-                predict < painted && step < painted,
-                "{}: the stack went below the painted {painted} bytes",
-                board.target
-            );
-            rows.push(Row {
-                board,
-                opt,
-                flash: f,
-                stack: got.stack,
-                frames: Vec::new(),
-                counts: count,
-                trainer_bytes,
-            });
         }
-    }
-
-    // The trainer's state is the report's training RAM without the per-sample working set:
-    // parameters, gradient and Adam's two moments, plus the step counter.
-    let r = &host.report;
-    let per_sample = host.model.input.width * usize::from(host.model.input.standardize)
-        + 2 * widths(&host.model)
-        + host.model.output().width;
-    let state = r.ram_training_bytes as usize - per_sample * r.scalar_bytes as usize;
-    for row in &rows {
-        assert_eq!(
-            row.trainer_bytes,
-            state + 4,
-            "{}: the trainer holds {} bytes, the report's state is {state} (+ 4 for the step count)",
-            row.board.target,
-            row.trainer_bytes
-        );
     }
 
     // Stack frames from a nightly measurement build (never the product build).
@@ -835,21 +756,24 @@ fn firmware_on_emulated_boards_matches_the_workstation() {
                 .find(|(_, o)| *o == row.opt)
                 .map(|(p, _)| *p)
                 .expect("a profile");
-            let out = build(
+            match build(
                 Some("nightly"),
                 &dir,
                 row.board.target,
                 profile,
                 Some("-Z emit-stack-sizes"),
-            )
-            .unwrap_or_else(|e| panic!("{e}"));
-            let img = read_image(&out.join("device"), row.board.thumb);
-            row.frames = frames(&img);
-            assert!(
-                !row.frames.is_empty(),
-                "{}: no stack sizes for the model's functions",
-                row.board.target
-            );
+            ) {
+                Ok(out) => {
+                    row.frames = frames(&read_image(&out.join("device"), row.board.thumb));
+                    if row.frames.is_empty() {
+                        problems.push(format!(
+                            "{} opt-level {}: no stack sizes for the model's functions",
+                            row.board.target, row.opt
+                        ));
+                    }
+                }
+                Err(e) => problems.push(e),
+            }
         }
     } else {
         skip_or_fail(&nightly);
@@ -860,6 +784,123 @@ fn firmware_on_emulated_boards_matches_the_workstation() {
     if let Ok(path) = std::env::var("SINEW_DEVICE_FIGURES") {
         std::fs::write(&path, &table).unwrap_or_else(|e| panic!("{path}: {e}"));
     }
+    assert!(
+        problems.is_empty(),
+        "{} device check(s) failed:\n- {}",
+        problems.len(),
+        problems.join("\n- ")
+    );
+}
+
+/// What one image of one target showed.
+struct Checked {
+    header: String,
+    flash: Flash,
+    stack: (usize, usize, usize),
+    counts: Counts,
+    trainer_bytes: usize,
+    problems: Vec<String>,
+}
+
+/// Runs the device image and the count image built in `dir` and checks them; `Err` when they
+/// cannot be run or read at all.
+fn check_run(board: &Board, dir: &Path, host: &Host) -> Result<Checked, String> {
+    let mut problems = Vec::new();
+    let elf = dir.join("device");
+    let (code, out) = emulate(board, &elf, &[])?;
+    let got = parse_run(&out)?;
+    if code != Some(0) {
+        problems.push(format!(
+            "the firmware exited with {code:?} (a check on the device failed):\n{out}"
+        ));
+    }
+    let want_header = format!(
+        "sinew-device 1 target={} model=pump_health fingerprint={:016x} values={} blob_bytes={}",
+        board.target,
+        host.model.fingerprint(),
+        sinew::pack::value_count(&host.model),
+        sinew::pack::blob_len(&host.model)
+    );
+    if !got.header.starts_with(&want_header) {
+        problems.push(format!("header `{}`, expected `{want_header}`", got.header));
+    }
+    // Bit for bit what the engine computed.
+    let differing: Vec<String> = got
+        .lines
+        .iter()
+        .zip(&host.lines)
+        .filter(|(d, h)| d != h)
+        .map(|(d, h)| format!("device `{d}`, engine `{h}`"))
+        .collect();
+    if !differing.is_empty() || got.lines.len() != host.lines.len() {
+        problems.push(format!(
+            "the device differs from the engine ({} of {} lines; {} printed):\n  {}",
+            differing.len(),
+            host.lines.len(),
+            got.lines.len(),
+            differing.join("\n  ")
+        ));
+    }
+
+    // No panicking path, and the check can see one.
+    let img = read_image(&elf, board.thumb);
+    let panics = img.panic_symbols();
+    if !panics.is_empty() {
+        problems.push(format!(
+            "the device image has a panicking path: {panics:?} (find the callers with \
+             `llvm-objdump -d -C` on {})",
+            elf.display()
+        ));
+    }
+    let probe = read_image(&dir.join("panic_probe"), board.thumb);
+    if !probe
+        .panic_symbols()
+        .iter()
+        .any(|n| n.contains("core::panicking"))
+    {
+        problems.push("the no-panic check does not see the bounds check of panic_probe".into());
+    }
+
+    // The baked weights take what the report says, to the byte.
+    let flash = flash(&img);
+    if flash.weights != host.report.flash_bytes {
+        problems.push(format!(
+            "TRAINED takes {} bytes of flash, the report says {}",
+            flash.weights, host.report.flash_bytes
+        ));
+    }
+
+    // The trainer's state against the report's training RAM without its per-sample working
+    // set: parameters, gradient and Adam's two moments. The trainer also holds the input mean
+    // and std in its `params` (which the report's training figure leaves out) and the step count.
+    let trainer_bytes = field(&got.header, "trainer_bytes").unwrap_or(0);
+    let r = &host.report;
+    let m = &host.model;
+    let per_sample =
+        m.input.width * usize::from(m.input.standardize) + 2 * widths(m) + m.output().width;
+    let state = r.ram_training_bytes as usize - per_sample * r.scalar_bytes as usize;
+    if trainer_bytes != state + r.scaling_bytes as usize + 4 {
+        problems.push(format!(
+            "the trainer holds {trainer_bytes} bytes; the report's state is {state}, plus {} of \
+             input scaling and 4 of step count",
+            r.scaling_bytes
+        ));
+    }
+
+    let (predict, step, painted) = got.stack;
+    if predict >= painted || step >= painted {
+        problems.push(format!("the stack went below the {painted} painted bytes"));
+    }
+    let count_elf = dir.join("count");
+    let counts = count_instructions(board, &count_elf, &read_image(&count_elf, board.thumb))?;
+    Ok(Checked {
+        header: got.header,
+        flash,
+        stack: got.stack,
+        counts,
+        trainer_bytes,
+        problems,
+    })
 }
 
 fn widths(m: &Model) -> usize {

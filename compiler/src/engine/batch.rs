@@ -1,25 +1,170 @@
-//! The batch gradient over many samples, multi-threaded and deterministic.
+//! The batch gradient over many samples: blocked, optionally multi-threaded, and deterministic.
 //!
-//! Samples are taken in fixed blocks of [`BLOCK`]. Within a block, each sample's forward pass
-//! and error terms are computed independently (in parallel); then the block's contributions are
-//! added into the gradient in parallel over gradient rows, each row adding the samples in their
-//! original order with the runtime's `outer_acc` / `add_acc`. Every gradient element therefore
-//! sees exactly the sequence of additions of the sequential per-sample loop (and of the generated
-//! `Trainer::step`): the result is bit-identical whatever the number of threads.
+//! Samples are taken in blocks of [`BLOCK`], each block in sub-blocks of [`SUB_BLOCK`] rows
+//! stored contiguously (one row per sample) for every layer. Per sub-block, the runtime's batch
+//! kernels run the forward pass (`affine_batch`: each group of weight rows serves every sample of
+//! the sub-block) and the error terms (`back_batch`); then the block's gradient is accumulated
+//! with `outer_acc_batch_rows` (`G += D^T A`, tiles of `G` held in registers while the samples
+//! pass) and `add_acc_batch`. Every runtime batch kernel gives, sample by sample and element by
+//! element, the bits of its per-sample kernel, with the samples of a gradient element added in
+//! their original order; so the result equals the sequential per-sample loop (and the generated
+//! `Trainer::step` and `Params::gradient`) bit for bit. With more than one thread, sub-blocks run
+//! in parallel in the forward and backward passes and gradient rows in parallel in the
+//! accumulation; neither split changes any operation, so the result does not depend on the thread
+//! count.
 
 use super::{Net, Params, Scratch};
+use crate::ir::{self, Loss};
 use rayon::prelude::*;
-use sinew_runtime::{self as rt, Real};
+use sinew_runtime::{self as rt, act::Activation, Real};
 
-/// One sample's input and target.
-type Sample<'a, T> = (&'a [T], &'a [T]);
-
-/// Samples per block: bounds the memory of stored activations and error terms.
+/// Samples per block: the gradient is accumulated once per block.
 pub const BLOCK: usize = 64;
+
+/// Samples per sub-block: the unit of the forward and backward passes (and of their parallel
+/// split).
+pub const SUB_BLOCK: usize = 32;
 
 /// Below this many multiply-adds per block the work runs on the calling thread (the result is
 /// the same either way; threads only pay for larger blocks).
 const PARALLEL_MIN_WORK: usize = 1 << 16;
+
+/// Rows (one per sample) of a sub-block of samples, for every layer.
+#[derive(Debug, Clone)]
+struct SubBlock<T> {
+    /// Samples held.
+    used: usize,
+    /// Standardized inputs (empty without `standardize`).
+    x0: Vec<T>,
+    /// Activations per layer.
+    a: Vec<Vec<T>>,
+    /// Output logits.
+    z_out: Vec<T>,
+    /// Error terms per layer.
+    d: Vec<Vec<T>>,
+    /// Per-sample losses.
+    losses: Vec<T>,
+}
+
+impl<T: Real> SubBlock<T> {
+    fn new(model: &ir::Model) -> Self {
+        let rows = |w: usize| vec![T::ZERO; w * SUB_BLOCK];
+        SubBlock {
+            used: 0,
+            x0: if model.input.standardize {
+                rows(model.input.width)
+            } else {
+                Vec::new()
+            },
+            a: model.layers.iter().map(|l| rows(l.width)).collect(),
+            z_out: rows(model.output().width),
+            d: model.layers.iter().map(|l| rows(l.width)).collect(),
+            losses: vec![T::ZERO; SUB_BLOCK],
+        }
+    }
+}
+
+/// `act` over rows of width `w` in place: elementwise on the whole slice, softmax row by row.
+fn forward_rows<T: Real>(act: &Activation<T>, v: &mut [T], w: usize) {
+    match act {
+        Activation::Softmax => {
+            for row in v.chunks_exact_mut(w) {
+                act.forward(row);
+            }
+        }
+        _ => act.forward(v),
+    }
+}
+
+/// `d *= g'(a)` over rows of width `w`: elementwise on the whole slices, softmax row by row.
+fn backward_rows<T: Real>(act: &Activation<T>, a: &[T], d: &mut [T], w: usize) {
+    match act {
+        Activation::Softmax => {
+            for (ar, dr) in a.chunks_exact(w).zip(d.chunks_exact_mut(w)) {
+                act.backward(ar, dr);
+            }
+        }
+        _ => act.backward(a, d),
+    }
+}
+
+/// Forward pass and error terms of the samples `xs` / `ys` (at most [`SUB_BLOCK`]) into `sb`: the
+/// runtime calls of `Net::deltas`, one layer at a time over all the samples.
+fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut SubBlock<T>) {
+    let model = net.model;
+    let (n_in, n_out) = (model.input.width, model.output().width);
+    let used = (xs.len() / n_in.max(1)).min(ys.len() / n_out.max(1));
+    sb.used = used;
+    let xs = xs.get(..used * n_in).unwrap_or(&[]);
+    let ys = ys.get(..used * n_out).unwrap_or(&[]);
+    if model.input.standardize {
+        for (x, x0) in xs.chunks_exact(n_in).zip(sb.x0.chunks_exact_mut(n_in)) {
+            rt::standardize(x, &p.mean, &p.std, x0);
+        }
+    }
+    let last = model.layers.len().saturating_sub(1);
+    for (l, ((layer, lp), act)) in model.layers.iter().zip(&p.layers).zip(&net.acts).enumerate() {
+        let (done, rest) = sb.a.split_at_mut(l);
+        let Some(out) = rest.first_mut() else { break };
+        let out = &mut out[..used * layer.width];
+        let input: &[T] = match done.last() {
+            Some(a) => a.get(..used * layer.fan_in).unwrap_or(&[]),
+            None if model.input.standardize => sb.x0.get(..used * n_in).unwrap_or(&[]),
+            None => xs,
+        };
+        rt::affine_batch(&lp.weights, &lp.bias, input, out, layer.fan_in);
+        if l == last {
+            sb.z_out[..used * layer.width].copy_from_slice(out);
+        }
+        forward_rows(act, out, layer.width);
+    }
+    // Losses from the logits (or the activations, for squared error), then the output error.
+    let out_act = model.output().activation;
+    let (Some(a_out), Some(d_out)) = (sb.a.last(), sb.d.last_mut()) else {
+        return;
+    };
+    let rows = sb
+        .z_out
+        .chunks_exact(n_out)
+        .zip(a_out.chunks_exact(n_out))
+        .zip(ys.chunks_exact(n_out));
+    for (loss, ((z, a), y)) in sb.losses.iter_mut().zip(rows) {
+        *loss = match (model.loss, out_act) {
+            (Loss::CrossEntropy, ir::Activation::Softmax) => rt::loss::softmax_cross_entropy(z, y),
+            (Loss::CrossEntropy, _) => rt::loss::logistic_cross_entropy(z, y),
+            (Loss::SquaredError, _) => rt::loss::squared_error(a, y),
+        };
+    }
+    for ((d, a), y) in d_out
+        .chunks_exact_mut(n_out)
+        .zip(a_out.chunks_exact(n_out))
+        .zip(ys.chunks_exact(n_out))
+    {
+        rt::loss::output_error(a, y, d);
+        if model.loss == Loss::SquaredError {
+            if let Some(act) = net.acts.last() {
+                act.backward(a, d);
+            }
+        }
+    }
+    // Hidden errors, from the last hidden layer down to the first.
+    for l in (1..model.layers.len()).rev() {
+        let (lower, upper) = sb.d.split_at_mut(l);
+        if let (Some(d_prev), Some(d_l), Some(lp), Some(a_prev), Some(act), Some(prev)) = (
+            lower.last_mut(),
+            upper.first(),
+            p.layers.get(l),
+            sb.a.get(l - 1),
+            net.acts.get(l - 1),
+            model.layers.get(l - 1),
+        ) {
+            let w = prev.width;
+            let d_prev = &mut d_prev[..used * w];
+            rt::back_batch(&lp.weights, &d_l[..used * model.layers[l].width], d_prev, w);
+            backward_rows(act, &a_prev[..used * w], d_prev, w);
+        }
+    }
+}
 
 /// Zeroes `grad`, accumulates the gradient of every sample, finishes it (1/m and penalty) and
 /// returns the batch cost J. `None` (and `grad` zero) for an empty batch.
@@ -33,75 +178,94 @@ pub fn gradient_into<T: Real + Send + Sync>(
     let model = net.model;
     let (n_in, n_out) = (model.input.width, model.output().width);
     grad.clear();
-    let samples: Vec<(&[T], &[T])> = xs.chunks_exact(n_in).zip(ys.chunks_exact(n_out)).collect();
-    let m = samples.len();
+    if n_in == 0 || n_out == 0 {
+        return None;
+    }
+    let m = (xs.len() / n_in).min(ys.len() / n_out);
     if m == 0 {
         return None;
     }
     let work = model.parameters() * BLOCK;
     let parallel = work >= PARALLEL_MIN_WORK && rayon::current_num_threads() > 1;
-    let mut scratch: Vec<Scratch<T>> = (0..BLOCK.min(m)).map(|_| Scratch::new(model)).collect();
-    let mut losses: Vec<T> = vec![T::ZERO; BLOCK.min(m)];
+    let subs_per_block = BLOCK / SUB_BLOCK;
+    let mut subs: Vec<SubBlock<T>> = (0..subs_per_block.min(m.div_ceil(SUB_BLOCK)))
+        .map(|_| SubBlock::new(model))
+        .collect();
     let mut loss_sum = T::ZERO;
-    for block in samples.chunks(BLOCK) {
-        let used = block.len();
-        let (sc, ls) = (&mut scratch[..used], &mut losses[..used]);
-        let one = |((s, l), (x, y)): ((&mut Scratch<T>, &mut T), &Sample<'_, T>)| {
-            *l = net.deltas(p, x, y, s);
-        };
+    let (xs, ys) = (&xs[..m * n_in], &ys[..m * n_out]);
+    for (xb, yb) in xs.chunks(BLOCK * n_in).zip(ys.chunks(BLOCK * n_out)) {
+        let pieces = xb.chunks(SUB_BLOCK * n_in).zip(yb.chunks(SUB_BLOCK * n_out));
+        let used_subs = xb.len().div_ceil(SUB_BLOCK * n_in);
+        let subs = &mut subs[..used_subs];
         if parallel {
-            sc.par_iter_mut()
-                .zip(ls.par_iter_mut())
-                .zip(block.par_iter())
-                .for_each(one);
+            let pieces: Vec<(&[T], &[T])> = pieces.collect();
+            subs.par_iter_mut()
+                .zip(pieces.par_iter())
+                .for_each(|(sb, (x, y))| deltas(net, p, x, y, sb));
         } else {
-            sc.iter_mut()
-                .zip(ls.iter_mut())
-                .zip(block.iter())
-                .for_each(one);
+            for (sb, (x, y)) in subs.iter_mut().zip(pieces) {
+                deltas(net, p, x, y, sb);
+            }
         }
-        for &l in ls.iter() {
-            loss_sum += l;
+        for sb in subs.iter() {
+            for &l in &sb.losses[..sb.used] {
+                loss_sum += l;
+            }
         }
-        accumulate(net, grad, block, sc, parallel);
+        accumulate(net, grad, xb, subs, parallel);
     }
     net.finish(grad, p, m);
     Some(loss_sum / T::from_usize(m) + net.penalty_cost(p, m))
 }
 
+/// `G += D^T A` and `g_b += sum d` of one block, layer by layer, sub-blocks in sample order.
 fn accumulate<T: Real + Send + Sync>(
     net: &Net<'_, T>,
     grad: &mut Params<T>,
-    block: &[Sample<'_, T>],
-    scratch: &[Scratch<T>],
+    xb: &[T],
+    subs: &[SubBlock<T>],
     parallel: bool,
 ) {
-    for (l, g) in grad.layers.iter_mut().enumerate() {
-        let n = net.model.layers.get(l).map_or(0, |layer| layer.fan_in);
-        if n == 0 {
+    let model = net.model;
+    let n_in = model.input.width;
+    for (l, (g, layer)) in grad.layers.iter_mut().zip(&model.layers).enumerate() {
+        let (n, o) = (layer.fan_in, layer.width);
+        if n == 0 || o == 0 {
             continue;
         }
-        let row = |(j, (w_row, b)): (usize, (&mut [T], &mut T))| {
-            for ((x, _), s) in block.iter().zip(scratch) {
-                let Some(d) = s.d.get(l).and_then(|d| d.get(j..j + 1)) else {
-                    continue;
+        // This layer's input and error rows of every sub-block, in sample order.
+        let parts: Vec<(&[T], &[T])> = subs
+            .iter()
+            .zip(xb.chunks(SUB_BLOCK * n_in))
+            .map(|(sb, x)| {
+                let input: &[T] = if l == 0 {
+                    if model.input.standardize {
+                        &sb.x0[..sb.used * n]
+                    } else {
+                        &x[..sb.used * n]
+                    }
+                } else {
+                    &sb.a[l - 1][..sb.used * n]
                 };
-                rt::outer_acc(w_row, d, net.layer_input(x, s, l));
-                rt::add_acc(core::slice::from_mut(b), d);
+                (input, &sb.d[l][..sb.used * o])
+            })
+            .collect();
+        let rows_of = |first: usize, g_rows: &mut [T]| {
+            for (a, d) in &parts {
+                rt::outer_acc_batch_rows(g_rows, d, a, n, (first, o));
             }
         };
-        if parallel {
+        if parallel && o >= 8 {
+            let per_task = o.div_ceil(rayon::current_num_threads() * 2).max(4);
             g.weights
-                .par_chunks_mut(n)
-                .zip(g.bias.par_iter_mut())
+                .par_chunks_mut(per_task * n)
                 .enumerate()
-                .for_each(row);
+                .for_each(|(k, rows)| rows_of(k * per_task, rows));
         } else {
-            g.weights
-                .chunks_mut(n)
-                .zip(g.bias.iter_mut())
-                .enumerate()
-                .for_each(row);
+            rows_of(0, &mut g.weights);
+        }
+        for (_, d) in &parts {
+            rt::add_acc_batch(&mut g.bias, d);
         }
     }
 }

@@ -317,7 +317,15 @@ impl Model {
 
 /// 64-bit FNV-1a.
 pub fn fnv1a64(bytes: &[u8]) -> u64 {
-    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    fnv1a64_extend(FNV1A64_OFFSET, bytes)
+}
+
+/// The 64-bit FNV-1a offset basis: the hash of no bytes.
+pub const FNV1A64_OFFSET: u64 = 0xcbf2_9ce4_8422_2325;
+
+/// Continues a 64-bit FNV-1a hash `h` over `bytes`, so that a file can be hashed in pieces:
+/// `fnv1a64_extend(fnv1a64(a), b) == fnv1a64(a ++ b)`.
+pub fn fnv1a64_extend(mut h: u64, bytes: &[u8]) -> u64 {
     for &b in bytes {
         h ^= u64::from(b);
         h = h.wrapping_mul(0x0000_0100_0000_01b3);
@@ -334,5 +342,9 @@ mod tests {
         // Test vectors from the FNV reference page (Noll): "" and "a" (values from memory).
         assert_eq!(fnv1a64(b""), 0xcbf29ce484222325);
         assert_eq!(fnv1a64(b"a"), 0xaf63dc4c8601ec8c);
+        assert_eq!(
+            super::fnv1a64_extend(fnv1a64(b"ab"), b"c"),
+            fnv1a64(b"abc")
+        );
     }
 }

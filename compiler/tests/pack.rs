@@ -1,0 +1,167 @@
+//! `sinew pack`: writes the device weight blob of trained weights, with exit codes 0 (written), 1
+//! (the spec has errors or the weights do not fit it) and 2 (a file cannot be read or written).
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+fn sinew(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_sinew"))
+        .args(args)
+        .current_dir(root())
+        .output()
+        .expect("the sinew binary runs")
+}
+
+fn root() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("..")
+}
+
+fn text(o: &Output) -> String {
+    format!(
+        "{}{}",
+        String::from_utf8_lossy(&o.stdout),
+        String::from_utf8_lossy(&o.stderr)
+    )
+}
+
+fn scratch(name: &str) -> PathBuf {
+    let dir = std::env::temp_dir().join(format!("sinew-pack-cli-{}-{name}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    dir
+}
+
+fn model(spec: &str) -> sinew::ir::Model {
+    let src = std::fs::read_to_string(root().join(spec)).unwrap();
+    sinew::check_source(&src).model.unwrap()
+}
+
+#[test]
+fn pack_writes_the_blob_into_a_new_folder() {
+    let dir = scratch("ok");
+    let weights = dir.join("valve.json");
+    let o = sinew(&[
+        "init",
+        "samples/valve_gate.sinew",
+        "-o",
+        weights.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o));
+    let out = dir.join("nested/deeper/valve.bin");
+    let o = sinew(&[
+        "pack",
+        "samples/valve_gate.sinew",
+        "--weights",
+        weights.to_str().unwrap(),
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o));
+    let m = model("samples/valve_gate.sinew");
+    let blob = std::fs::read(&out).unwrap();
+    // 2*3 + 3 + 3*1 + 1 = 13 f64 values: 24 + 13 * 8 bytes.
+    assert_eq!(blob.len(), 24 + 13 * 8);
+    assert!(
+        String::from_utf8_lossy(&o.stdout).contains("136 bytes: 13 f64 values"),
+        "{}",
+        text(&o)
+    );
+    let w = sinew::weights::Weights::load(&weights).unwrap();
+    assert_eq!(blob, sinew::pack::encode(&m, &w).unwrap());
+    assert_eq!(
+        sinew::pack::decode(&m, &blob).unwrap(),
+        sinew::pack::values(&w)
+    );
+    // Only the blob is left in the folder: the temporary file was renamed over it.
+    let names: Vec<_> = std::fs::read_dir(dir.join("nested/deeper"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name())
+        .collect();
+    assert_eq!(names, ["valve.bin"]);
+    std::fs::remove_dir_all(&dir).unwrap();
+}
+
+#[test]
+fn weights_of_another_model_exit_1_and_write_nothing() {
+    let dir = scratch("mismatch");
+    let weights = dir.join("valve.json");
+    let o = sinew(&[
+        "init",
+        "samples/valve_gate.sinew",
+        "-o",
+        weights.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o));
+    let out = dir.join("pump.bin");
+    let o = sinew(&[
+        "pack",
+        "samples/pump_health.sinew",
+        "--weights",
+        weights.to_str().unwrap(),
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(1), "{}", text(&o));
+    assert!(text(&o).contains("error[F11]"), "{}", text(&o));
+    assert!(!out.exists());
+    std::fs::remove_dir_all(&dir).unwrap();
+}
+
+#[test]
+fn unreadable_and_unwritable_files_exit_2() {
+    let dir = scratch("io");
+    let o = sinew(&[
+        "pack",
+        "samples/valve_gate.sinew",
+        "--weights",
+        dir.join("missing.json").to_str().unwrap(),
+        "-o",
+        dir.join("x.bin").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2), "{}", text(&o));
+    let weights = dir.join("valve.json");
+    let o = sinew(&[
+        "init",
+        "samples/valve_gate.sinew",
+        "-o",
+        weights.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o));
+    // The output's "folder" is a file: it cannot be created.
+    let o = sinew(&[
+        "pack",
+        "samples/valve_gate.sinew",
+        "--weights",
+        weights.to_str().unwrap(),
+        "-o",
+        weights.join("x.bin").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2), "{}", text(&o));
+    let o = sinew(&[
+        "pack",
+        dir.join("missing.sinew").to_str().unwrap(),
+        "--weights",
+        weights.to_str().unwrap(),
+        "-o",
+        dir.join("x.bin").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2), "{}", text(&o));
+    std::fs::remove_dir_all(&dir).unwrap();
+}
+
+#[test]
+fn a_spec_with_errors_exits_1() {
+    let dir = scratch("spec");
+    let spec = dir.join("bad.sinew");
+    std::fs::write(&spec, "model bad\ninput x 2\noutput y 1 softmax\n").unwrap();
+    let o = sinew(&[
+        "pack",
+        spec.to_str().unwrap(),
+        "--weights",
+        "w.json",
+        "-o",
+        dir.join("x.bin").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(1), "{}", text(&o));
+    std::fs::remove_dir_all(&dir).unwrap();
+}
