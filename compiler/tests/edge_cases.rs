@@ -89,7 +89,11 @@ fn inputs_of_plus_minus_1e30_keep_classifiers_finite() {
             for out in ["1 sigmoid", "3 softmax"] {
                 let m = classifier(scalar, act, out);
                 let n_out = m.output().width;
-                for x in [[1e30, -1e30, 1e30], [-1e30, -1e30, -1e30], [1e30, 0.0, 1e-30]] {
+                for x in [
+                    [1e30, -1e30, 1e30],
+                    [-1e30, -1e30, -1e30],
+                    [1e30, 0.0, 1e-30],
+                ] {
                     let y = vec![1.0 / n_out as f64; n_out];
                     let y = if n_out == 1 { vec![1.0] } else { y };
                     let (o, loss, g) = if scalar == "f32" {
@@ -145,7 +149,12 @@ fn subnormal_inputs_and_weights_are_computed_not_flushed() {
     assert_eq!(loss, 0.0); // 1/2 (4.9e-324)^2 underflows to 0
     assert_eq!(g[0], 0.0); // d = 4.9e-324, times x = 4.9e-324: 0
     assert_eq!(g[1].to_bits(), smallest64.to_bits()); // bias gradient = d
-    let (o, _, g) = run::<f32>(&m32, &constant(&m32, 1.0, 0.0), &[f64::from(smallest32)], &[0.0]);
+    let (o, _, g) = run::<f32>(
+        &m32,
+        &constant(&m32, 1.0, 0.0),
+        &[f64::from(smallest32)],
+        &[0.0],
+    );
     assert_eq!((o[0] as f32).to_bits(), smallest32.to_bits());
     assert_eq!((g[1] as f32).to_bits(), smallest32.to_bits());
     // Subnormal weights through every activation: finite, no panic.
@@ -157,7 +166,12 @@ fn subnormal_inputs_and_weights_are_computed_not_flushed() {
                 let (o, loss, g) = if scalar == "f32" {
                     run::<f32>(&m, &constant(&m, 1e-40, 1e-40), &[1e-39, -1e-42, 0.0], &y)
                 } else {
-                    run::<f64>(&m, &constant(&m, 1e-310, 1e-310), &[1e-309, -1e-312, 0.0], &y)
+                    run::<f64>(
+                        &m,
+                        &constant(&m, 1e-310, 1e-310),
+                        &[1e-309, -1e-312, 0.0],
+                        &y,
+                    )
                 };
                 assert!(
                     o.iter().chain([&loss]).chain(&g).all(|v| v.is_finite()),
@@ -220,7 +234,12 @@ fn saturated_sigmoid_and_softmax_keep_cost_and_gradient_finite() {
     };
     for (scalar, big) in [("f64", 1000.0), ("f32", 200.0)] {
         let m = sig(scalar);
-        for (x, y, want) in [(1.0, 0.0, big), (1.0, 1.0, 0.0), (-1.0, 1.0, big), (-1.0, 0.0, 0.0)] {
+        for (x, y, want) in [
+            (1.0, 0.0, big),
+            (1.0, 1.0, 0.0),
+            (-1.0, 1.0, big),
+            (-1.0, 0.0, 0.0),
+        ] {
             let (o, loss, g) = if scalar == "f32" {
                 run::<f32>(&m, &constant(&m, big, 0.0), &[x], &[y])
             } else {
@@ -294,11 +313,17 @@ fn dead_relu_units_get_exactly_zero_gradient_and_stay_put() {
     t.step(&xs, &ys);
     let after = &t.params.layers;
     for k in 2..6 {
-        assert_eq!(after[0].weights[k].to_bits(), p.layers[0].weights[k].to_bits());
+        assert_eq!(
+            after[0].weights[k].to_bits(),
+            p.layers[0].weights[k].to_bits()
+        );
     }
     for k in 1..3 {
         assert_eq!(after[0].bias[k].to_bits(), p.layers[0].bias[k].to_bits());
-        assert_eq!(after[1].weights[k].to_bits(), p.layers[1].weights[k].to_bits());
+        assert_eq!(
+            after[1].weights[k].to_bits(),
+            p.layers[1].weights[k].to_bits()
+        );
     }
 }
 
@@ -316,7 +341,10 @@ fn a_zero_penalty_is_exactly_no_penalty() {
         let mut g = engine::Params::<f64>::zero_gradient(m);
         let c = engine::batch::gradient_into(&engine::Net::new(m), &p, &xs, &ys, &mut g)
             .expect("non-empty");
-        (c.to_bits(), g.flat_f64().iter().map(|v| v.to_bits()).collect::<Vec<_>>())
+        (
+            c.to_bits(),
+            g.flat_f64().iter().map(|v| v.to_bits()).collect::<Vec<_>>(),
+        )
     };
     let reference = grad(&none);
     for pen in ["l2 0", "l1 0", "l2 0.0", "l1 0e5"] {
@@ -343,7 +371,12 @@ fn a_one_unit_cross_entropy_output_is_logistic_regression() {
     let mut s = Scratch::new(&m);
     let layers = vec![(vec![1.5, -0.75], vec![0.25])];
     let p = engine::Params::<f64>::from_f64(&layers, None);
-    for (x, y) in [([0.3, 0.8], 1.0), ([-2.0, 1.0], 0.0), ([1.0, 1.0], 0.3), ([4.0, -4.0], 1.0)] {
+    for (x, y) in [
+        ([0.3, 0.8], 1.0),
+        ([-2.0, 1.0], 0.0),
+        ([1.0, 1.0], 0.3),
+        ([4.0, -4.0], 1.0),
+    ] {
         let z: f64 = 1.5 * x[0] - 0.75 * x[1] + 0.25;
         let a = 1.0 / (1.0 + (-z).exp());
         let handbook = -(y * a.ln() + (1.0 - y) * (1.0 - a).ln());

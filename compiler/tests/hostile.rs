@@ -82,18 +82,18 @@ const HOSTILE: &[(&str, &str)] = &[
     ("r#fn", "S0304"),
     ("r#x", "S0304"),
     // Unicode look-alikes of ASCII letters.
-    ("g\u{0435}te", "S0303"),    // Cyrillic small ie
-    ("gat\u{0435}", "S0303"),    // Cyrillic small ie at the end
-    ("\u{0430}", "S0303"),       // Cyrillic small a alone
-    ("h\u{03bf}t", "S0303"),     // Greek small omicron
-    ("\u{ff47}ate", "S0303"),    // fullwidth g
-    ("gate\u{0301}", "S0303"),   // combining acute accent
-    ("\u{0131}nput", "S0303"),   // dotless i
-    ("\u{212a}elvin", "S0303"),  // Kelvin sign
-    ("\u{1d41a}bc", "S0303"),    // mathematical bold a
-    ("gate\u{200b}x", "S0303"),  // zero-width space inside a word
-    ("ga\u{200d}te", "S0303"),   // zero-width joiner
-    ("gate\u{00a0}x", "S0303"),  // no-break space inside a word
+    ("g\u{0435}te", "S0303"),   // Cyrillic small ie
+    ("gat\u{0435}", "S0303"),   // Cyrillic small ie at the end
+    ("\u{0430}", "S0303"),      // Cyrillic small a alone
+    ("h\u{03bf}t", "S0303"),    // Greek small omicron
+    ("\u{ff47}ate", "S0303"),   // fullwidth g
+    ("gate\u{0301}", "S0303"),  // combining acute accent
+    ("\u{0131}nput", "S0303"),  // dotless i
+    ("\u{212a}elvin", "S0303"), // Kelvin sign
+    ("\u{1d41a}bc", "S0303"),   // mathematical bold a
+    ("gate\u{200b}x", "S0303"), // zero-width space inside a word
+    ("ga\u{200d}te", "S0303"),  // zero-width joiner
+    ("gate\u{00a0}x", "S0303"), // no-break space inside a word
     // Trying to close a string, a comment or a block, or to start an item.
     ("x\"", "S0301"),
     ("\"", "S0301"),
@@ -280,7 +280,13 @@ fn run_child(task: &str, dir: &Path, shell_prefix: &str) -> Output {
         .arg("-c")
         .arg(format!("{shell_prefix} exec \"$0\" \"$@\""))
         .arg(exe)
-        .args(["child", "--exact", "--ignored", "--nocapture", "--test-threads=1"])
+        .args([
+            "child",
+            "--exact",
+            "--ignored",
+            "--nocapture",
+            "--test-threads=1",
+        ])
         .env(TASK, task)
         .env(DIR, dir)
         .output()
@@ -417,7 +423,10 @@ const PEAK_BOUND_MIB: u64 = 48;
 fn assert_small_peak(o: &Output, what: &str) {
     if let Some(k) = report(o, "PEAK_KIB ") {
         let kib: u64 = k.parse().expect("a number");
-        println!("{what}: peak resident memory {:.1} MiB", kib as f64 / 1024.0);
+        println!(
+            "{what}: peak resident memory {:.1} MiB",
+            kib as f64 / 1024.0
+        );
         assert!(
             kib < PEAK_BOUND_MIB * 1024,
             "{what}: peak resident memory {kib} KiB"
@@ -440,7 +449,12 @@ fn a_100_mb_spec_file_fails_cleanly_in_little_memory() {
     }
     assert!(std::fs::metadata(dir.join("huge.sinew")).unwrap().len() >= 100_000_000);
     let o = run_child("huge_spec", &dir, "");
-    assert!(o.status.success(), "{}{}", stdout(&o), String::from_utf8_lossy(&o.stderr));
+    assert!(
+        o.status.success(),
+        "{}{}",
+        stdout(&o),
+        String::from_utf8_lossy(&o.stderr)
+    );
     let r = report(&o, "RESULT ").expect("a result");
     assert!(r.contains("huge.sinew") && r.contains("larger than"), "{r}");
     assert_small_peak(&o, "100 MB spec");
@@ -456,7 +470,12 @@ fn a_spec_of_one_long_word_fails_cleanly_in_little_memory() {
     let len = usize::try_from(sinew::fsutil::MAX_SPEC_BYTES).unwrap() - 1;
     std::fs::write(dir.join("long_word.sinew"), "x".repeat(len)).unwrap();
     let o = run_child("long_word_spec", &dir, "");
-    assert!(o.status.success(), "{}{}", stdout(&o), String::from_utf8_lossy(&o.stderr));
+    assert!(
+        o.status.success(),
+        "{}{}",
+        stdout(&o),
+        String::from_utf8_lossy(&o.stderr)
+    );
     let r = report(&o, "RESULT ").expect("a result");
     assert!(r.contains("has"), "{r}");
     assert_small_peak(&o, "1 MiB word");
@@ -474,11 +493,17 @@ fn enormous_widths_are_refused_before_any_allocation() {
          layer c 99999999999999999999999999999 relu\noutput y 65535 softmax\nloss cross_entropy\n",
     )
     .unwrap();
-    let checked = sinew::check_source(&std::fs::read_to_string(dir.join("enormous.sinew")).unwrap());
+    let checked =
+        sinew::check_source(&std::fs::read_to_string(dir.join("enormous.sinew")).unwrap());
     let codes: Vec<&str> = checked.diagnostics.iter().map(|d| d.code).collect();
     assert_eq!(codes, ["S0402"]);
     let o = run_child("enormous_widths", &dir, "");
-    assert!(o.status.success(), "{}{}", stdout(&o), String::from_utf8_lossy(&o.stderr));
+    assert!(
+        o.status.success(),
+        "{}{}",
+        stdout(&o),
+        String::from_utf8_lossy(&o.stderr)
+    );
     assert_small_peak(&o, "enormous widths");
     // Without the over-long width the total is what is refused.
     let no_c = "model enormous\ninput x 65535\nlayer a 65535 relu\nlayer b 65535 relu\n\
@@ -491,7 +516,12 @@ fn enormous_widths_are_refused_before_any_allocation() {
         .collect();
     assert_eq!(codes, ["S0403"]);
     let o = run_child("enormous_widths", &dir, "");
-    assert!(o.status.success(), "{}{}", stdout(&o), String::from_utf8_lossy(&o.stderr));
+    assert!(
+        o.status.success(),
+        "{}{}",
+        stdout(&o),
+        String::from_utf8_lossy(&o.stderr)
+    );
     assert_small_peak(&o, "16 Gi parameters");
     let _ = std::fs::remove_dir_all(dir);
 }
@@ -508,7 +538,12 @@ fn a_csv_with_a_10_mb_line_fails_cleanly_in_little_memory() {
     text.push_str("idle\n");
     std::fs::write(dir.join("long_line.csv"), &text).unwrap();
     let o = run_child("long_csv_line", &dir, "");
-    assert!(o.status.success(), "{}{}", stdout(&o), String::from_utf8_lossy(&o.stderr));
+    assert!(
+        o.status.success(),
+        "{}{}",
+        stdout(&o),
+        String::from_utf8_lossy(&o.stderr)
+    );
     let r = report(&o, "RESULT ").expect("a result");
     assert!(r.starts_with("D11"), "{r}");
     assert_small_peak(&o, "10 MB CSV line");
@@ -529,7 +564,10 @@ fn writer_is_atomic(task: &str, file: &str) {
     std::fs::write(dir.join("wide.sinew"), WIDE).unwrap();
     let target = dir.join(file);
     for (how, prefix) in [
-        ("fails", format!("ulimit -f {FILE_LIMIT_BLOCKS}; trap '' XFSZ;")),
+        (
+            "fails",
+            format!("ulimit -f {FILE_LIMIT_BLOCKS}; trap '' XFSZ;"),
+        ),
         ("is killed", format!("ulimit -f {FILE_LIMIT_BLOCKS};")),
     ] {
         std::fs::write(&target, OLD).unwrap();
@@ -610,7 +648,12 @@ fn sinew_emit_writes_atomically() {
         .current_dir(&dir)
         .output()
         .unwrap();
-    assert_eq!(o.status.code(), Some(2), "{}", String::from_utf8_lossy(&o.stderr));
+    assert_eq!(
+        o.status.code(),
+        Some(2),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
     assert_eq!(std::fs::read_to_string(&target).unwrap(), OLD);
     let _ = std::fs::remove_dir_all(dir);
 }
@@ -627,6 +670,9 @@ fn the_cli_refuses_a_huge_spec_file() {
         .unwrap();
     assert_eq!(o.status.code(), Some(2));
     let err = String::from_utf8_lossy(&o.stderr);
-    assert!(err.contains("big.sinew") && err.contains("larger than"), "{err}");
+    assert!(
+        err.contains("big.sinew") && err.contains("larger than"),
+        "{err}"
+    );
     let _ = std::fs::remove_dir_all(dir);
 }

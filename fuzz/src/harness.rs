@@ -6,12 +6,12 @@
 //! `compiler/tests/fuzz_regressions.rs` (corpus replay and proptest, stable).
 
 use sinew::data;
-use sinew::pack;
-use sinew_runtime::blob;
 use sinew::emit::{self, EmitOptions};
 use sinew::engine::{self, Scratch};
 use sinew::ir::Model;
+use sinew::pack;
 use sinew::weights::Weights;
+use sinew_runtime::blob;
 
 /// Models above this many parameters are checked, reported and dumped, but not emitted or
 /// evaluated (that would only make each fuzz run slow, not find more).
@@ -206,11 +206,17 @@ fn blob(bytes: &[u8], models: &[Model]) {
             }
             let scaling = model.input.standardize.then(|| {
                 let w = model.input.width;
-                (values[at..at + w].to_vec(), values[at + w..at + 2 * w].to_vec())
+                (
+                    values[at..at + w].to_vec(),
+                    values[at + w..at + 2 * w].to_vec(),
+                )
             });
             let w = Weights::from_params(model, layers, scaling, None);
             if let Ok(again) = pack::encode(model, &w) {
-                assert_eq!(again, bytes, "sinew pack re-encodes a decoded blob differently");
+                assert_eq!(
+                    again, bytes,
+                    "sinew pack re-encodes a decoded blob differently"
+                );
             }
         }
     }

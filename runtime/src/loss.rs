@@ -232,7 +232,11 @@ mod tests {
             assert_eq!(logistic_cross_entropy(&[z], &[1.0]), truth, "z {z}");
             assert_eq!(logistic_cross_entropy(&[-z], &[0.0]), truth, "z {z}");
             let zf = z as f32;
-            assert_eq!(logistic_cross_entropy(&[zf], &[1.0]), softplus(-zf), "z {z}");
+            assert_eq!(
+                logistic_cross_entropy(&[zf], &[1.0]),
+                softplus(-zf),
+                "z {z}"
+            );
         }
         // f32 at z = 17: the true loss is about 4.1e-8, not 0.
         let l = logistic_cross_entropy(&[17.0_f32], &[1.0]);

@@ -103,7 +103,13 @@ fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut
         }
     }
     let last = model.layers.len().saturating_sub(1);
-    for (l, ((layer, lp), act)) in model.layers.iter().zip(&p.layers).zip(&net.acts).enumerate() {
+    for (l, ((layer, lp), act)) in model
+        .layers
+        .iter()
+        .zip(&p.layers)
+        .zip(&net.acts)
+        .enumerate()
+    {
         let (done, rest) = sb.a.split_at_mut(l);
         let Some(out) = rest.first_mut() else { break };
         let out = &mut out[..used * layer.width];
@@ -194,7 +200,9 @@ pub fn gradient_into<T: Real + Send + Sync>(
     let mut loss_sum = T::ZERO;
     let (xs, ys) = (&xs[..m * n_in], &ys[..m * n_out]);
     for (xb, yb) in xs.chunks(BLOCK * n_in).zip(ys.chunks(BLOCK * n_out)) {
-        let pieces = xb.chunks(SUB_BLOCK * n_in).zip(yb.chunks(SUB_BLOCK * n_out));
+        let pieces = xb
+            .chunks(SUB_BLOCK * n_in)
+            .zip(yb.chunks(SUB_BLOCK * n_out));
         let used_subs = xb.len().div_ceil(SUB_BLOCK * n_in);
         let subs = &mut subs[..used_subs];
         if parallel {

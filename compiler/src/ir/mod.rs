@@ -342,9 +342,6 @@ mod tests {
         // Test vectors from the FNV reference page (Noll): "" and "a" (values from memory).
         assert_eq!(fnv1a64(b""), 0xcbf29ce484222325);
         assert_eq!(fnv1a64(b"a"), 0xaf63dc4c8601ec8c);
-        assert_eq!(
-            super::fnv1a64_extend(fnv1a64(b"ab"), b"c"),
-            fnv1a64(b"abc")
-        );
+        assert_eq!(super::fnv1a64_extend(fnv1a64(b"ab"), b"c"), fnv1a64(b"abc"));
     }
 }
