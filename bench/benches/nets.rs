@@ -2,7 +2,7 @@
 //! (`n1_inference`, `n3_batch`, ...), one function per implementation. Run through
 //! `bash bench/run.sh`, or `cargo bench -p sinew-bench --bench nets -- n2_` for a subset.
 
-use criterion::{criterion_group, criterion_main, Criterion};
+use criterion::{criterion_group, criterion_main, Criterion, SamplingMode};
 use sinew_bench::cases;
 use std::time::Instant;
 
@@ -21,6 +21,10 @@ fn benches(c: &mut Criterion) {
     }
     for g in groups {
         let mut group = c.benchmark_group(&g);
+        if g.ends_with("_batch") || g.starts_with("n3_") {
+            // Calls of a millisecond or more: ten samples of equal length keep the run short.
+            group.sample_size(10).sampling_mode(SamplingMode::Flat);
+        }
         for case in all
             .iter_mut()
             .filter(|k| format!("{}_{}", k.net.name, k.op.name()) == g)

@@ -62,7 +62,7 @@ fn pack_writes_the_blob_into_a_new_folder() {
     // 2*3 + 3 + 3*1 + 1 = 13 f64 values: 24 + 13 * 8 bytes.
     assert_eq!(blob.len(), 24 + 13 * 8);
     assert!(
-        String::from_utf8_lossy(&o.stdout).contains("136 bytes: 13 f64 values"),
+        String::from_utf8_lossy(&o.stdout).contains("128 bytes: 13 f64 values"),
         "{}",
         text(&o)
     );

@@ -585,25 +585,69 @@ fn flash(img: &Image) -> Flash {
     f
 }
 
-/// Stack frames (bytes) of the firmware's `infer` and `train_step` and of the generated
-/// functions they call that kept a symbol of their own.
-fn frames(img: &Image) -> Vec<(String, u64)> {
-    let mut v = Vec::new();
-    for s in &img.symbols {
-        let n = s.name.as_str();
-        let wanted = n == "sinew_device_sample::infer"
-            || n == "sinew_device_sample::train_step"
-            || (n.contains("pump_health::") && s.function);
-        if wanted {
-            if let Some(&size) = img.stack_sizes.get(&s.address) {
-                let short = n.rsplit("::").take(2).collect::<Vec<_>>();
-                v.push((format!("{}::{}", short[1], short[0]), size));
+/// Stack frames from `-Z emit-stack-sizes` along the two measured calls.
+#[derive(Clone, Debug, Default)]
+struct Frames {
+    /// `infer` and the generated inference functions that kept a symbol of their own.
+    infer: Vec<(String, u64)>,
+    /// `train_step`, `Trainer::step`, and the largest frame of what `step` calls in turn.
+    step: Vec<(String, u64)>,
+    /// The largest frame of a runtime kernel.
+    kernel: (String, u64),
+    /// The largest frame of a libm function.
+    libm: (String, u64),
+}
+
+impl Frames {
+    /// The frames of the chain `infer` -> generated code -> deepest kernel -> deepest libm
+    /// function, added up: a static estimate of the stack of one inference.
+    fn infer_bound(&self) -> u64 {
+        self.infer.iter().map(|f| f.1).sum::<u64>() + self.kernel.1 + self.libm.1
+    }
+
+    /// The same for one training step.
+    fn step_bound(&self) -> u64 {
+        self.step.iter().map(|f| f.1).sum::<u64>() + self.kernel.1 + self.libm.1
+    }
+}
+
+fn frames(img: &Image) -> Frames {
+    let mut f = Frames::default();
+    let mut step_callee: Option<(String, u64)> = None;
+    for s in img.symbols.iter().filter(|s| s.function) {
+        let Some(&size) = img.stack_sizes.get(&s.address) else {
+            continue;
+        };
+        // `<a::B>::c` and `a::B::c` alike.
+        let key: String = s.name.chars().filter(|c| !matches!(c, '<' | '>')).collect();
+        let short = key.rsplit("::").take(2).collect::<Vec<_>>();
+        let short = format!("{}::{}", short.get(1).unwrap_or(&""), short[0]);
+        let ends = |tail: &str| key.ends_with(tail);
+        if ends("sinew_device_sample::infer")
+            || ends("pump_health::Params::predict")
+            || ends("pump_health::Params::predict_into")
+        {
+            f.infer.push((short, size));
+        } else if ends("sinew_device_sample::train_step") || ends("pump_health::Trainer::step") {
+            f.step.push((short, size));
+        } else if ends("pump_health::Params::backprop")
+            || ends("pump_health::Gradients::finish")
+            || ends("pump_health::Gradients::clear")
+            || ends("pump_health::Params::penalty_cost")
+        {
+            if step_callee.as_ref().is_none_or(|c| size > c.1) {
+                step_callee = Some((short, size));
             }
+        } else if key.starts_with("sinew_runtime::") && size > f.kernel.1 {
+            f.kernel = (key.clone(), size);
+        } else if key.starts_with("libm::") && size > f.libm.1 {
+            f.libm = (key.clone(), size);
         }
     }
-    v.sort();
-    v.dedup();
-    v
+    f.step.extend(step_callee);
+    f.infer.sort();
+    f.step.sort();
+    f
 }
 
 /// Instructions executed between pairs of marker functions of the `count` image.
@@ -694,7 +738,7 @@ struct Row {
     opt: &'static str,
     flash: Flash,
     stack: (usize, usize, usize),
-    frames: Vec<(String, u64)>,
+    frames: Option<Frames>,
     counts: Counts,
     trainer_bytes: usize,
 }
@@ -736,7 +780,7 @@ fn firmware_on_emulated_boards_matches_the_workstation() {
                         opt,
                         flash: run.flash,
                         stack: run.stack,
-                        frames: Vec::new(),
+                        frames: None,
                         counts: run.counts,
                         trainer_bytes: run.trainer_bytes,
                     });
@@ -746,16 +790,21 @@ fn firmware_on_emulated_boards_matches_the_workstation() {
         }
     }
 
-    // Stack frames from a nightly measurement build (never the product build).
+    // Stack frames from a nightly measurement build of the product profile (never the product
+    // build itself). Required in CI; on a workstation only with `SINEW_DEVICE` set or when the
+    // figures are written, since the nightly build of the build script takes minutes.
+    let wanted = std::env::var_os("SINEW_DEVICE").is_some()
+        || std::env::var_os("SINEW_DEVICE_FIGURES").is_some();
     let nightly = missing_nightly();
-    if nightly.is_empty() {
+    if !wanted {
+        eprintln!(
+            "note: stack frames (nightly -Z emit-stack-sizes) not measured; set SINEW_DEVICE=1 \
+             or run `bash tests/device/run.sh`"
+        );
+    } else if nightly.is_empty() {
         let dir = repo().join("target/device-nightly");
-        for row in rows.iter_mut() {
-            let profile = PROFILES
-                .iter()
-                .find(|(_, o)| *o == row.opt)
-                .map(|(p, _)| *p)
-                .expect("a profile");
+        let (profile, opt) = PROFILES[0];
+        for row in rows.iter_mut().filter(|r| r.opt == opt) {
             match build(
                 Some("nightly"),
                 &dir,
@@ -764,13 +813,14 @@ fn firmware_on_emulated_boards_matches_the_workstation() {
                 Some("-Z emit-stack-sizes"),
             ) {
                 Ok(out) => {
-                    row.frames = frames(&read_image(&out.join("device"), row.board.thumb));
-                    if row.frames.is_empty() {
+                    let f = frames(&read_image(&out.join("device"), row.board.thumb));
+                    if f.infer.is_empty() || f.step.is_empty() || f.kernel.1 == 0 {
                         problems.push(format!(
-                            "{} opt-level {}: no stack sizes for the model's functions",
-                            row.board.target, row.opt
+                            "{} opt-level {opt}: no stack sizes for the model's functions: {f:?}",
+                            row.board.target
                         ));
                     }
+                    row.frames = Some(f);
                 }
                 Err(e) => problems.push(e),
             }
@@ -907,33 +957,32 @@ fn widths(m: &Model) -> usize {
     m.layers.iter().map(|l| l.width).sum()
 }
 
-/// The Markdown table of figures.
+/// The Markdown tables of figures.
 fn figures(host: &Host, rows: &[Row]) -> String {
     let r = &host.report;
     let mut t = String::new();
     let _ = writeln!(
         t,
-        "Model `pump_health` ({} parameters, f32). Report (`sinew check`): flash {} B for the weights, RAM {} B for inference and {} B for training, {} multiply-adds per inference and {} per training sample.\n",
-        r.parameters, r.flash_bytes, r.ram_inference_bytes, r.ram_training_bytes, r.macs_inference, r.macs_training
+        "Model `pump_health` (6-10-8-3, f32, standardized input, Adam): {} parameters; the report \
+         (`sinew check`) gives {} B of flash for the weights, {} B of RAM for inference and {} B \
+         for training, {} multiply-adds per inference and {} per training sample.\n",
+        r.parameters,
+        r.flash_bytes,
+        r.ram_inference_bytes,
+        r.ram_training_bytes,
+        r.macs_inference,
+        r.macs_training
     );
     let _ = writeln!(
         t,
-        "| target (QEMU board) | opt-level | flash: code | flash: weights | RAM: inference (stack) | RAM: training (state + stack) | stack frames (nightly) | instructions / inference | instructions / training step |"
+        "| target (QEMU board) | opt-level | flash: model code | generated / runtime / libm / soft-float | flash: weights | instructions per inference | instructions per training step (8 samples) |"
     );
-    let _ = writeln!(
-        t,
-        "| --- | --- | ---: | ---: | ---: | ---: | --- | ---: | ---: |"
-    );
+    let _ = writeln!(t, "| --- | --- | ---: | --- | ---: | ---: | ---: |");
     for row in rows {
         let f = &row.flash;
-        let frames: Vec<String> = row
-            .frames
-            .iter()
-            .map(|(n, s)| format!("`{n}` {s}"))
-            .collect();
         let _ = writeln!(
             t,
-            "| {} {} ({}) | {} | {} B ({} generated, {} runtime, {} libm, {} soft-float) | {} B | {} B | {} B + {} B | {} | {} | {} |",
+            "| {} `{}` ({}) | {} | {} B | {} / {} / {} / {} | {} B | {} | {} |",
             row.board.core,
             row.board.target,
             row.board.machine,
@@ -944,12 +993,42 @@ fn figures(host: &Host, rows: &[Row]) -> String {
             f.libm,
             f.soft_float,
             f.weights,
-            row.stack.0,
-            row.trainer_bytes,
-            row.stack.1,
-            if frames.is_empty() { "-".to_string() } else { frames.join(", ") },
             row.counts.infer,
             row.counts.step
+        );
+    }
+    let _ = writeln!(
+        t,
+        "\n| target | opt-level | inference: report | inference: painted stack | inference: frames (nightly) | training: report | training: trainer + painted stack | training: frames (nightly) |"
+    );
+    let _ = writeln!(t, "| --- | --- | ---: | ---: | --- | ---: | ---: | --- |");
+    for row in rows {
+        let show = |parts: &[(String, u64)], total: u64, f: &Frames| {
+            let mut s: Vec<String> = parts.iter().map(|(n, b)| format!("`{n}` {b}")).collect();
+            s.push(format!("kernel {}", f.kernel.1));
+            s.push(format!("libm {}", f.libm.1));
+            format!("{} = {total} B", s.join(" + "))
+        };
+        let (fi, fs) = match &row.frames {
+            Some(f) => (
+                show(&f.infer, f.infer_bound(), f),
+                show(&f.step, f.step_bound(), f),
+            ),
+            None => ("-".to_string(), "-".to_string()),
+        };
+        let _ = writeln!(
+            t,
+            "| {} | {} | {} B | {} B | {} | {} B | {} + {} = {} B | {} |",
+            row.board.core,
+            row.opt,
+            r.ram_inference_bytes,
+            row.stack.0,
+            fi,
+            r.ram_training_bytes,
+            row.trainer_bytes,
+            row.stack.1,
+            row.trainer_bytes + row.stack.1,
+            fs
         );
     }
     t
