@@ -689,13 +689,15 @@ fn count_instructions(board: &Board, elf: &Path, img: &Image) -> Result<Counts, 
     if code != Some(0) {
         return Err(format!("the count image failed ({code:?}):\n{out}"));
     }
-    let text = std::fs::read_to_string(&log).map_err(|e| format!("{log_s}: {e}"))?;
-    let _ = std::fs::remove_file(&log);
+    // Read as a stream: a training step on a core without an FPU is millions of lines.
+    let file = std::fs::File::open(&log).map_err(|e| format!("{log_s}: {e}"))?;
+    let lines = std::io::BufRead::lines(std::io::BufReader::new(file));
     // Each line is one executed instruction: `Trace 0: HOST [CS_BASE/PC/FLAGS/CFLAGS] SYMBOL`.
     let mut counts = [0u64; 3];
     let mut k = 0;
     let mut open = false;
-    for line in text.lines() {
+    for line in lines {
+        let Ok(line) = line else { break };
         let Some(pc) = line
             .split_once('[')
             .and_then(|(_, rest)| rest.split('/').nth(1))
@@ -717,6 +719,7 @@ fn count_instructions(board: &Board, elf: &Path, img: &Image) -> Result<Counts, 
             counts[k] += 1;
         }
     }
+    let _ = std::fs::remove_file(&log);
     if k < pairs.len() {
         return Err(format!(
             "the exec log of {} ended before the markers",
