@@ -308,7 +308,11 @@ pub fn run(target: &str, out: &mut impl Console, ws: &mut Workspace) -> bool {
             first = cost;
         }
         last = cost;
-        line.text("train ").dec(s).text(" cost=").bits(cost).send(out);
+        line.text("train ")
+            .dec(s)
+            .text(" cost=")
+            .bits(cost)
+            .send(out);
     }
     let final_cost = ws.trainer.params.cost(&demo::NEW_INPUTS, &ys);
     ok &= final_cost < last && last < first;
@@ -325,7 +329,10 @@ pub fn run(target: &str, out: &mut impl Console, ws: &mut Workspace) -> bool {
     line.text("saved written=")
         .dec(saved)
         .text(" crc=")
-        .hex(u64::from(stored_checksum(ws.blob.get(..saved).unwrap_or(&[]))), 8)
+        .hex(
+            u64::from(stored_checksum(ws.blob.get(..saved).unwrap_or(&[]))),
+            8,
+        )
         .send(out);
 
     // Stack high-water marks (the measured step is one more training step).

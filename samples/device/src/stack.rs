@@ -27,7 +27,9 @@ pub struct Usage {
 fn stack_pointer() -> usize {
     let sp: usize;
     // SAFETY: reads the stack pointer into a register; touches no memory.
-    unsafe { core::arch::asm!("mov {}, sp", out(reg) sp, options(nomem, nostack, preserves_flags)) };
+    unsafe {
+        core::arch::asm!("mov {}, sp", out(reg) sp, options(nomem, nostack, preserves_flags))
+    };
     sp
 }
 
