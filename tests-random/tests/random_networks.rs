@@ -218,7 +218,7 @@ impl Visit for EndToEnd {
         });
         c.scalars.insert(model.scalar.rust_name());
         c.optimizers.insert(match model.train.optimizer {
-            Optimizer::Sgd { momentum, .. } if momentum == 0.0 => "sgd",
+            Optimizer::Sgd { momentum: 0.0, .. } => "sgd",
             Optimizer::Sgd { .. } => "momentum",
             Optimizer::Adam { .. } => "adam",
         });
