@@ -432,8 +432,8 @@ fn a_confident_correct_logistic_unit_keeps_its_relative_accuracy() {
     // Behaviour: the loss of a confidently correct unit is ln(1 + e^-|z|), about e^-|z|, and
     // the runtime returns it to full relative accuracy in both scalars (computed as
     // `(max(z, 0) - y z) + ln(1 + e^-|z|)`, in which the first term is exactly 0 for such a
-    // unit). The form `softplus(z) - y z` cancels: in f32 it returned 0 from |z| = 17 on and
-    // lost digits well before. Reference: ln(1 + e^-|z|) with the standard library's `exp`
+    // unit). The form `softplus(z) - y z` cancels: in f32 it returned 0 from |z| of about 15
+    // on and lost digits well before. Reference: ln(1 + e^-|z|) with the standard library's `exp`
     // and `ln_1p`, in the same scalar type.
     use sinew_runtime::loss::logistic_cross_entropy;
     for k in 1..=60 {

@@ -464,8 +464,8 @@ fn a_100_mb_spec_file_fails_cleanly_in_little_memory() {
 
 #[test]
 fn a_spec_of_one_long_word_fails_cleanly_in_little_memory() {
-    // Just under the spec size limit, a single word: the suggestion machinery must not
-    // allocate in proportion to it.
+    // Just under the spec size limit, a single word: the diagnostic machinery (typo
+    // suggestions, quoting, rendering) must stay within a small multiple of it.
     let dir = scratch("long_word");
     let len = usize::try_from(sinew::fsutil::MAX_SPEC_BYTES).unwrap() - 1;
     std::fs::write(dir.join("long_word.sinew"), "x".repeat(len)).unwrap();

@@ -18,7 +18,8 @@ use sinew_runtime::blob;
 const EMIT_LIMIT: usize = 4096;
 
 /// Spec bytes (lossily decoded as UTF-8) through `check_source`, `render`, the report, the IR
-/// dump, and for a small valid model the emitter (rolled and unrolled) and one engine pass.
+/// dump, and for a small valid model the emitter (rolled, unrolled, and with its initial
+/// weights baked in) and one engine pass.
 ///
 /// Invariants: a model comes back exactly when there is no error; every span lies inside the
 /// source on character boundaries; at most 101 findings; the rendering is empty exactly when
@@ -54,11 +55,12 @@ fn valid_model(model: &Model) {
     if model.parameters() > EMIT_LIMIT {
         return;
     }
-    for unroll_below in [0, 64] {
+    let baked = sinew::workflow::baked(&sinew::workflow::init(model, None));
+    for (unroll_below, weights) in [(0, None), (64, None), (0, Some(baked))] {
         let options = EmitOptions {
             spec_name: "fuzz.sinew".to_string(),
             unroll_below,
-            weights: None,
+            weights,
         };
         let code = emit::generate(model, &options);
         assert!(

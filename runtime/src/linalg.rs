@@ -10,6 +10,15 @@
 //! Lengths: the slice forms never panic. Rows are paired with the other operands by `zip`, so any
 //! surplus in a longer operand is left untouched (outputs) or ignored (inputs); an incomplete last
 //! row of `w` is ignored.
+//!
+//! Speed without changing bits: [`affine`] sums each row in [`LANES`] independent partial sums
+//! (a fixed order, documented on it, that SIMD units and pipelined adders can follow) and reads
+//! four rows per pass over `x`; [`back`] adds four rows per pass over `out`, in the same order as
+//! one row at a time. The per-sample kernels are `#[inline(always)]` so that the constant sizes of
+//! generated code reach them. The batch forms ([`affine_batch`], [`back_batch`],
+//! [`outer_acc_batch`], [`outer_acc_batch_rows`], [`add_acc_batch`]) work on a block of samples
+//! stored row by row: each weight tile is read once per block, and each result equals, bit for
+//! bit, the per-sample kernel applied to the samples in order.
 
 use crate::Real;
 

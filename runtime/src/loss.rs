@@ -68,7 +68,8 @@ pub fn log_sum_exp<T: Real>(z: &[T]) -> T {
 /// The grouping keeps full relative accuracy for hard targets: for a confidently correct unit
 /// (`y = 1`, `z > 0`, or `y = 0`, `z < 0`) the first term is exactly 0 and the loss is
 /// `ln_1p(e^-|z|)`, about `e^-|z|`, to the last bit. Subtracting `y z` from `softplus(z)` instead
-/// would cancel (in `f32` it returns 0 from `|z| = 17` on, where the true loss is about 4e-8).
+/// would cancel (in `f32` it returns 0 from `|z|` of about 15 on, where the true loss is about
+/// 3e-7).
 ///
 /// # Examples
 ///

@@ -492,15 +492,8 @@ pub(crate) fn quote(word: &str) -> String {
     format!("`{s}`")
 }
 
-/// Words longer than this are never taken for a typo: every keyword is far shorter, and the
-/// edit distance needs memory in proportion to the word's length.
-const MAX_SUGGEST_LEN: usize = 64;
-
 /// The candidate closest to `word`, if it is close enough to be a likely typo.
 pub(crate) fn suggest<'a>(word: &str, candidates: &[&'a str]) -> Option<&'a str> {
-    if word.len() > MAX_SUGGEST_LEN {
-        return None;
-    }
     let lower = word.to_lowercase();
     let mut best: Option<(&'a str, f64)> = None;
     for &c in candidates {
