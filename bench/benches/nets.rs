@@ -3,7 +3,11 @@
 //! `bash bench/run.sh`, or `cargo bench -p sinew-bench --bench nets -- n2_` for a subset.
 
 // The hand-written baselines are kept as a user would write them (indexed loops included).
-#![allow(clippy::needless_range_loop, clippy::neg_cmp_op_on_partial_ord, clippy::op_ref)]
+#![allow(
+    clippy::needless_range_loop,
+    clippy::neg_cmp_op_on_partial_ord,
+    clippy::op_ref
+)]
 use criterion::{criterion_group, criterion_main, Criterion, SamplingMode};
 use sinew_bench::cases;
 use std::time::Instant;

@@ -15,7 +15,11 @@
 //! `bench/run.sh` runs everything.
 
 // The hand-written baselines are kept as a user would write them (indexed loops included).
-#![allow(clippy::needless_range_loop, clippy::neg_cmp_op_on_partial_ord, clippy::op_ref)]
+#![allow(
+    clippy::needless_range_loop,
+    clippy::neg_cmp_op_on_partial_ord,
+    clippy::op_ref
+)]
 #![deny(missing_docs)]
 
 use sinew_runtime::rng::SplitMix64;

@@ -7,7 +7,11 @@
 //! contains FILTER.
 
 // The hand-written baselines are kept as a user would write them (indexed loops included).
-#![allow(clippy::needless_range_loop, clippy::neg_cmp_op_on_partial_ord, clippy::op_ref)]
+#![allow(
+    clippy::needless_range_loop,
+    clippy::neg_cmp_op_on_partial_ord,
+    clippy::op_ref
+)]
 use sinew_bench::cases::{self, Case};
 use std::process::Command;
 

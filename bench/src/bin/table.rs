@@ -11,7 +11,11 @@
 //! the generated N3 module.
 
 // The hand-written baselines are kept as a user would write them (indexed loops included).
-#![allow(clippy::needless_range_loop, clippy::neg_cmp_op_on_partial_ord, clippy::op_ref)]
+#![allow(
+    clippy::needless_range_loop,
+    clippy::neg_cmp_op_on_partial_ord,
+    clippy::op_ref
+)]
 use serde_json::Value;
 use sinew_bench::cases::{Op, IMPLS};
 use sinew_bench::{Shape, BATCH, SHAPES};
