@@ -6,19 +6,39 @@
 //! - **flash** (`flash_bytes`): the baked parameters (every weight and bias) plus, with
 //!   `standardize`, the per-feature mean and standard deviation. Machine code is measured on the
 //!   compiled firmware, not estimated here.
-//! - **inference RAM** (`ram_inference_bytes`): the standardized input copy (with `standardize`)
-//!   and one activation buffer per layer (activations are applied in place over `z`). It is an
-//!   upper bound on the buffers `predict` holds; the compiler may overlap some of them.
+//! - **inference RAM** (`ram_inference_bytes`): the buffers (`buffer_inference_bytes`: the
+//!   standardized input copy with `standardize`, and one activation buffer per layer; activations
+//!   are applied in place over `z`) plus the call frames of `predict` and the runtime kernels and
+//!   libm functions it calls (`frames_inference_bytes`, [`INFERENCE_FRAMES_F32`] for `f32`, twice
+//!   that for `f64`). The frames do not grow with the widths (the kernels loop over slices); their
+//!   allowance is the largest stack the device test (`tests/tests/device.rs`) paints on three
+//!   microcontroller targets at `opt-level = "z"` and `3`, less the buffers, rounded up to leave a
+//!   margin. The test fails if a measured high-water mark exceeds this figure.
 //! - **training RAM** (`ram_training_bytes`), for the on-device trainer: parameters, gradient
 //!   accumulators and optimizer state (none for plain SGD, one copy for momentum, two for Adam),
 //!   plus the per-sample working set: the inference buffers, the output logits kept for the
-//!   loss, and one error buffer (delta) per layer.
+//!   loss, and one error buffer (delta) per layer (together `buffer_training_bytes`), plus the call
+//!   frames of one training step (`frames_training_bytes`, [`TRAINING_FRAMES_F32`] for `f32`).
+//!
+//! The frame allowances hold for the loop form of the generated code. Code unrolled with
+//! `unroll_below` keeps its values in its own frame, which grows with the layer; measure it.
 //! - **multiply-adds**: `sum width * fan_in` per inference; a training sample adds the gradient
 //!   outer products (`sum width * fan_in`) and the back-propagated errors through every layer but
 //!   the first (`sum_{l >= 2} width * fan_in`).
 
 use crate::ir::{Model, Optimizer};
 use serde::Serialize;
+
+/// Stack bytes of the call frames of one `f32` inference beyond its buffers: `predict`, the
+/// runtime kernels and libm. The device test measures at most 1216 B (a painted high-water mark
+/// of 1324 B less 108 B of buffers, Cortex-M0 at `opt-level = "z"`); this leaves 320 B to spare.
+/// `f64` models get twice as much (not measured: no `f64` firmware is built).
+pub const INFERENCE_FRAMES_F32: u64 = 1536;
+
+/// Stack bytes of the call frames of one `f32` training step beyond the trainer and its
+/// per-sample buffers. The device test measures at most 1548 B (Cortex-M0 at `opt-level = "z"`);
+/// this leaves 500 B to spare. `f64` models get twice as much (not measured).
+pub const TRAINING_FRAMES_F32: u64 = 2048;
 
 /// Figures for one layer.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]
@@ -56,9 +76,18 @@ pub struct Report {
     pub scaling_bytes: u64,
     /// Flash for the baked model: `parameter_bytes + scaling_bytes`.
     pub flash_bytes: u64,
-    /// RAM held by `predict`.
+    /// Buffers `predict` holds (standardized input copy, one buffer per layer).
+    pub buffer_inference_bytes: u64,
+    /// Allowance for the call frames of one inference ([`INFERENCE_FRAMES_F32`], scaled).
+    pub frames_inference_bytes: u64,
+    /// RAM of one inference: `buffer_inference_bytes + frames_inference_bytes`.
     pub ram_inference_bytes: u64,
-    /// RAM held by the on-device trainer and one training sample's working set.
+    /// The on-device trainer (parameters, gradients, optimizer state) and one training sample's
+    /// buffers.
+    pub buffer_training_bytes: u64,
+    /// Allowance for the call frames of one training step ([`TRAINING_FRAMES_F32`], scaled).
+    pub frames_training_bytes: u64,
+    /// RAM of training: `buffer_training_bytes + frames_training_bytes`.
     pub ram_training_bytes: u64,
     /// Multiply-adds per inference.
     pub macs_inference: u64,
@@ -106,6 +135,9 @@ impl Report {
         };
         let inference_values = std_values + widths;
         let training_values = parameters * (2 + optimizer_copies) + inference_values + out + widths;
+        // The frames hold scalars (accumulators, padded tails): they scale with the scalar size.
+        let frames_inference = INFERENCE_FRAMES_F32 * b / 4;
+        let frames_training = TRAINING_FRAMES_F32 * b / 4;
         let macs_inference: u64 = layers.iter().map(|l| l.macs).sum();
         let macs_back: u64 = layers.iter().skip(1).map(|l| l.macs).sum();
         Report {
@@ -114,8 +146,12 @@ impl Report {
             parameter_bytes: parameters * b,
             scaling_bytes: 2 * std_values * b,
             flash_bytes: (parameters + 2 * std_values) * b,
-            ram_inference_bytes: inference_values * b,
-            ram_training_bytes: training_values * b,
+            buffer_inference_bytes: inference_values * b,
+            frames_inference_bytes: frames_inference,
+            ram_inference_bytes: inference_values * b + frames_inference,
+            buffer_training_bytes: training_values * b,
+            frames_training_bytes: frames_training,
+            ram_training_bytes: training_values * b + frames_training,
             macs_inference,
             macs_training: 2 * macs_inference + macs_back,
             layers,
@@ -211,11 +247,15 @@ mod tests {
         assert_eq!(r.scaling_bytes, 48);
         assert_eq!(r.flash_bytes, 788);
         // inference: standardized input 6 + buffers 10 + 8 + 3 = 27 values * 4 B = 108 B
-        assert_eq!(r.ram_inference_bytes, 108);
+        assert_eq!(r.buffer_inference_bytes, 108);
+        // plus the frame allowance for f32: 108 + 1536 = 1644 B
+        assert_eq!(r.frames_inference_bytes, 1536);
+        assert_eq!(r.ram_inference_bytes, 1644);
         // training: params 185 + gradients 185 + Adam m and v 2*185 = 740 values
         //           + inference 27 + output logits 3 + deltas 10 + 8 + 3 = 51 values
-        //           = 791 values * 4 B = 3164 B
-        assert_eq!(r.ram_training_bytes, 3164);
+        //           = 791 values * 4 B = 3164 B, plus 2048 B of frames = 5212 B
+        assert_eq!(r.buffer_training_bytes, 3164);
+        assert_eq!(r.ram_training_bytes, 3164 + 2048);
     }
 
     #[test]
@@ -227,17 +267,19 @@ mod tests {
         let r = Report::of(&net_6_10_8_3(Scalar::F64, false, sgd));
         // 185 * 8 B = 1480 B; no scaling
         assert_eq!(r.flash_bytes, 1480);
-        // inference: 10 + 8 + 3 = 21 values * 8 B = 168 B
-        assert_eq!(r.ram_inference_bytes, 168);
+        // inference: 10 + 8 + 3 = 21 values * 8 B = 168 B, plus 2 * 1536 B of frames
+        assert_eq!(r.buffer_inference_bytes, 168);
+        assert_eq!(r.ram_inference_bytes, 168 + 3072);
         // training: params + gradients 370 + 21 + 3 + 21 = 415 values * 8 B = 3320 B
-        assert_eq!(r.ram_training_bytes, 3320);
+        assert_eq!(r.buffer_training_bytes, 3320);
+        assert_eq!(r.ram_training_bytes, 3320 + 4096);
         let momentum = Optimizer::Sgd {
             rate: 0.1,
             momentum: 0.9,
         };
         let r = Report::of(&net_6_10_8_3(Scalar::F64, false, momentum));
         // one velocity copy more: 415 + 185 = 600 values * 8 B = 4800 B
-        assert_eq!(r.ram_training_bytes, 4800);
+        assert_eq!(r.buffer_training_bytes, 4800);
     }
 
     #[test]

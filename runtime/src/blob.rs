@@ -25,7 +25,7 @@
 //! total length, and last the checksum. Only a blob that passes every check yields values, so a
 //! generated `load_blob` leaves its parameters untouched on any error.
 //!
-//! Nothing here allocates or panics: bytes are read with `get`, `zip` and `chunks_exact`, never
+//! Nothing here allocates or panics: bytes are read with `get`, `zip` and `split_at_checked`, never
 //! by computed index.
 //!
 //! # Examples
@@ -585,7 +585,7 @@ impl<'a, T: BlobScalar> Values<'a, T> {
     pub fn read_into(&mut self, dst: &mut [T]) -> usize {
         let size = T::KIND.bytes();
         let mut n = 0;
-        for (d, chunk) in dst.iter_mut().zip(self.rest.chunks_exact(size)) {
+        for (d, chunk) in dst.iter_mut().zip(crate::linalg::pieces(self.rest, size)) {
             *d = T::read_le(chunk);
             n += 1;
         }
@@ -668,7 +668,7 @@ impl<'a, T: BlobScalar> Writer<'a, T> {
         let size = T::KIND.bytes();
         let start = HEADER_BYTES.saturating_add(self.written.saturating_mul(size));
         let room = self.body.get_mut(start..).unwrap_or(&mut []);
-        for (chunk, v) in room.chunks_exact_mut(size).zip(values) {
+        for (chunk, v) in crate::linalg::pieces_mut(room, size).zip(values) {
             v.write_le(chunk);
         }
         self.written = self.written.saturating_add(values.len());

@@ -49,12 +49,6 @@ fn lanes_mul_add<T: Real>(acc: &mut [T; LANES], w: &[T; LANES], x: &[T; LANES]) 
     }
 }
 
-/// The chunk as an array (`None` only if it is not `LANES` long, which `chunks_exact` rules out).
-#[inline(always)]
-fn lanes<T>(c: &[T]) -> Option<&[T; LANES]> {
-    c.try_into().ok()
-}
-
 /// A row's tail (fewer than `LANES` values) padded with zeros to a full chunk.
 ///
 /// Adding the padded products `0 * 0 = +0` to the lane sums changes no bit: a lane sum starts at
@@ -71,12 +65,11 @@ fn padded<T: Real>(tail: &[T]) -> [T; LANES] {
 #[inline(always)]
 fn row_lanes<T: Real>(w: &[T], x: &[T], xt: &[T; LANES]) -> [T; LANES] {
     let mut acc = [T::ZERO; LANES];
-    let wc = w.chunks_exact(LANES);
-    let wr = wc.remainder();
-    for (wk, xk) in wc.zip(x.chunks_exact(LANES)) {
-        if let (Some(wk), Some(xk)) = (lanes(wk), lanes(xk)) {
-            lanes_mul_add(&mut acc, wk, xk);
-        }
+    // `as_chunks` rather than `chunks_exact`: its count is a length, not a division whose
+    // divide-by-zero panic survives in size-optimised builds (see [`pieces`]).
+    let (wc, wr) = w.as_chunks::<LANES>();
+    for (wk, xk) in wc.iter().zip(x.as_chunks::<LANES>().0) {
+        lanes_mul_add(&mut acc, wk, xk);
     }
     if !wr.is_empty() {
         lanes_mul_add(&mut acc, &padded(wr), xt);
@@ -95,27 +88,18 @@ fn rows4_lanes<T: Real>(r: [&[T]; ROWS], x: &[T], xt: &[T; LANES]) -> [[T; LANES
         [T::ZERO; LANES],
         [T::ZERO; LANES],
     );
-    let (c0, c1, c2, c3) = (
-        r0.chunks_exact(LANES),
-        r1.chunks_exact(LANES),
-        r2.chunks_exact(LANES),
-        r3.chunks_exact(LANES),
+    let ((c0, t0), (c1, t1), (c2, t2), (c3, t3)) = (
+        r0.as_chunks::<LANES>(),
+        r1.as_chunks::<LANES>(),
+        r2.as_chunks::<LANES>(),
+        r3.as_chunks::<LANES>(),
     );
-    let (t0, t1, t2, t3) = (
-        c0.remainder(),
-        c1.remainder(),
-        c2.remainder(),
-        c3.remainder(),
-    );
-    for ((((xk, w0), w1), w2), w3) in x.chunks_exact(LANES).zip(c0).zip(c1).zip(c2).zip(c3) {
-        if let (Some(xk), Some(w0), Some(w1), Some(w2), Some(w3)) =
-            (lanes(xk), lanes(w0), lanes(w1), lanes(w2), lanes(w3))
-        {
-            lanes_mul_add(&mut a0, w0, xk);
-            lanes_mul_add(&mut a1, w1, xk);
-            lanes_mul_add(&mut a2, w2, xk);
-            lanes_mul_add(&mut a3, w3, xk);
-        }
+    let xc = x.as_chunks::<LANES>().0;
+    for ((((xk, w0), w1), w2), w3) in xc.iter().zip(c0).zip(c1).zip(c2).zip(c3) {
+        lanes_mul_add(&mut a0, w0, xk);
+        lanes_mul_add(&mut a1, w1, xk);
+        lanes_mul_add(&mut a2, w2, xk);
+        lanes_mul_add(&mut a3, w3, xk);
     }
     if !t0.is_empty() {
         lanes_mul_add(&mut a0, &padded(t0), xt);
@@ -126,17 +110,43 @@ fn rows4_lanes<T: Real>(r: [&[T]; ROWS], x: &[T], xt: &[T; LANES]) -> [[T; LANES
     [a0, a1, a2, a3]
 }
 
+/// The consecutive pieces of `n` elements of `s` (a shorter tail is left out), as
+/// `s.chunks_exact(n)` gives them, but without its division: `chunks_exact` counts its pieces
+/// with `s.len() / n` and guards that division with a panic for `n = 0`, which stays in the
+/// image when the optimiser does not inline it (as at `opt-level = "z"`). With `n = 0` the pieces
+/// are empty and never end, so callers zip them with a finite sequence or rule `n = 0` out.
+#[inline(always)]
+pub(crate) fn pieces<T>(s: &[T], n: usize) -> impl Iterator<Item = &[T]> {
+    let mut rest = s;
+    core::iter::from_fn(move || {
+        let (head, tail) = rest.split_at_checked(n)?;
+        rest = tail;
+        Some(head)
+    })
+}
+
+/// [`pieces`] of a mutable slice.
+#[inline(always)]
+pub(crate) fn pieces_mut<T>(s: &mut [T], n: usize) -> impl Iterator<Item = &mut [T]> {
+    let mut rest = s;
+    core::iter::from_fn(move || {
+        let (head, tail) = core::mem::take(&mut rest).split_at_mut_checked(n)?;
+        rest = tail;
+        Some(head)
+    })
+}
+
 /// Splits a block of `ROWS * n` weights into its rows (`None` if it is shorter).
 #[inline(always)]
 fn four_rows<T>(block: &[T], n: usize) -> Option<[&[T]; ROWS]> {
-    let mut it = block.chunks_exact(n);
+    let mut it = pieces(block, n);
     Some([it.next()?, it.next()?, it.next()?, it.next()?])
 }
 
 /// The input's tail (past the last full chunk), padded.
 #[inline(always)]
 fn input_tail<T: Real>(x: &[T]) -> [T; LANES] {
-    padded(x.chunks_exact(LANES).remainder())
+    padded(x.as_chunks::<LANES>().1)
 }
 
 /// Affine map of a dense layer: `z_j = (sum_i w[j*n + i] * x_i) + b_j`, with `n = x.len()`.
@@ -172,10 +182,9 @@ pub fn affine<T: Real>(w: &[T], b: &[T], x: &[T], z: &mut [T]) {
     }
     let xt = input_tail(x);
     let blocks = (w.len() / n).min(b.len()).min(z.len()) / ROWS;
-    for ((wb, bb), zb) in w
-        .chunks_exact(ROWS * n)
-        .zip(b.chunks_exact(ROWS))
-        .zip(z.chunks_exact_mut(ROWS))
+    for ((wb, bb), zb) in pieces(w, ROWS * n)
+        .zip(b.as_chunks::<ROWS>().0)
+        .zip(z.as_chunks_mut::<ROWS>().0)
         .take(blocks)
     {
         let Some(rows) = four_rows(wb, n) else {
@@ -185,12 +194,7 @@ pub fn affine<T: Real>(w: &[T], b: &[T], x: &[T], z: &mut [T]) {
             *zj = lane_sum(l) + *bj;
         }
     }
-    for ((row, bj), zj) in w
-        .chunks_exact(n)
-        .zip(b)
-        .zip(z.iter_mut())
-        .skip(blocks * ROWS)
-    {
+    for ((row, bj), zj) in pieces(w, n).zip(b).zip(z.iter_mut()).skip(blocks * ROWS) {
         *zj = lane_sum(row_lanes(row, x, &xt)) + *bj;
     }
 }
@@ -246,9 +250,8 @@ pub fn back<T: Real>(w: &[T], d: &[T], out: &mut [T]) {
     // Four rows per pass over `out`: `o = (((o + w0 d0) + w1 d1) + w2 d2) + w3 d3` is the same
     // sequence of additions as four passes of one row each.
     let blocks = (w.len() / n).min(d.len()) / ROWS;
-    for (wb, db) in w
-        .chunks_exact(ROWS * n)
-        .zip(d.chunks_exact(ROWS))
+    for (wb, db) in pieces(w, ROWS * n)
+        .zip(d.as_chunks::<ROWS>().0)
         .take(blocks)
     {
         let (Some([r0, r1, r2, r3]), [d0, d1, d2, d3]) = (four_rows(wb, n), db) else {
@@ -258,7 +261,7 @@ pub fn back<T: Real>(w: &[T], d: &[T], out: &mut [T]) {
             *o = (((*o + *w0 * *d0) + *w1 * *d1) + *w2 * *d2) + *w3 * *d3;
         }
     }
-    for (row, dj) in w.chunks_exact(n).zip(d).skip(blocks * ROWS) {
+    for (row, dj) in pieces(w, n).zip(d).skip(blocks * ROWS) {
         for (o, wji) in out.iter_mut().zip(row) {
             *o += *wji * *dj;
         }
@@ -305,7 +308,7 @@ pub fn outer_acc<T: Real>(g: &mut [T], d: &[T], a: &[T]) {
     if n == 0 {
         return;
     }
-    for (row, dj) in g.chunks_exact_mut(n).zip(d) {
+    for (row, dj) in pieces_mut(g, n).zip(d) {
         for (gji, ai) in row.iter_mut().zip(a) {
             *gji += *dj * *ai;
         }
@@ -414,16 +417,15 @@ pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize)
         return;
     }
     if n == 0 {
-        for z in zs.chunks_exact_mut(o) {
+        for z in pieces_mut(zs, o) {
             affine(w, b, &[], z);
         }
         return;
     }
     let rows = (w.len() / n).min(o);
     let blocks = rows / ROWS;
-    for (jb, (wb, bb)) in w
-        .chunks_exact(ROWS * n)
-        .zip(b.chunks_exact(ROWS))
+    for (jb, (wb, bb)) in pieces(w, ROWS * n)
+        .zip(b.as_chunks::<ROWS>().0)
         .take(blocks)
         .enumerate()
     {
@@ -431,7 +433,7 @@ pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize)
             continue;
         };
         let j = jb * ROWS;
-        for (x, z) in xs.chunks_exact(n).zip(zs.chunks_exact_mut(o)) {
+        for (x, z) in pieces(xs, n).zip(pieces_mut(zs, o)) {
             let Some(zb) = z.get_mut(j..j + ROWS) else {
                 continue;
             };
@@ -440,14 +442,13 @@ pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize)
             }
         }
     }
-    for (j, (row, bj)) in w
-        .chunks_exact(n)
+    for (j, (row, bj)) in pieces(w, n)
         .zip(b)
         .enumerate()
         .take(rows)
         .skip(blocks * ROWS)
     {
-        for (x, z) in xs.chunks_exact(n).zip(zs.chunks_exact_mut(o)) {
+        for (x, z) in pieces(xs, n).zip(pieces_mut(zs, o)) {
             if let Some(zj) = z.get_mut(j) {
                 *zj = lane_sum(row_lanes(row, x, &input_tail(x))) + *bj;
             }
@@ -507,7 +508,7 @@ pub fn back_batch<T: Real>(w: &[T], ds: &[T], outs: &mut [T], n: usize) {
     if o == 0 {
         return;
     }
-    for (d, out) in ds.chunks_exact(o).zip(outs.chunks_exact_mut(n)) {
+    for (d, out) in pieces(ds, o).zip(pieces_mut(outs, n)) {
         back(w, d, out);
     }
 }
@@ -546,12 +547,12 @@ fn outer_tile<T: Real, const R: usize, const C: usize>(
     (j, i, n, o): (usize, usize, usize, usize),
 ) {
     let mut acc = [[T::ZERO; C]; R];
-    for (a, row) in acc.iter_mut().zip(rows.chunks_exact(n)) {
+    for (a, row) in acc.iter_mut().zip(pieces(rows, n)) {
         for (v, g) in a.iter_mut().zip(row.iter().skip(i)) {
             *v = *g;
         }
     }
-    for (drow, xrow) in ds.chunks_exact(o).zip(xs.chunks_exact(n)) {
+    for (drow, xrow) in pieces(ds, o).zip(pieces(xs, n)) {
         let (Some(dv), Some(xv)) = (drow.get(j..j + R), xrow.get(i..i + C)) else {
             continue;
         };
@@ -564,7 +565,7 @@ fn outer_tile<T: Real, const R: usize, const C: usize>(
             }
         }
     }
-    for (a, row) in acc.iter().zip(rows.chunks_exact_mut(n)) {
+    for (a, row) in acc.iter().zip(pieces_mut(rows, n)) {
         for (v, g) in a.iter().zip(row.iter_mut().skip(i)) {
             *g = *v;
         }
@@ -654,15 +655,10 @@ pub fn outer_acc_batch_rows<T: Real>(
     }
     let rows = (g.len() / n).min(o.saturating_sub(first));
     let blocks = rows / ROWS;
-    for (jb, block) in g.chunks_exact_mut(ROWS * n).take(blocks).enumerate() {
+    for (jb, block) in pieces_mut(g, ROWS * n).take(blocks).enumerate() {
         outer_rows::<T, ROWS>(block, ds, xs, (first + jb * ROWS, n, o));
     }
-    for (j, row) in g
-        .chunks_exact_mut(n)
-        .enumerate()
-        .take(rows)
-        .skip(blocks * ROWS)
-    {
+    for (j, row) in pieces_mut(g, n).enumerate().take(rows).skip(blocks * ROWS) {
         outer_rows::<T, 1>(row, ds, xs, (first + j, n, o));
     }
 }
@@ -707,7 +703,7 @@ pub fn add_acc_batch<T: Real>(g: &mut [T], ds: &[T]) {
     if g.is_empty() {
         return;
     }
-    for d in ds.chunks_exact(g.len()) {
+    for d in pieces(ds, g.len()) {
         add_acc(g, d);
     }
 }
@@ -723,6 +719,22 @@ mod tests {
     use std::boxed::Box;
     use std::vec;
     use std::vec::Vec;
+
+    #[test]
+    fn pieces_are_the_chunks_of_chunks_exact() {
+        // `pieces` replaces `chunks_exact` (core's documented behaviour is the reference).
+        let v: Vec<u32> = (0..23).collect();
+        for n in 1..=25 {
+            let want: Vec<&[u32]> = v.chunks_exact(n).collect();
+            assert_eq!(pieces(&v, n).collect::<Vec<_>>(), want, "n = {n}");
+            let mut m = v.clone();
+            let got: Vec<Vec<u32>> = pieces_mut(&mut m, n).map(|p| p.to_vec()).collect();
+            assert_eq!(got, want.iter().map(|p| p.to_vec()).collect::<Vec<_>>());
+        }
+        // n = 0: empty pieces without end (callers bound them with a zip).
+        assert!(pieces(&v, 0).take(5).all(|p| p.is_empty()));
+        assert_eq!(pieces(&v, 0).zip(0..3).count(), 3);
+    }
 
     /// Shapes (fan-in n, width o) of the sweep plus large layers of a 784-128-64-10 network.
     fn shapes() -> Vec<(usize, usize)> {
