@@ -201,8 +201,8 @@ mod tests {
 
     #[test]
     fn pump_health_figures_against_budgets() {
-        // 6-10-8-3, f32, standardized: flash 788 B and inference RAM 108 B of buffers + 1536 B
-        // of call frames = 1644 B (report.rs works through both figures).
+        // 6-10-8-3, f32, standardized: flash 788 B and inference RAM 108 B of buffers + 1280 B
+        // of call frames = 1388 B (report.rs works through both figures).
         let spec = |budget: &str| {
             format!(
                 "model pump_health\ninput features 6 standardize\nlayer hidden1 10 sigmoid\n\
@@ -216,9 +216,9 @@ mod tests {
                 .map(|d| d.code)
                 .collect()
         };
-        assert!(codes("budget flash 788 B ram 1644 B").is_empty());
+        assert!(codes("budget flash 788 B ram 1388 B").is_empty());
         assert_eq!(codes("budget flash 787 B"), ["S0701"]);
-        assert_eq!(codes("budget ram 1643 B"), ["S0702"]);
+        assert_eq!(codes("budget ram 1387 B"), ["S0702"]);
         let d = &check_source(&spec("budget flash 787 B")).diagnostics[0];
         assert_eq!(
             d.message,
