@@ -26,11 +26,14 @@ while [ $# -gt 0 ]; do
     esac
 done
 
+# Absolute folders: `cargo bench` runs the benchmark in bench/, and criterion writes its results
+# under CARGO_TARGET_DIR, which must therefore not be relative.
+root="$(pwd)"
 target_of() {
     case "$1" in
-        default) echo "target" ;;
-        v3) echo "target/bench-v3" ;;
-        native) echo "target/bench-native" ;;
+        default) echo "$root/target" ;;
+        v3) echo "$root/target/bench-v3" ;;
+        native) echo "$root/target/bench-native" ;;
         *) echo "unknown build $1" >&2; exit 2 ;;
     esac
 }

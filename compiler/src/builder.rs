@@ -101,6 +101,16 @@ impl Builder {
     /// the generated module then holds the parameters as `pub static TRAINED: Params`, exact to
     /// the bit. The weights are checked against the spec (fingerprint, layers, shapes) and a
     /// mismatch fails the build. Both files are watched by Cargo.
+    ///
+    /// # Examples
+    ///
+    /// ```no_run
+    /// // build.rs: the generated `pump_health.rs` then holds `pub static TRAINED: Params`.
+    /// sinew::Builder::new()
+    ///     .spec_with_weights("models/pump_health.sinew", "models/pump_health.weights.json")
+    ///     .compile()
+    ///     .expect("the spec compiles and the weights fit it");
+    /// ```
     pub fn spec_with_weights(
         &mut self,
         path: impl AsRef<Path>,
@@ -114,6 +124,19 @@ impl Builder {
     }
 
     /// Adds several spec files.
+    ///
+    /// # Examples
+    ///
+    /// ```no_run
+    /// // build.rs: every spec in `models/`, in a stable order.
+    /// let mut specs: Vec<_> = std::fs::read_dir("models")
+    ///     .expect("a models folder")
+    ///     .map(|e| e.expect("a folder entry").path())
+    ///     .filter(|p| p.extension().is_some_and(|x| x == "sinew"))
+    ///     .collect();
+    /// specs.sort();
+    /// sinew::Builder::new().specs(&specs).compile().expect("specs compile");
+    /// ```
     pub fn specs<P: AsRef<Path>>(&mut self, paths: impl IntoIterator<Item = P>) -> &mut Self {
         for p in paths {
             self.spec(p);
@@ -160,6 +183,44 @@ impl Builder {
     ///
     /// Stops at the first spec that fails; the diagnostics of every spec compiled so far have been
     /// written to stderr.
+    ///
+    /// # Examples
+    ///
+    /// Outside a build script, into a folder of one's own:
+    ///
+    /// ```
+    /// let dir = std::env::temp_dir().join(format!("sinew-doc-compile-{}", std::process::id()));
+    /// std::fs::create_dir_all(&dir)?;
+    /// let spec = dir.join("door.sinew");
+    /// std::fs::write(
+    ///     &spec,
+    ///     "model door\ninput x 2\noutput y 1 sigmoid\nloss cross_entropy\n",
+    /// )?;
+    ///
+    /// let out = dir.join("generated");
+    /// let written = sinew::Builder::new()
+    ///     .spec(&spec)
+    ///     .out_dir(&out)
+    ///     .cargo_metadata(false)
+    ///     .compile()?;
+    /// assert_eq!(written, [out.join("door.rs")]);
+    /// assert!(std::fs::read_to_string(&written[0])?.contains("FINGERPRINT"));
+    ///
+    /// // A spec with errors renders its diagnostics to stderr and fails the build.
+    /// std::fs::write(
+    ///     &spec,
+    ///     "model door\ninput x 0\noutput y 1 sigmoid\nloss cross_entropy\n",
+    /// )?;
+    /// let err = sinew::Builder::new()
+    ///     .spec(&spec)
+    ///     .out_dir(&out)
+    ///     .cargo_metadata(false)
+    ///     .compile()
+    ///     .unwrap_err();
+    /// assert!(matches!(err, sinew::builder::BuildError::Spec { errors: 1, .. }));
+    /// std::fs::remove_dir_all(&dir)?;
+    /// # Ok::<(), Box<dyn std::error::Error>>(())
+    /// ```
     pub fn compile(&self) -> Result<Vec<PathBuf>, BuildError> {
         let out_dir = match &self.out_dir {
             Some(d) => d.clone(),

@@ -16,8 +16,9 @@
 //! | `20 + n * s` | 4 | checksum | CRC-32 of bytes `0 .. 20 + n * s`, `u32` little-endian |
 //!
 //! The whole blob is `24 + n * s` bytes ([`blob_bytes`]). The checksum is the CRC-32 of IEEE
-//! 802.3 ([`crc32`]), so every single-bit error, every burst of up to 32 bits and every odd
-//! number of flipped bits is detected.
+//! 802.3 ([`crc32`]), so every single-bit error and every burst of errors within 32 consecutive
+//! bits is detected. Not every odd number of flipped bits is: the generator has 15 terms, so it
+//! lacks the factor `x + 1`.
 //!
 //! [`Values::open`] checks a blob against what the model expects, in this order, and says which
 //! check failed ([`BlobError`]): the length holds at least a header and a checksum, the magic,

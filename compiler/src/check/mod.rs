@@ -34,6 +34,16 @@ pub struct Checked {
 
 impl Checked {
     /// True when any diagnostic is an error.
+    ///
+    /// # Examples
+    /// ```
+    /// let checked = sinew::check_source(
+    ///     "model demo\ninput x 0\noutput y 1 sigmoid\nloss cross_entropy\n",
+    /// );
+    /// assert!(checked.has_errors());
+    /// assert!(checked.model.is_none());
+    /// assert_eq!(checked.diagnostics[0].code, "S0401"); // a width of 0
+    /// ```
     pub fn has_errors(&self) -> bool {
         self.diagnostics.iter().any(Diagnostic::is_error)
     }

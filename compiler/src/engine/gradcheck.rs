@@ -25,7 +25,7 @@ pub struct LayerCheck {
     pub total: usize,
     /// Worst relative error.
     pub worst_relative_error: f64,
-    /// Where: "weights[j][i]" or "bias[j]".
+    /// Where: `"weights[j][i]"` or `"bias[j]"`.
     pub worst_at: String,
     /// Largest `|a - b|`.
     pub worst_absolute_error: f64,
