@@ -546,28 +546,41 @@ fn outer_tile<T: Real, const R: usize, const C: usize>(
     xs: &[T],
     (j, i, n, o): (usize, usize, usize, usize),
 ) {
+    // Every access is a checked range of `C` or `R` contiguous values at a computed offset, so
+    // the compiler sees fixed-size rows (no iterator state per row or sample to carry).
     let mut acc = [[T::ZERO; C]; R];
-    for (a, row) in acc.iter_mut().zip(pieces(rows, n)) {
-        for (v, g) in a.iter_mut().zip(row.iter().skip(i)) {
-            *v = *g;
+    for (r, a) in acc.iter_mut().enumerate() {
+        let at = r * n + i;
+        if let Some(Ok(g)) = rows.get(at..at + C).map(<&[T; C]>::try_from) {
+            *a = *g;
         }
     }
-    for (drow, xrow) in pieces(ds, o).zip(pieces(xs, n)) {
-        let (Some(dv), Some(xv)) = (drow.get(j..j + R), xrow.get(i..i + C)) else {
+    let samples = ds.len().checked_div(o).unwrap_or(0);
+    let samples = samples.min(xs.len().checked_div(n).unwrap_or(0));
+    for s in 0..samples {
+        let (Some(dv), Some(xv)) = (
+            ds.get(s * o + j..s * o + j + R),
+            xs.get(s * n + i..s * n + i + C),
+        ) else {
             continue;
         };
         let (Ok(dv), Ok(xv)) = (<&[T; R]>::try_from(dv), <&[T; C]>::try_from(xv)) else {
             continue;
         };
-        for (a, dj) in acc.iter_mut().zip(dv) {
-            for (v, xk) in a.iter_mut().zip(xv) {
-                *v += *dj * *xk;
+        // Columns outside, rows inside: the loop the compiler vectorises runs along the
+        // contiguous columns of each row. (Rows outside, it vectorised across the rows of the
+        // tile with gathers and scatters, at a fifth of the speed on AVX-512.) Each element still
+        // gets `acc + d * x`, one sample after the other.
+        for c in 0..C {
+            for r in 0..R {
+                acc[r][c] += dv[r] * xv[c];
             }
         }
     }
-    for (a, row) in acc.iter().zip(pieces_mut(rows, n)) {
-        for (v, g) in a.iter().zip(row.iter_mut().skip(i)) {
-            *g = *v;
+    for (r, a) in acc.iter().enumerate() {
+        let at = r * n + i;
+        if let Some(Ok(g)) = rows.get_mut(at..at + C).map(<&mut [T; C]>::try_from) {
+            *g = *a;
         }
     }
 }
