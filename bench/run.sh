@@ -93,3 +93,13 @@ fi
 
 env -u RUSTFLAGS cargo run --release --quiet -p sinew-bench --bin table -- "${args[@]}" --compile \
     | tee target/bench-table.md
+
+# Instructions per inference on the Cortex-M4F (QEMU), generated code against nalgebra, when the
+# target and QEMU are installed (`bash tests/device/run.sh --install`).
+if command -v qemu-system-arm >/dev/null && rustup target list --installed 2>/dev/null | grep -q thumbv7em-none-eabihf; then
+    echo >&2 "== Cortex-M4F instruction counts (bench/device)"
+    { echo; echo "### Cortex-M4F (QEMU mps2-an386), instructions per inference"; echo; bash bench/device/run.sh; } \
+        | tee -a target/bench-table.md
+else
+    echo "note: qemu-system-arm or the thumbv7em-none-eabihf target is missing: no Cortex-M4F counts" >&2
+fi
