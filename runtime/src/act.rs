@@ -76,7 +76,7 @@ pub fn sigmoid_grad<T: Real>(a: &[T], d: &mut [T]) {
     }
 }
 
-/// Hyperbolic tangent `g(z) = tanh z` (libm), in place.
+/// Hyperbolic tangent `g(z) = tanh z` ([`Real::tanh`]), in place.
 ///
 /// # Examples
 ///
@@ -201,9 +201,13 @@ pub fn softmax<T: Real>(v: &mut [T]) {
     for x in v.iter() {
         m = m.max(*x);
     }
-    let mut s = T::ZERO;
+    // The exponentials in a loop of their own (independent, so they run in SIMD lanes), then
+    // the sum in increasing index, as one loop doing both would add them.
     for x in v.iter_mut() {
         *x = (*x - m).exp();
+    }
+    let mut s = T::ZERO;
+    for x in v.iter() {
         s += *x;
     }
     for x in v.iter_mut() {

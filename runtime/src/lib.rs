@@ -65,6 +65,7 @@ pub mod act;
 pub mod blob;
 pub mod linalg;
 pub mod loss;
+pub mod math;
 pub mod optim;
 pub mod penalty;
 pub mod real;

@@ -110,6 +110,58 @@ fn rows4_lanes<T: Real>(r: [&[T]; ROWS], x: &[T], xt: &[T; LANES]) -> [[T; LANES
     [a0, a1, a2, a3]
 }
 
+/// Samples that [`affine_batch`] runs together against each group of [`ROWS`] rows: `ROWS x
+/// SAMPLES` independent accumulators per pass over the rows, and each weight load serves
+/// `SAMPLES` samples. (A speed choice only: every output gets the operations of [`row_lanes`].)
+const SAMPLES: usize = 3;
+
+/// The first `m` full chunks of `v` (fewer if it has fewer).
+#[inline(always)]
+fn chunks_upto<T>(v: &[T], m: usize) -> &[[T; LANES]] {
+    let c = v.as_chunks::<LANES>().0;
+    c.get(..m).unwrap_or(c)
+}
+
+/// [`row_lanes`] of `R` rows against `S` inputs: `acc[s][j]` receives exactly the operations of
+/// `row_lanes(r[j], x[s], &xt[s])`, in the same order. All rows and inputs have the same length
+/// (the fan-in); the chunks counted are those all of them have.
+#[inline(always)]
+fn tile_lanes<T: Real, const R: usize, const S: usize>(
+    r: [&[T]; R],
+    x: [&[T]; S],
+    xt: &[[T; LANES]; S],
+) -> [[[T; LANES]; R]; S] {
+    let mut acc = [[[T::ZERO; LANES]; R]; S];
+    let mut m = usize::MAX;
+    for v in r.iter().chain(x.iter()) {
+        m = m.min(v.as_chunks::<LANES>().0.len());
+    }
+    let wc = r.map(|v| chunks_upto(v, m));
+    let xc = x.map(|v| chunks_upto(v, m));
+    for k in 0..m {
+        for (a, xv) in acc.iter_mut().zip(&xc) {
+            for (aj, wv) in a.iter_mut().zip(&wc) {
+                if let (Some(wk), Some(xk)) = (wv.get(k), xv.get(k)) {
+                    lanes_mul_add(aj, wk, xk);
+                }
+            }
+        }
+    }
+    for (j, row) in r.iter().enumerate() {
+        let tail = row.as_chunks::<LANES>().1;
+        if tail.is_empty() {
+            continue;
+        }
+        let wt = padded(tail);
+        for (a, xts) in acc.iter_mut().zip(xt) {
+            if let Some(aj) = a.get_mut(j) {
+                lanes_mul_add(aj, &wt, xts);
+            }
+        }
+    }
+    acc
+}
+
 /// The consecutive pieces of `n` elements of `s` (a shorter tail is left out), as
 /// `s.chunks_exact(n)` gives them, but without its division: `chunks_exact` counts its pieces
 /// with `s.len() / n` and guards that division with a panic for `n = 0`, which stays in the
@@ -424,6 +476,8 @@ pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize)
     }
     let rows = (w.len() / n).min(o);
     let blocks = rows / ROWS;
+    let samples = (xs.len() / n).min(zs.len() / o);
+    let groups = samples / SAMPLES;
     for (jb, (wb, bb)) in pieces(w, ROWS * n)
         .zip(b.as_chunks::<ROWS>().0)
         .take(blocks)
@@ -433,7 +487,29 @@ pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize)
             continue;
         };
         let j = jb * ROWS;
-        for (x, z) in pieces(xs, n).zip(pieces_mut(zs, o)) {
+        // SAMPLES samples at a time, then the rest one by one.
+        for (xg, zg) in pieces(xs, SAMPLES * n)
+            .zip(pieces_mut(zs, SAMPLES * o))
+            .take(groups)
+        {
+            let mut xi = pieces(xg, n);
+            let x: [&[T]; SAMPLES] = core::array::from_fn(|_| xi.next().unwrap_or_default());
+            let xt = x.map(input_tail);
+            let acc = tile_lanes(r, x, &xt);
+            for (z, a) in pieces_mut(zg, o).zip(acc) {
+                let Some(zb) = z.get_mut(j..j + ROWS) else {
+                    continue;
+                };
+                for ((zj, bj), l) in zb.iter_mut().zip(bb).zip(a) {
+                    *zj = lane_sum(l) + *bj;
+                }
+            }
+        }
+        for (x, z) in pieces(xs, n)
+            .zip(pieces_mut(zs, o))
+            .take(samples)
+            .skip(groups * SAMPLES)
+        {
             let Some(zb) = z.get_mut(j..j + ROWS) else {
                 continue;
             };
@@ -867,7 +943,7 @@ mod tests {
     fn batch_sweep<T: Real>() {
         let mut rng = SplitMix64::new(23);
         for (n, o) in shapes() {
-            for m in [0, 1, 2, 3, 5, 9] {
+            for m in [0, 1, 2, 3, 4, 5, 7, 9] {
                 if n * o * m > 200_000 {
                     continue;
                 }

@@ -1,7 +1,8 @@
 //! The scalar trait every kernel is generic over, implemented for `f32` and `f64`.
 //!
-//! Every transcendental function goes through `libm`, on the host and on the device alike, so the
-//! same inputs give the same bits everywhere.
+//! Every transcendental function is portable Rust, on the host and on the device alike, so the
+//! same inputs give the same bits everywhere: `f32` `exp` and `tanh` are sinew's own branch-free
+//! functions ([`crate::math`], vectorisable across a layer), everything else is `libm`.
 
 use core::fmt::Debug;
 use core::ops::{Add, AddAssign, Div, DivAssign, Mul, MulAssign, Neg, Sub, SubAssign};
@@ -9,14 +10,14 @@ use core::ops::{Add, AddAssign, Div, DivAssign, Mul, MulAssign, Neg, Sub, SubAss
 /// A floating-point scalar: `f32` or `f64`.
 ///
 /// The arithmetic operators are the IEEE 754 ones of the primitive type (round to nearest, no fused
-/// multiply-add); the functions below call `libm`:
+/// multiply-add); the functions below call sinew's [`crate::math`] or `libm`:
 ///
 /// | method  | `f32`     | `f64`   |
 /// | ------- | --------- | ------- |
-/// | `exp`   | `expf`    | `exp`   |
+/// | `exp`   | [`crate::math::expf`] | `libm::exp` |
 /// | `ln`    | `logf`    | `log`   |
 /// | `ln_1p` | `log1pf`  | `log1p` |
-/// | `tanh`  | `tanhf`   | `tanh`  |
+/// | `tanh`  | [`crate::math::tanhf`] | `libm::tanh` |
 /// | `sqrt`  | `sqrtf`   | `sqrt`  |
 /// | `abs`   | `fabsf`   | `fabs`  |
 /// | `powi`  | `powf`    | `pow`   |
@@ -149,10 +150,10 @@ macro_rules! impl_real {
 
 impl_real!(
     f32,
-    libm::expf,
+    crate::math::expf,
     libm::logf,
     libm::log1pf,
-    libm::tanhf,
+    crate::math::tanhf,
     libm::sqrtf,
     libm::fabsf,
     libm::powf
