@@ -30,15 +30,37 @@ pub const LANES: usize = 8;
 /// change any result).
 const ROWS: usize = 4;
 
+/// Fan-in up to which [`affine`] folds the lanes inline ([`lane_fold`]) rather than by a call
+/// to [`lane_sum`]. Rows this short have no loop to vectorise (at most two chunks), so nothing is
+/// lost by inlining, and a call per output is the largest cost of a small layer. A speed choice
+/// only: both give the same bits.
+const INLINE_FOLD_BELOW: usize = 2 * LANES + 1;
+
 /// The lane sum of [`affine`]: `((l0 + l4) + (l2 + l6)) + ((l1 + l5) + (l3 + l7))` (halves folded
 /// onto each other, the shape of a SIMD horizontal sum).
+#[inline(always)]
+fn lane_fold<T: Real>(l: [T; LANES]) -> T {
+    let [l0, l1, l2, l3, l4, l5, l6, l7] = l;
+    ((l0 + l4) + (l2 + l6)) + ((l1 + l5) + (l3 + l7))
+}
+
+/// [`lane_fold`] behind a call, for long rows.
 ///
 /// Not inlined: inlined, the compiler vectorizes the sums of four rows together and then keeps
 /// the accumulators of the main loop transposed across rows, with a shuffle per product.
 #[inline(never)]
-fn lane_sum<T: Real>(l: [T; LANES]) -> T {
-    let [l0, l1, l2, l3, l4, l5, l6, l7] = l;
-    ((l0 + l4) + (l2 + l6)) + ((l1 + l5) + (l3 + l7))
+fn lane_sum_call<T: Real>(l: [T; LANES]) -> T {
+    lane_fold(l)
+}
+
+/// The lane sum of a row of `n` products: [`lane_fold`], inline for short rows.
+#[inline(always)]
+fn lane_sum<T: Real>(l: [T; LANES], n: usize) -> T {
+    if n < INLINE_FOLD_BELOW {
+        lane_fold(l)
+    } else {
+        lane_sum_call(l)
+    }
 }
 
 /// `acc_k += w_k * x_k` for the `LANES` lanes (one SIMD multiply and add per vector register).
@@ -113,53 +135,53 @@ fn rows4_lanes<T: Real>(r: [&[T]; ROWS], x: &[T], xt: &[T; LANES]) -> [[T; LANES
 /// Samples that [`affine_batch`] runs together against each group of [`ROWS`] rows: `ROWS x
 /// SAMPLES` independent accumulators per pass over the rows, and each weight load serves
 /// `SAMPLES` samples. (A speed choice only: every output gets the operations of [`row_lanes`].)
-const SAMPLES: usize = 3;
+const SAMPLES: usize = 2;
 
-/// The first `m` full chunks of `v` (fewer if it has fewer).
+/// [`row_lanes`] of four rows against two inputs: `acc[s][j]` receives exactly the operations of
+/// `row_lanes(r[j], x[s], &xt[s])`, in the same order (eight independent accumulators, and each
+/// weight load serves two samples). All rows and inputs have the same length, the fan-in.
 #[inline(always)]
-fn chunks_upto<T>(v: &[T], m: usize) -> &[[T; LANES]] {
-    let c = v.as_chunks::<LANES>().0;
-    c.get(..m).unwrap_or(c)
-}
-
-/// [`row_lanes`] of `R` rows against `S` inputs: `acc[s][j]` receives exactly the operations of
-/// `row_lanes(r[j], x[s], &xt[s])`, in the same order. All rows and inputs have the same length
-/// (the fan-in); the chunks counted are those all of them have.
-#[inline(always)]
-fn tile_lanes<T: Real, const R: usize, const S: usize>(
-    r: [&[T]; R],
-    x: [&[T]; S],
-    xt: &[[T; LANES]; S],
-) -> [[[T; LANES]; R]; S] {
-    let mut acc = [[[T::ZERO; LANES]; R]; S];
-    let mut m = usize::MAX;
-    for v in r.iter().chain(x.iter()) {
-        m = m.min(v.as_chunks::<LANES>().0.len());
+fn rows4_lanes_x2<T: Real>(
+    r: [&[T]; ROWS],
+    x: [&[T]; SAMPLES],
+    xt: &[[T; LANES]; SAMPLES],
+) -> [[[T; LANES]; ROWS]; SAMPLES] {
+    let z = [T::ZERO; LANES];
+    let [mut a00, mut a01, mut a02, mut a03] = [z; ROWS];
+    let [mut a10, mut a11, mut a12, mut a13] = [z; ROWS];
+    let [r0, r1, r2, r3] = r;
+    let ((c0, t0), (c1, t1), (c2, t2), (c3, t3)) = (
+        r0.as_chunks::<LANES>(),
+        r1.as_chunks::<LANES>(),
+        r2.as_chunks::<LANES>(),
+        r3.as_chunks::<LANES>(),
+    );
+    let [x0, x1] = x;
+    let (x0, x1) = (x0.as_chunks::<LANES>().0, x1.as_chunks::<LANES>().0);
+    let weights = c0.iter().zip(c1).zip(c2).zip(c3);
+    for ((((w0, w1), w2), w3), (u0, u1)) in weights.zip(x0.iter().zip(x1)) {
+        lanes_mul_add(&mut a00, w0, u0);
+        lanes_mul_add(&mut a01, w1, u0);
+        lanes_mul_add(&mut a02, w2, u0);
+        lanes_mul_add(&mut a03, w3, u0);
+        lanes_mul_add(&mut a10, w0, u1);
+        lanes_mul_add(&mut a11, w1, u1);
+        lanes_mul_add(&mut a12, w2, u1);
+        lanes_mul_add(&mut a13, w3, u1);
     }
-    let wc = r.map(|v| chunks_upto(v, m));
-    let xc = x.map(|v| chunks_upto(v, m));
-    for k in 0..m {
-        for (a, xv) in acc.iter_mut().zip(&xc) {
-            for (aj, wv) in a.iter_mut().zip(&wc) {
-                if let (Some(wk), Some(xk)) = (wv.get(k), xv.get(k)) {
-                    lanes_mul_add(aj, wk, xk);
-                }
-            }
-        }
+    if !t0.is_empty() {
+        let [v0, v1] = xt;
+        let (p0, p1, p2, p3) = (padded(t0), padded(t1), padded(t2), padded(t3));
+        lanes_mul_add(&mut a00, &p0, v0);
+        lanes_mul_add(&mut a01, &p1, v0);
+        lanes_mul_add(&mut a02, &p2, v0);
+        lanes_mul_add(&mut a03, &p3, v0);
+        lanes_mul_add(&mut a10, &p0, v1);
+        lanes_mul_add(&mut a11, &p1, v1);
+        lanes_mul_add(&mut a12, &p2, v1);
+        lanes_mul_add(&mut a13, &p3, v1);
     }
-    for (j, row) in r.iter().enumerate() {
-        let tail = row.as_chunks::<LANES>().1;
-        if tail.is_empty() {
-            continue;
-        }
-        let wt = padded(tail);
-        for (a, xts) in acc.iter_mut().zip(xt) {
-            if let Some(aj) = a.get_mut(j) {
-                lanes_mul_add(aj, &wt, xts);
-            }
-        }
-    }
-    acc
+    [[a00, a01, a02, a03], [a10, a11, a12, a13]]
 }
 
 /// The consecutive pieces of `n` elements of `s` (a shorter tail is left out), as
@@ -243,11 +265,11 @@ pub fn affine<T: Real>(w: &[T], b: &[T], x: &[T], z: &mut [T]) {
             continue;
         };
         for ((zj, bj), l) in zb.iter_mut().zip(bb).zip(rows4_lanes(rows, x, &xt)) {
-            *zj = lane_sum(l) + *bj;
+            *zj = lane_sum(l, n) + *bj;
         }
     }
     for ((row, bj), zj) in pieces(w, n).zip(b).zip(z.iter_mut()).skip(blocks * ROWS) {
-        *zj = lane_sum(row_lanes(row, x, &xt)) + *bj;
+        *zj = lane_sum(row_lanes(row, x, &xt), n) + *bj;
     }
 }
 
@@ -495,13 +517,13 @@ pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize)
             let mut xi = pieces(xg, n);
             let x: [&[T]; SAMPLES] = core::array::from_fn(|_| xi.next().unwrap_or_default());
             let xt = x.map(input_tail);
-            let acc = tile_lanes(r, x, &xt);
+            let acc = rows4_lanes_x2(r, x, &xt);
             for (z, a) in pieces_mut(zg, o).zip(acc) {
                 let Some(zb) = z.get_mut(j..j + ROWS) else {
                     continue;
                 };
                 for ((zj, bj), l) in zb.iter_mut().zip(bb).zip(a) {
-                    *zj = lane_sum(l) + *bj;
+                    *zj = lane_sum(l, n) + *bj;
                 }
             }
         }
@@ -514,7 +536,7 @@ pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize)
                 continue;
             };
             for ((zj, bj), l) in zb.iter_mut().zip(bb).zip(rows4_lanes(r, x, &input_tail(x))) {
-                *zj = lane_sum(l) + *bj;
+                *zj = lane_sum(l, n) + *bj;
             }
         }
     }
@@ -526,7 +548,7 @@ pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize)
     {
         for (x, z) in pieces(xs, n).zip(pieces_mut(zs, o)) {
             if let Some(zj) = z.get_mut(j) {
-                *zj = lane_sum(row_lanes(row, x, &input_tail(x))) + *bj;
+                *zj = lane_sum(row_lanes(row, x, &input_tail(x)), n) + *bj;
             }
         }
     }
