@@ -30,10 +30,12 @@ pub const LANES: usize = 8;
 /// change any result).
 const ROWS: usize = 4;
 
-/// Fan-in up to which [`affine`] folds the lanes inline ([`lane_fold`]) rather than by a call
-/// to [`lane_sum`]. Rows this short have no loop to vectorise (at most two chunks), so nothing is
-/// lost by inlining, and a call per output is the largest cost of a small layer. A speed choice
-/// only: both give the same bits.
+/// Fan-in below which the array forms ([`affine_n`], [`affine_batch_n`]) fold the lanes inline
+/// ([`lane_fold`]) rather than by a call to [`lane_sum_call`]. Rows this short have no loop to
+/// vectorise (at most two chunks), and a call per output is the largest cost of a small layer.
+/// The slice forms (run-time fan-in, the engine's) always call: there both paths would share a
+/// function, and the inlined fold leads the compiler to transpose the accumulators of the long
+/// path. A speed choice only: both give the same bits.
 const INLINE_FOLD_BELOW: usize = 2 * LANES + 1;
 
 /// The lane sum of [`affine`]: `((l0 + l4) + (l2 + l6)) + ((l1 + l5) + (l3 + l7))` (halves folded
@@ -53,10 +55,10 @@ fn lane_sum_call<T: Real>(l: [T; LANES]) -> T {
     lane_fold(l)
 }
 
-/// The lane sum of a row of `n` products: [`lane_fold`], inline for short rows.
+/// The lane sum of a row: [`lane_fold`], inline when `INLINE` (short rows of constant length).
 #[inline(always)]
-fn lane_sum<T: Real>(l: [T; LANES], n: usize) -> T {
-    if n < INLINE_FOLD_BELOW {
+fn lane_sum<T: Real, const INLINE: bool>(l: [T; LANES]) -> T {
+    if INLINE {
         lane_fold(l)
     } else {
         lane_sum_call(l)
@@ -130,6 +132,59 @@ fn rows4_lanes<T: Real>(r: [&[T]; ROWS], x: &[T], xt: &[T; LANES]) -> [[T; LANES
         lanes_mul_add(&mut a3, &padded(t3), xt);
     }
     [a0, a1, a2, a3]
+}
+
+/// Rows of `W` that [`affine`] runs together on one input (eight independent accumulators; one
+/// load of `x` serves eight rows). A speed choice only.
+const WIDE_ROWS: usize = 8;
+
+/// [`row_lanes`] of eight rows against the same `x`: each row gets exactly the operations of
+/// [`row_lanes`].
+#[inline(always)]
+fn rows8_lanes<T: Real>(
+    r: [&[T]; WIDE_ROWS],
+    x: &[T],
+    xt: &[T; LANES],
+) -> [[T; LANES]; WIDE_ROWS] {
+    let z = [T::ZERO; LANES];
+    let [mut a0, mut a1, mut a2, mut a3, mut a4, mut a5, mut a6, mut a7] = [z; WIDE_ROWS];
+    let [r0, r1, r2, r3, r4, r5, r6, r7] = r;
+    let ((c0, t0), (c1, t1), (c2, t2), (c3, t3)) = (
+        r0.as_chunks::<LANES>(),
+        r1.as_chunks::<LANES>(),
+        r2.as_chunks::<LANES>(),
+        r3.as_chunks::<LANES>(),
+    );
+    let ((c4, t4), (c5, t5), (c6, t6), (c7, t7)) = (
+        r4.as_chunks::<LANES>(),
+        r5.as_chunks::<LANES>(),
+        r6.as_chunks::<LANES>(),
+        r7.as_chunks::<LANES>(),
+    );
+    let low = c0.iter().zip(c1).zip(c2).zip(c3);
+    let high = c4.iter().zip(c5).zip(c6).zip(c7);
+    let xc = x.as_chunks::<LANES>().0;
+    for ((xk, (((w0, w1), w2), w3)), (((w4, w5), w6), w7)) in xc.iter().zip(low).zip(high) {
+        lanes_mul_add(&mut a0, w0, xk);
+        lanes_mul_add(&mut a1, w1, xk);
+        lanes_mul_add(&mut a2, w2, xk);
+        lanes_mul_add(&mut a3, w3, xk);
+        lanes_mul_add(&mut a4, w4, xk);
+        lanes_mul_add(&mut a5, w5, xk);
+        lanes_mul_add(&mut a6, w6, xk);
+        lanes_mul_add(&mut a7, w7, xk);
+    }
+    if !t0.is_empty() {
+        lanes_mul_add(&mut a0, &padded(t0), xt);
+        lanes_mul_add(&mut a1, &padded(t1), xt);
+        lanes_mul_add(&mut a2, &padded(t2), xt);
+        lanes_mul_add(&mut a3, &padded(t3), xt);
+        lanes_mul_add(&mut a4, &padded(t4), xt);
+        lanes_mul_add(&mut a5, &padded(t5), xt);
+        lanes_mul_add(&mut a6, &padded(t6), xt);
+        lanes_mul_add(&mut a7, &padded(t7), xt);
+    }
+    [a0, a1, a2, a3, a4, a5, a6, a7]
 }
 
 /// Samples that [`affine_batch`] runs together against each group of [`ROWS`] rows: `ROWS x
@@ -247,6 +302,12 @@ fn input_tail<T: Real>(x: &[T]) -> [T; LANES] {
 /// ```
 #[inline(always)]
 pub fn affine<T: Real>(w: &[T], b: &[T], x: &[T], z: &mut [T]) {
+    affine_with::<T, false>(w, b, x, z);
+}
+
+/// [`affine`], with the lane sums inline when `INLINE`.
+#[inline(always)]
+fn affine_with<T: Real, const INLINE: bool>(w: &[T], b: &[T], x: &[T], z: &mut [T]) {
     let n = x.len();
     if n == 0 {
         for (zj, bj) in z.iter_mut().zip(b) {
@@ -255,27 +316,49 @@ pub fn affine<T: Real>(w: &[T], b: &[T], x: &[T], z: &mut [T]) {
         return;
     }
     let xt = input_tail(x);
-    let blocks = (w.len() / n).min(b.len()).min(z.len()) / ROWS;
-    for ((wb, bb), zb) in pieces(w, ROWS * n)
-        .zip(b.as_chunks::<ROWS>().0)
-        .zip(z.as_chunks_mut::<ROWS>().0)
-        .take(blocks)
+    let rows = (w.len() / n).min(b.len()).min(z.len());
+    // Blocks of eight rows, then at most one of four, then single rows.
+    let wide = rows / WIDE_ROWS;
+    for ((wb, bb), zb) in pieces(w, WIDE_ROWS * n)
+        .zip(b.as_chunks::<WIDE_ROWS>().0)
+        .zip(z.as_chunks_mut::<WIDE_ROWS>().0)
+        .take(wide)
+    {
+        let mut it = pieces(wb, n);
+        let r: [&[T]; WIDE_ROWS] = core::array::from_fn(|_| it.next().unwrap_or_default());
+        for ((zj, bj), l) in zb.iter_mut().zip(bb).zip(rows8_lanes(r, x, &xt)) {
+            *zj = lane_sum::<T, INLINE>(l) + *bj;
+        }
+    }
+    let done = wide * WIDE_ROWS;
+    let four = (rows - done) / ROWS;
+    let (w4, b4, z4) = (
+        w.get(done * n..).unwrap_or_default(),
+        b.get(done..).unwrap_or_default(),
+        z.get_mut(done..).unwrap_or_default(),
+    );
+    for ((wb, bb), zb) in pieces(w4, ROWS * n)
+        .zip(b4.as_chunks::<ROWS>().0)
+        .zip(z4.as_chunks_mut::<ROWS>().0)
+        .take(four)
     {
         let Some(rows) = four_rows(wb, n) else {
             continue;
         };
         for ((zj, bj), l) in zb.iter_mut().zip(bb).zip(rows4_lanes(rows, x, &xt)) {
-            *zj = lane_sum(l, n) + *bj;
+            *zj = lane_sum::<T, INLINE>(l) + *bj;
         }
     }
-    for ((row, bj), zj) in pieces(w, n).zip(b).zip(z.iter_mut()).skip(blocks * ROWS) {
-        *zj = lane_sum(row_lanes(row, x, &xt), n) + *bj;
+    let done = done + four * ROWS;
+    for ((row, bj), zj) in pieces(w, n).zip(b).zip(z.iter_mut()).take(rows).skip(done) {
+        *zj = lane_sum::<T, INLINE>(row_lanes(row, x, &xt)) + *bj;
     }
 }
 
 /// Array form of [`affine`]: `z = W x + b` for `W` of `O` rows and `I` columns.
 ///
-/// Calls `affine(w.as_flattened(), b, x, z)`: same operations, same order, same bits.
+/// Runs the kernel of `affine(w.as_flattened(), b, x, z)` (with the lane folds inline for fewer
+/// than 17 inputs): same operations, same order, same bits.
 ///
 /// # Examples
 ///
@@ -292,7 +375,11 @@ pub fn affine_n<T: Real, const I: usize, const O: usize>(
     x: &[T; I],
     z: &mut [T; O],
 ) {
-    affine(w.as_flattened(), b, x, z);
+    if I < INLINE_FOLD_BELOW {
+        affine_with::<T, true>(w.as_flattened(), b, x, z);
+    } else {
+        affine_with::<T, false>(w.as_flattened(), b, x, z);
+    }
 }
 
 /// Transposed matrix-vector product (the error sent back through a layer):
@@ -331,7 +418,21 @@ pub fn back<T: Real>(w: &[T], d: &[T], out: &mut [T]) {
         let (Some([r0, r1, r2, r3]), [d0, d1, d2, d3]) = (four_rows(wb, n), db) else {
             continue;
         };
-        for ((((o, w0), w1), w2), w3) in out.iter_mut().zip(r0).zip(r1).zip(r2).zip(r3) {
+        // Whole chunks of `LANES` columns as fixed arrays (the compiler vectorises those; over
+        // the zip of five slices it kept one column at a time), then the tail.
+        let (oc, ot) = out.as_chunks_mut::<LANES>();
+        let ((c0, t0), (c1, t1), (c2, t2), (c3, t3)) = (
+            r0.as_chunks::<LANES>(),
+            r1.as_chunks::<LANES>(),
+            r2.as_chunks::<LANES>(),
+            r3.as_chunks::<LANES>(),
+        );
+        for ((((o, w0), w1), w2), w3) in oc.iter_mut().zip(c0).zip(c1).zip(c2).zip(c3) {
+            for k in 0..LANES {
+                o[k] = (((o[k] + w0[k] * *d0) + w1[k] * *d1) + w2[k] * *d2) + w3[k] * *d3;
+            }
+        }
+        for ((((o, w0), w1), w2), w3) in ot.iter_mut().zip(t0).zip(t1).zip(t2).zip(t3) {
             *o = (((*o + *w0 * *d0) + *w1 * *d1) + *w2 * *d2) + *w3 * *d3;
         }
     }
@@ -486,13 +587,25 @@ pub fn standardize_n<T: Real, const N: usize>(
 /// ```
 #[inline(always)]
 pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize) {
+    affine_batch_with::<T, false>(w, b, xs, zs, n);
+}
+
+/// [`affine_batch`], with the lane sums inline when `INLINE`.
+#[inline(always)]
+fn affine_batch_with<T: Real, const INLINE: bool>(
+    w: &[T],
+    b: &[T],
+    xs: &[T],
+    zs: &mut [T],
+    n: usize,
+) {
     let o = b.len();
     if o == 0 {
         return;
     }
     if n == 0 {
         for z in pieces_mut(zs, o) {
-            affine(w, b, &[], z);
+            affine_with::<T, INLINE>(w, b, &[], z);
         }
         return;
     }
@@ -523,7 +636,7 @@ pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize)
                     continue;
                 };
                 for ((zj, bj), l) in zb.iter_mut().zip(bb).zip(a) {
-                    *zj = lane_sum(l, n) + *bj;
+                    *zj = lane_sum::<T, INLINE>(l) + *bj;
                 }
             }
         }
@@ -536,7 +649,7 @@ pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize)
                 continue;
             };
             for ((zj, bj), l) in zb.iter_mut().zip(bb).zip(rows4_lanes(r, x, &input_tail(x))) {
-                *zj = lane_sum(l, n) + *bj;
+                *zj = lane_sum::<T, INLINE>(l) + *bj;
             }
         }
     }
@@ -548,7 +661,7 @@ pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize)
     {
         for (x, z) in pieces(xs, n).zip(pieces_mut(zs, o)) {
             if let Some(zj) = z.get_mut(j) {
-                *zj = lane_sum(row_lanes(row, x, &input_tail(x)), n) + *bj;
+                *zj = lane_sum::<T, INLINE>(row_lanes(row, x, &input_tail(x))) + *bj;
             }
         }
     }
@@ -556,7 +669,8 @@ pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize)
 
 /// Array form of [`affine_batch`]: `zs[s] = W xs[s] + b` for every pair of `xs` and `zs`.
 ///
-/// Calls `affine_batch(w.as_flattened(), b, xs.as_flattened(), zs.as_flattened_mut(), I)`.
+/// Runs the kernel of `affine_batch(w.as_flattened(), b, xs.as_flattened(), zs.as_flattened_mut(),
+/// I)` (lane folds inline for fewer than 17 inputs): same operations, same bits.
 ///
 /// # Examples
 ///
@@ -573,13 +687,12 @@ pub fn affine_batch_n<T: Real, const I: usize, const O: usize>(
     xs: &[[T; I]],
     zs: &mut [[T; O]],
 ) {
-    affine_batch(
-        w.as_flattened(),
-        b,
-        xs.as_flattened(),
-        zs.as_flattened_mut(),
-        I,
-    );
+    let (w, xs, zs) = (w.as_flattened(), xs.as_flattened(), zs.as_flattened_mut());
+    if I < INLINE_FOLD_BELOW {
+        affine_batch_with::<T, true>(w, b, xs, zs, I);
+    } else {
+        affine_batch_with::<T, false>(w, b, xs, zs, I);
+    }
 }
 
 /// Batch form of [`back`]: for every sample `s`, `out_s = W^T d_s`, bit for bit the result of
@@ -856,6 +969,8 @@ mod tests {
             }
         }
         s.extend([(784, 128), (128, 64), (64, 10), (1, 300), (300, 1)]);
+        // Widths that end in a block of four and in single rows after the blocks of eight.
+        s.extend([(5, 12), (3, 15), (17, 13), (24, 20)]);
         s
     }
 
@@ -1196,6 +1311,12 @@ mod tests {
         array_equals_slice::<9, 9>(3);
         array_equals_slice::<784, 128>(4);
         array_equals_slice::<64, 10>(5);
+        // Inline lane folds (fewer than 17 inputs) and the blocks of eight, four and one rows.
+        array_equals_slice::<6, 10>(6);
+        array_equals_slice::<10, 8>(7);
+        array_equals_slice::<16, 13>(8);
+        array_equals_slice::<17, 12>(9);
+        array_equals_slice::<8, 3>(10);
     }
 
     #[test]
