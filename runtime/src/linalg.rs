@@ -134,59 +134,6 @@ fn rows4_lanes<T: Real>(r: [&[T]; ROWS], x: &[T], xt: &[T; LANES]) -> [[T; LANES
     [a0, a1, a2, a3]
 }
 
-/// Rows of `W` that [`affine`] runs together on one input (eight independent accumulators; one
-/// load of `x` serves eight rows). A speed choice only.
-const WIDE_ROWS: usize = 8;
-
-/// [`row_lanes`] of eight rows against the same `x`: each row gets exactly the operations of
-/// [`row_lanes`].
-#[inline(always)]
-fn rows8_lanes<T: Real>(
-    r: [&[T]; WIDE_ROWS],
-    x: &[T],
-    xt: &[T; LANES],
-) -> [[T; LANES]; WIDE_ROWS] {
-    let z = [T::ZERO; LANES];
-    let [mut a0, mut a1, mut a2, mut a3, mut a4, mut a5, mut a6, mut a7] = [z; WIDE_ROWS];
-    let [r0, r1, r2, r3, r4, r5, r6, r7] = r;
-    let ((c0, t0), (c1, t1), (c2, t2), (c3, t3)) = (
-        r0.as_chunks::<LANES>(),
-        r1.as_chunks::<LANES>(),
-        r2.as_chunks::<LANES>(),
-        r3.as_chunks::<LANES>(),
-    );
-    let ((c4, t4), (c5, t5), (c6, t6), (c7, t7)) = (
-        r4.as_chunks::<LANES>(),
-        r5.as_chunks::<LANES>(),
-        r6.as_chunks::<LANES>(),
-        r7.as_chunks::<LANES>(),
-    );
-    let low = c0.iter().zip(c1).zip(c2).zip(c3);
-    let high = c4.iter().zip(c5).zip(c6).zip(c7);
-    let xc = x.as_chunks::<LANES>().0;
-    for ((xk, (((w0, w1), w2), w3)), (((w4, w5), w6), w7)) in xc.iter().zip(low).zip(high) {
-        lanes_mul_add(&mut a0, w0, xk);
-        lanes_mul_add(&mut a1, w1, xk);
-        lanes_mul_add(&mut a2, w2, xk);
-        lanes_mul_add(&mut a3, w3, xk);
-        lanes_mul_add(&mut a4, w4, xk);
-        lanes_mul_add(&mut a5, w5, xk);
-        lanes_mul_add(&mut a6, w6, xk);
-        lanes_mul_add(&mut a7, w7, xk);
-    }
-    if !t0.is_empty() {
-        lanes_mul_add(&mut a0, &padded(t0), xt);
-        lanes_mul_add(&mut a1, &padded(t1), xt);
-        lanes_mul_add(&mut a2, &padded(t2), xt);
-        lanes_mul_add(&mut a3, &padded(t3), xt);
-        lanes_mul_add(&mut a4, &padded(t4), xt);
-        lanes_mul_add(&mut a5, &padded(t5), xt);
-        lanes_mul_add(&mut a6, &padded(t6), xt);
-        lanes_mul_add(&mut a7, &padded(t7), xt);
-    }
-    [a0, a1, a2, a3, a4, a5, a6, a7]
-}
-
 /// Samples that [`affine_batch`] runs together against each group of [`ROWS`] rows: `ROWS x
 /// SAMPLES` independent accumulators per pass over the rows, and each weight load serves
 /// `SAMPLES` samples. (A speed choice only: every output gets the operations of [`row_lanes`].)
@@ -316,31 +263,11 @@ fn affine_with<T: Real, const INLINE: bool>(w: &[T], b: &[T], x: &[T], z: &mut [
         return;
     }
     let xt = input_tail(x);
-    let rows = (w.len() / n).min(b.len()).min(z.len());
-    // Blocks of eight rows, then at most one of four, then single rows.
-    let wide = rows / WIDE_ROWS;
-    for ((wb, bb), zb) in pieces(w, WIDE_ROWS * n)
-        .zip(b.as_chunks::<WIDE_ROWS>().0)
-        .zip(z.as_chunks_mut::<WIDE_ROWS>().0)
-        .take(wide)
-    {
-        let mut it = pieces(wb, n);
-        let r: [&[T]; WIDE_ROWS] = core::array::from_fn(|_| it.next().unwrap_or_default());
-        for ((zj, bj), l) in zb.iter_mut().zip(bb).zip(rows8_lanes(r, x, &xt)) {
-            *zj = lane_sum::<T, INLINE>(l) + *bj;
-        }
-    }
-    let done = wide * WIDE_ROWS;
-    let four = (rows - done) / ROWS;
-    let (w4, b4, z4) = (
-        w.get(done * n..).unwrap_or_default(),
-        b.get(done..).unwrap_or_default(),
-        z.get_mut(done..).unwrap_or_default(),
-    );
-    for ((wb, bb), zb) in pieces(w4, ROWS * n)
-        .zip(b4.as_chunks::<ROWS>().0)
-        .zip(z4.as_chunks_mut::<ROWS>().0)
-        .take(four)
+    let blocks = (w.len() / n).min(b.len()).min(z.len()) / ROWS;
+    for ((wb, bb), zb) in pieces(w, ROWS * n)
+        .zip(b.as_chunks::<ROWS>().0)
+        .zip(z.as_chunks_mut::<ROWS>().0)
+        .take(blocks)
     {
         let Some(rows) = four_rows(wb, n) else {
             continue;
@@ -349,8 +276,7 @@ fn affine_with<T: Real, const INLINE: bool>(w: &[T], b: &[T], x: &[T], z: &mut [
             *zj = lane_sum::<T, INLINE>(l) + *bj;
         }
     }
-    let done = done + four * ROWS;
-    for ((row, bj), zj) in pieces(w, n).zip(b).zip(z.iter_mut()).take(rows).skip(done) {
+    for ((row, bj), zj) in pieces(w, n).zip(b).zip(z.iter_mut()).skip(blocks * ROWS) {
         *zj = lane_sum::<T, INLINE>(row_lanes(row, x, &xt)) + *bj;
     }
 }
@@ -805,6 +731,15 @@ fn outer_rows<T: Real, const R: usize>(
     (j, n, o): (usize, usize, usize),
 ) {
     let mut i = 0;
+    // Tiles of 32 columns where vector registers hold 16 lanes (eight accumulators in flight, as
+    // the 16-column tiles give 256-bit registers); a speed choice only, the additions per element
+    // are the same.
+    if cfg!(target_feature = "avx512f") {
+        while i + 32 <= n {
+            outer_tile::<T, R, 32>(rows, ds, xs, (j, i, n, o));
+            i += 32;
+        }
+    }
     while i + 16 <= n {
         outer_tile::<T, R, 16>(rows, ds, xs, (j, i, n, o));
         i += 16;
@@ -969,7 +904,7 @@ mod tests {
             }
         }
         s.extend([(784, 128), (128, 64), (64, 10), (1, 300), (300, 1)]);
-        // Widths that end in a block of four and in single rows after the blocks of eight.
+        // More widths with single rows after the blocks of four.
         s.extend([(5, 12), (3, 15), (17, 13), (24, 20)]);
         s
     }
@@ -1311,7 +1246,7 @@ mod tests {
         array_equals_slice::<9, 9>(3);
         array_equals_slice::<784, 128>(4);
         array_equals_slice::<64, 10>(5);
-        // Inline lane folds (fewer than 17 inputs) and the blocks of eight, four and one rows.
+        // Inline lane folds (fewer than 17 inputs), blocks of four rows and single rows.
         array_equals_slice::<6, 10>(6);
         array_equals_slice::<10, 8>(7);
         array_equals_slice::<16, 13>(8);
