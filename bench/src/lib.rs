@@ -5,7 +5,7 @@
 //! - (a) [`generated`]: the code `bench/build.rs` generates from `bench/specs/` through the public
 //!   build API ([`unrolled`] holds N1 and N2 again with every matrix kernel unrolled);
 //! - (b) [`nalg`]: the same network hand-written with nalgebra's static matrices (`SMatrix`),
-//!   with std's `exp`/`tanh` ([`nalg::StdMath`]) or libm's ([`nalg::LibmMath`], sinew's functions);
+//!   with std's `exp`/`tanh` ([`nalg::StdMath`]) or libm's ([`nalg::LibmMath`], what a `no_std` engineer calls);
 //! - (c) [`plain`]: hand-written `Vec<f32>` loops;
 //! - (d) the sinew host engine (`sinew::engine`).
 //!

@@ -34,7 +34,8 @@ impl Math for StdMath {
     }
 }
 
-/// libm's functions: what a `no_std` engineer writes, and what sinew calls.
+/// libm's functions: what a `no_std` engineer writes (sinew's runtime has its own `f32` `exp` and
+/// `tanh`, and calls libm for the rest).
 #[derive(Debug, Clone, Copy)]
 pub struct LibmMath;
 impl Math for LibmMath {

@@ -1,7 +1,7 @@
 //! (b) N1 and N2 hand-written with nalgebra's static matrices, `no_std`: the forms of
 //! `bench/src/nalg.rs` (`W a + b`, `map` for the activation, softmax from the maximum) with
-//! libm's functions, the ones sinew's runtime calls. The matrices are held by value: there is no
-//! heap on the board.
+//! libm's functions, what a `no_std` engineer calls (sinew's runtime has its own f32 `exp` and
+//! `tanh`). The matrices are held by value: there is no heap on the board.
 
 use nalgebra::{SMatrix, SVector};
 
