@@ -59,6 +59,15 @@ trap 'rm -f "$log" "$out"' EXIT
 
 table="| network | opt-level | (a) sinew | (b) nalgebra | (a)/(b) |
 | --- | :---: | ---: | ---: | ---: |"
+# One guest instruction per translation block: `-accel tcg,one-insn-per-tb=on` from QEMU 8.1 on,
+# `-singlestep` before (Debian 12 ships 7.2).
+qemu_version="$(qemu-system-arm --version | sed -n 's/.*version \([0-9]*\)\.\([0-9]*\).*/\1 \2/p' | head -1)"
+read -r qmajor qminor <<<"${qemu_version:-0 0}"
+if [ "$qmajor" -gt 8 ] || { [ "$qmajor" -eq 8 ] && [ "$qminor" -ge 1 ]; }; then
+    one_insn=(-accel tcg,one-insn-per-tb=on)
+else
+    one_insn=(-singlestep)
+fi
 for profile in "${profiles[@]}"; do
     cargo build --quiet --profile "$profile" --target "$TARGET"
     elf="$CARGO_TARGET_DIR/$TARGET/$profile/count"
@@ -70,7 +79,7 @@ for profile in "${profiles[@]}"; do
 
     timeout 300 qemu-system-arm -M mps2-an386 -nographic -monitor none \
         -semihosting-config enable=on,target=native \
-        -accel tcg,one-insn-per-tb=on -d exec,nochain -D "$log" \
+        "${one_insn[@]}" -d exec,nochain -D "$log" \
         -kernel "$elf" >"$out" || { echo "the firmware failed:" >&2; cat "$out" >&2; exit 1; }
     lines="$(tr -d '\r' <"$out" | grep '^out ' || true)"
     printf '%s\n' "$lines" >"$out"

@@ -263,6 +263,12 @@ fn emulate(board: &Board, elf: &Path, extra: &[&str]) -> Result<(Option<i32>, St
     if code.is_none() {
         return Err(format!("{} was killed: {err}", board.qemu));
     }
+    // QEMU's own complaints (an option it does not know) are on stderr: keep them with the output.
+    let out = if code != Some(0) && !err.trim().is_empty() {
+        format!("{out}{err}")
+    } else {
+        out
+    };
     Ok((code, out.replace('\r', "")))
 }
 
@@ -657,6 +663,29 @@ struct Counts {
     step: u64,
 }
 
+/// The QEMU options for one guest instruction per translation block: `-accel
+/// tcg,one-insn-per-tb=on` from QEMU 8.1 on, `-singlestep` before (Debian 12 ships 7.2).
+fn one_insn_per_block(qemu: &str) -> Vec<&'static str> {
+    let version = Command::new(qemu)
+        .arg("--version")
+        .output()
+        .map(|o| String::from_utf8_lossy(&o.stdout).into_owned())
+        .unwrap_or_default();
+    // "QEMU emulator version 7.2.22 (...)"
+    let mut numbers = version
+        .split("version ")
+        .nth(1)
+        .unwrap_or("")
+        .split(|c: char| !c.is_ascii_digit())
+        .map(|n| n.parse::<u32>().unwrap_or(0));
+    let (major, minor) = (numbers.next().unwrap_or(0), numbers.next().unwrap_or(0));
+    if (major, minor) >= (8, 1) {
+        vec!["-accel", "tcg,one-insn-per-tb=on"]
+    } else {
+        vec!["-singlestep"]
+    }
+}
+
 fn count_instructions(board: &Board, elf: &Path, img: &Image) -> Result<Counts, String> {
     let mark = |name: &str| -> Result<u64, String> {
         img.function(&format!("count::{name}"))
@@ -674,18 +703,9 @@ fn count_instructions(board: &Board, elf: &Path, img: &Image) -> Result<Counts, 
         board.target
     ));
     let log_s = log.to_string_lossy().into_owned();
-    let (code, out) = emulate(
-        board,
-        elf,
-        &[
-            "-accel",
-            "tcg,one-insn-per-tb=on",
-            "-d",
-            "exec,nochain",
-            "-D",
-            &log_s,
-        ],
-    )?;
+    let mut args = one_insn_per_block(board.qemu);
+    args.extend(["-d", "exec,nochain", "-D", &log_s]);
+    let (code, out) = emulate(board, elf, &args)?;
     if code != Some(0) {
         return Err(format!("the count image failed ({code:?}):\n{out}"));
     }
