@@ -39,7 +39,11 @@ const EXP_LO: f32 = -104.0;
 #[inline(always)]
 fn clamp_exp_arg(x: f32) -> f32 {
     let x = if x > EXP_HI { EXP_HI } else { x };
-    if x < EXP_LO { EXP_LO } else { x }
+    if x < EXP_LO {
+        EXP_LO
+    } else {
+        x
+    }
 }
 
 /// `2^k` for `-126 <= k <= 127` from its exponent bits (any other `k` gives some finite power or
