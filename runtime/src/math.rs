@@ -23,7 +23,7 @@
 //! see the difference, and the goldens of the f64 path are untouched: f64 still uses libm.)
 
 /// `ln 2` rounded to 9 significant bits (355 / 512), so that `n * LN2_HI` is exact for `|n| < 2^15`.
-const LN2_HI: f32 = 0.693_359_375;
+const LN2_HI: f32 = 355.0 / 512.0;
 /// `ln 2 - LN2_HI`.
 const LN2_LO: f32 = -2.121_944_4e-4;
 /// `1 / ln 2`.

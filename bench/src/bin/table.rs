@@ -394,7 +394,7 @@ fn main() {
         if numpy.is_some() { ", numpy with its BLAS limited to one thread" } else { "" }
     );
     println!(
-        "Peak assumed: f32 FMA lanes x 2 flops x 2 FMA ports x measured clock: AVX2 (8 lanes) = {:.0} GFLOP/s for the `default` and `v3` builds, AVX-512 (16 lanes) = {:.0} GFLOP/s for `native` when the CPU has it. sinew does not fuse multiply-adds (bit-identical results on every target), so its ceiling is half of that.",
+        "Peak assumed: f32 FMA lanes x 2 flops x 2 FMA ports x measured clock: AVX2 (8 lanes) = {:.0} GFLOP/s for the `default` and `v3` builds, AVX-512 (16 lanes) = {:.0} GFLOP/s for `native` when the CPU has it. sinew does not fuse multiply-adds (bit-identical results on every target): it issues a multiply and an add per multiply-add, which halves its ceiling where both run on the FMA ports (Intel cores) and not where adds have pipes of their own (AMD Zen; from memory).",
         8.0 * 2.0 * 2.0 * ghz,
         16.0 * 2.0 * 2.0 * ghz
     );
