@@ -44,12 +44,13 @@ opt_level() {
 }
 
 # The even address of the function `count::NAME` in the ELF $1 (Thumb symbols carry bit 0), in
-# the form of the PC field of QEMU's exec log: 16 lower-case hex digits.
+# lower-case hex without leading zeros (the PC field of QEMU's exec log has 16 digits in recent
+# versions and 8 in Debian 12's 7.2; the log reader strips the zeros too).
 marker() {
     local addr
     addr="$("$NM" -C "$1" | awk -v n="count::$2" '$3 == n || index($3, n "::h") == 1 { print $1; exit }')"
     [ -n "$addr" ] || { echo "no marker $2 in $1" >&2; return 1; }
-    printf '%016x\n' "$(( 0x$addr & ~1 ))"
+    printf '%x\n' "$(( 0x$addr & ~1 ))"
 }
 
 PAIRS=(empty n1_sinew n1_nalg n2_sinew n2_nalg)
@@ -91,7 +92,7 @@ for profile in "${profiles[@]}"; do
         {
             s = index($0, "["); if (!s) next
             split(substr($0, s + 1), f, "/")
-            pc = f[2]
+            pc = f[2]; sub(/^0+/, "", pc)
             if (k > n) exit
             if (!open && pc == a[k]) open = 1
             else if (open && pc == a[k + 1]) { open = 0; k += 2; next }
