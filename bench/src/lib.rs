@@ -167,7 +167,7 @@ pub fn engine_params(layers: &Layers) -> sinew::engine::Params<f32> {
         layers: layers
             .iter()
             .map(|(w, b)| sinew::engine::LayerParams {
-                weights: w.clone(),
+                weights: w.as_slice().into(),
                 bias: b.clone(),
             })
             .collect(),

@@ -41,8 +41,19 @@ fn large_model_through_the_in_place_apis() {
         dd::PARAMETERS,
         784 * 128 + 128 + 128 * 64 + 64 + 64 * 10 + 10
     );
-    assert_eq!(std::mem::size_of::<dd::Params>(), dd::PARAMETERS * 4);
+    // No padding but the tail that rounds the value up to whole 64-byte lines (its alignment on
+    // x86-64 and AArch64), and the value starts a line.
+    assert_eq!(
+        std::mem::size_of::<dd::Params>(),
+        (dd::PARAMETERS * 4).next_multiple_of(std::mem::align_of::<dd::Params>())
+    );
+    #[cfg(any(target_arch = "x86_64", target_arch = "aarch64"))]
+    assert_eq!(std::mem::align_of::<dd::Params>(), 64);
     let mut t = TRAINER.lock().expect("not poisoned");
+    assert_eq!(
+        std::ptr::from_ref(&t.params.hidden1_weights) as usize % std::mem::align_of::<dd::Params>(),
+        0
+    );
     t.params.init_in_place(53);
     t.reset();
     // He init: normal with std sqrt(2 / fan_in); the sample std of the first layer is close.

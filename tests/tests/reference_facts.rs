@@ -55,7 +55,7 @@ fn sigmoid_derivative_at_zero_is_one_quarter() {
         "model h\nscalar f64\ninput x 1\nlayer h 1 sigmoid\noutput y 1 identity\nloss squared_error\npenalty none\n",
     );
     let mut p = Params::<f64>::zeroed(&m);
-    p.layers[1].weights = vec![1.0];
+    p.layers[1].weights = vec![1.0].into();
     // a_h = 1/2, output 1/2, target -1/2: output error 1, hidden error 1 * 1 * g'(0).
     let (_, g) = gradient(&m, &p, &[0.7], &[-0.5]);
     assert_eq!(g.layers[0].bias, [0.25]);
@@ -74,7 +74,7 @@ fn tanh_derivative_at_zero_is_one() {
 
     let m = model("model u\nscalar f64\ninput x 1\nlayer h 1 tanh\noutput y 1 identity\nloss squared_error\npenalty none\n");
     let mut p = Params::<f64>::zeroed(&m);
-    p.layers[1].weights = vec![1.0];
+    p.layers[1].weights = vec![1.0].into();
     let (_, g) = gradient(&m, &p, &[0.3], &[-1.0]);
     assert_eq!(g.layers[0].bias, [1.0]);
 }

@@ -185,11 +185,13 @@ pub(super) fn items(cx: &Ctx) -> TokenStream {
     let block_doc = super::doc(&format!(
         " Samples per block of [`Params::backprop_batch`]: the rows of every array of the scratch ({BLOCK})."
     ));
+    let line = super::params::line_layout();
     quote! {
         /// Working memory of [`Params::backprop_batch`]: the activations, output logits and errors
         /// of one block of samples, in fixed arrays. Keep one in a `static` (built with the
-        /// `const fn` [`BatchScratch::zeroed`]) or on the heap for a large model.
-        #[derive(Clone, Debug, PartialEq)]
+        /// `const fn` [`BatchScratch::zeroed`]) or on the heap for a large model. Laid out like
+        /// [`Params`].
+        #line
         pub struct BatchScratch {
             #(#decls)*
         }

@@ -107,13 +107,18 @@ pub(super) fn structs(cx: &Ctx) -> TokenStream {
             pub #std: [Scalar; INPUTS],
         });
     }
+    let line = line_layout();
     quote! {
         /// The model's parameters: per layer a row-major weight matrix and a bias vector.
         ///
         /// Large models: use the in-place forms ([`Params::init_in_place`],
         /// [`Params::predict_into`]) on a value that lives in a `static` (built with the
         /// `const fn` [`Params::zeroed`]) rather than passing it around by value.
-        #[derive(Clone, Debug, PartialEq)]
+        ///
+        /// Fields are laid out in declaration order; on x86-64 and AArch64 the value starts a
+        /// 64-byte cache line, so the rows of the first matrix (and of every matrix whose
+        /// offset is a multiple of 64 bytes) are never split across two lines by vector loads.
+        #line
         pub struct Params {
             #(#p_fields)*
         }
@@ -121,11 +126,23 @@ pub(super) fn structs(cx: &Ctx) -> TokenStream {
         /// Gradient accumulators: the shape of [`Params`] without the scaling fields.
         ///
         /// [`Params::backprop`] adds one sample's terms; [`Gradients::finish`] turns the sum over a
-        /// batch into dJ/dW and dJ/db.
-        #[derive(Clone, Debug, PartialEq)]
+        /// batch into dJ/dW and dJ/db. Laid out like [`Params`].
+        #line
         pub struct Gradients {
             #(#g_fields)*
         }
+    }
+}
+
+/// The derives and layout of the generated arrays-of-parameters structs: fields in declaration
+/// order (`repr(C)`), and on x86-64 and AArch64 aligned to a 64-byte cache line. Only where
+/// caches have such lines: on the microcontroller targets the padding would cost flash and RAM
+/// for nothing. Layout changes no result (same operations in the same order).
+pub(super) fn line_layout() -> TokenStream {
+    quote! {
+        #[derive(Clone, Debug, PartialEq)]
+        #[repr(C)]
+        #[cfg_attr(any(target_arch = "x86_64", target_arch = "aarch64"), repr(align(64)))]
     }
 }
 

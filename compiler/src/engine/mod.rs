@@ -14,9 +14,12 @@
 //! - [`train`]: the trainers (gradient descent, momentum, Adam, L-BFGS), early stopping and
 //!   divergence detection; [`eval`]: metrics; [`gradcheck`]: finite differences.
 
+pub use aligned::Lines;
+
 use crate::ir::{self, Init, Loss, Model, Optimizer};
 use sinew_runtime::{self as rt, act::Activation, penalty::Penalty, rng::SplitMix64, Real};
 
+pub mod aligned;
 pub mod batch;
 pub mod eval;
 pub mod gradcheck;
@@ -25,8 +28,8 @@ pub mod train;
 /// One layer's parameters (or gradients): `weights` is row-major, `width` rows of `fan_in`.
 #[derive(Debug, Clone, PartialEq)]
 pub struct LayerParams<T> {
-    /// Row j holds the weights into unit j.
-    pub weights: Vec<T>,
+    /// Row j holds the weights into unit j; stored from a cache-line boundary ([`Lines`]).
+    pub weights: Lines<T>,
     /// One bias per unit.
     pub bias: Vec<T>,
 }
@@ -74,7 +77,7 @@ impl<T: Real> Params<T> {
             .layers
             .iter()
             .map(|l| LayerParams {
-                weights: vec![T::ZERO; l.width * l.fan_in],
+                weights: Lines::filled(T::ZERO, l.width * l.fan_in),
                 bias: vec![T::ZERO; l.width],
             })
             .collect()
@@ -118,7 +121,7 @@ impl<T: Real> Params<T> {
             layers: layers
                 .iter()
                 .map(|(w, b)| LayerParams {
-                    weights: conv(w),
+                    weights: Lines::from_slice(&conv(w)),
                     bias: conv(b),
                 })
                 .collect(),
