@@ -149,7 +149,7 @@ mod tests {
     use super::*;
 
     fn starts_a_line<T>(s: &[T]) -> bool {
-        s.as_ptr() as usize % LINE == 0
+        (s.as_ptr() as usize).is_multiple_of(LINE)
     }
 
     #[test]
