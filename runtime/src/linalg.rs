@@ -22,6 +22,8 @@
 
 use crate::Real;
 
+mod across;
+
 /// Lanes of the dot-product accumulators of [`affine`]: product `i` of a row goes to lane
 /// `i % LANES`. Part of the order of arithmetic (it decides the bits of every `affine` result).
 pub const LANES: usize = 8;
@@ -144,6 +146,10 @@ const SAMPLES: usize = 2;
 /// on N3 in the `default` x86-64 build: 24.0 us per sample paired against 19.4 us one by one). A
 /// speed choice only: both give the same bits (the tests run both).
 const PAIRED: bool = cfg!(any(target_feature = "avx", not(target_arch = "x86_64")));
+
+/// Whether [`affine_batch_n`] runs rows of fewer than 17 inputs across samples (see
+/// [`across`]). A speed choice only: both paths give the same bits.
+const ACROSS: bool = true;
 
 /// [`row_lanes`] of four rows against two inputs: `acc[s][j]` receives exactly the operations of
 /// `row_lanes(r[j], x[s], &xt[s])`, in the same order (eight independent accumulators, and each
@@ -619,6 +625,20 @@ pub fn affine_batch_n<T: Real, const I: usize, const O: usize>(
     xs: &[[T; I]],
     zs: &mut [[T; O]],
 ) {
+    // Short rows: whole blocks of samples with one sample per SIMD lane, the rest below.
+    let blocks = if ACROSS && I > 0 && I < INLINE_FOLD_BELOW {
+        let xb = xs.as_chunks::<{ across::BLOCK }>().0;
+        let zb = zs.as_chunks_mut::<{ across::BLOCK }>().0;
+        for (x, z) in xb.iter().zip(zb.iter_mut()) {
+            across::affine_block(w, b, x, z);
+        }
+        xb.len().min(zb.len())
+    } else {
+        0
+    };
+    let done = blocks * across::BLOCK;
+    let xs = xs.get(done..).unwrap_or_default();
+    let zs = zs.get_mut(done..).unwrap_or_default();
     let (w, xs, zs) = (w.as_flattened(), xs.as_flattened(), zs.as_flattened_mut());
     if I < INLINE_FOLD_BELOW {
         affine_batch_with::<T, true, PAIRED>(w, b, xs, zs, I);
@@ -1265,6 +1285,104 @@ mod tests {
         array_equals_slice::<16, 13>(8);
         array_equals_slice::<17, 12>(9);
         array_equals_slice::<8, 3>(10);
+    }
+
+    /// A value for the across-samples sweep: mostly in [-1, 1), with signed zeros (the case where
+    /// leaving out an empty lane could change a bit), infinities, NaN, subnormals and values
+    /// whose products overflow.
+    fn edgy<T: Real>(rng: &mut SplitMix64) -> T {
+        let special = [
+            0.0,
+            -0.0,
+            f64::INFINITY,
+            f64::NEG_INFINITY,
+            f64::NAN,
+            1e-310,
+            -3e38,
+            1e300,
+        ];
+        let r = rng.uniform(0.0, 1.0);
+        if r < 0.3 {
+            // Signed zeros, many of them, so that whole rows of products are -0.
+            T::from_f64(if r < 0.15 { -0.0 } else { 0.0 })
+        } else if r < 0.36 {
+            T::from_f64(special[(r * 1000.0) as usize % special.len()])
+        } else {
+            T::from_f64(rng.uniform(-1.0, 1.0))
+        }
+    }
+
+    /// The bits of each value, every NaN as one: Rust leaves the sign and payload of a NaN result
+    /// unspecified (they follow the operand order of the hardware's NaN propagation), so the
+    /// contract of the same bits holds for every value but NaN, which stays NaN.
+    fn same_bits<T: Real>(v: &[T]) -> Vec<u64> {
+        v.iter()
+            .map(|x| {
+                if x.to_f64().is_nan() {
+                    u64::MAX
+                } else {
+                    x.to_f64().to_bits()
+                }
+            })
+            .collect()
+    }
+
+    fn across_equals_per_sample<T: Real, const I: usize, const O: usize>(seed: u64) {
+        let mut rng = SplitMix64::new(seed);
+        let w: [[T; I]; O] = core::array::from_fn(|_| core::array::from_fn(|_| edgy(&mut rng)));
+        let b: [T; O] = core::array::from_fn(|_| edgy(&mut rng));
+        for m in [0, 1, 7, 8, 9, 16, 23, 33] {
+            let xs: Vec<[T; I]> = (0..m)
+                .map(|_| core::array::from_fn(|_| edgy(&mut rng)))
+                .collect();
+            let mut zs = vec![[T::ZERO; O]; m];
+            affine_batch_n(&w, &b, &xs, &mut zs);
+            for (s, (x, z)) in xs.iter().zip(&zs).enumerate() {
+                let mut want = [T::ZERO; O];
+                affine(w.as_flattened(), &b, x, &mut want);
+                assert_eq!(
+                    same_bits(z),
+                    same_bits(&want),
+                    "{I}x{O}, {m} samples, sample {s}"
+                );
+            }
+            // Fewer outputs than inputs: only the pairs are written, the rest keep their value.
+            let mut short = vec![[T::ONE; O]; m / 2];
+            affine_batch_n(&w, &b, &xs, &mut short);
+            let head = &zs.as_flattened()[..m / 2 * O];
+            assert_eq!(same_bits(short.as_flattened()), same_bits(head));
+        }
+    }
+
+    fn across_sweep<T: Real>() {
+        across_equals_per_sample::<T, 1, 1>(1);
+        across_equals_per_sample::<T, 2, 3>(2);
+        across_equals_per_sample::<T, 3, 9>(3);
+        across_equals_per_sample::<T, 4, 4>(4);
+        across_equals_per_sample::<T, 5, 2>(5);
+        across_equals_per_sample::<T, 6, 10>(6);
+        across_equals_per_sample::<T, 7, 5>(7);
+        across_equals_per_sample::<T, 8, 3>(8);
+        across_equals_per_sample::<T, 9, 7>(9);
+        across_equals_per_sample::<T, 10, 8>(10);
+        across_equals_per_sample::<T, 11, 1>(11);
+        across_equals_per_sample::<T, 12, 6>(12);
+        across_equals_per_sample::<T, 13, 13>(13);
+        across_equals_per_sample::<T, 14, 2>(14);
+        across_equals_per_sample::<T, 15, 4>(15);
+        across_equals_per_sample::<T, 16, 11>(16);
+        // Past the threshold: the per-sample path.
+        across_equals_per_sample::<T, 17, 5>(17);
+    }
+
+    #[test]
+    fn short_rows_across_samples_equal_the_per_sample_kernel_f32() {
+        across_sweep::<f32>();
+    }
+
+    #[test]
+    fn short_rows_across_samples_equal_the_per_sample_kernel_f64() {
+        across_sweep::<f64>();
     }
 
     #[test]

@@ -111,6 +111,186 @@ pub fn softmax_cross_entropy<T: Real>(z: &[T], y: &[T]) -> T {
     s
 }
 
+/// The softmax outputs and the categorical cross-entropy of one sample together: writes
+/// `a = softmax(z)` and returns [`softmax_cross_entropy`]`(z, y)`, bit for bit what copying `z`
+/// into `a`, running [`act::softmax`] on `a` and calling [`softmax_cross_entropy`] give.
+///
+/// Both need the same maximum, the same exponentials `e^(z_j - m)` and the same sum of them (the
+/// orders of [`act::softmax`] and [`log_sum_exp`] agree), so they are computed once. With `a` and
+/// `z` of different lengths it runs the three steps as stated.
+///
+/// [`act::softmax`]: crate::act::softmax
+///
+/// # Examples
+///
+/// ```
+/// use sinew_runtime::loss::softmax_with_cross_entropy;
+///
+/// let mut a = [0.0_f64; 2];
+/// let l = softmax_with_cross_entropy(&[0.0, 0.0], &[1.0, 0.0], &mut a);
+/// assert_eq!((a, l), ([0.5, 0.5], core::f64::consts::LN_2));
+/// ```
+#[inline]
+pub fn softmax_with_cross_entropy<T: Real>(z: &[T], y: &[T], a: &mut [T]) -> T {
+    let Some(first) = z.first() else {
+        crate::act::softmax(a);
+        return T::ZERO;
+    };
+    if a.len() != z.len() {
+        for (aj, zj) in a.iter_mut().zip(z) {
+            *aj = *zj;
+        }
+        crate::act::softmax(a);
+        return softmax_cross_entropy(z, y);
+    }
+    let mut m = *first;
+    for zj in z {
+        m = m.max(*zj);
+    }
+    for (aj, zj) in a.iter_mut().zip(z) {
+        *aj = (*zj - m).exp();
+    }
+    let mut s = T::ZERO;
+    for aj in a.iter() {
+        s += *aj;
+    }
+    // As `log_sum_exp`: an infinite or NaN maximum is the result itself.
+    let lse = if m * T::ZERO != T::ZERO {
+        m
+    } else {
+        m + s.ln()
+    };
+    for aj in a.iter_mut() {
+        *aj /= s;
+    }
+    let mut loss = T::ZERO;
+    for (zj, yj) in z.iter().zip(y) {
+        loss += *yj * (lse - *zj);
+    }
+    loss
+}
+
+/// Samples per block of [`softmax_cross_entropy_batch_n`] (one per SIMD lane).
+const BLOCK: usize = 8;
+
+/// [`softmax_with_cross_entropy`] for every sample of a block: `as_[s] = softmax(zs[s])` and the
+/// losses added to `sum` in sample order, over the zip of `zs`, `ys` and `as_`; returns the sum.
+///
+/// Bit for bit the per-sample loop `sum += softmax_with_cross_entropy(z, y, a)`. Eight samples at
+/// a time run side by side, one per SIMD lane (the maximum, the exponentials, the sums and the
+/// divisions of eight samples at once, each sample in its own order); the logarithms stay one
+/// call per sample.
+///
+/// # Examples
+///
+/// ```
+/// use sinew_runtime::loss::softmax_cross_entropy_batch_n;
+///
+/// let zs = [[0.0_f64, 0.0]; 9];
+/// let ys = [[1.0, 0.0]; 9];
+/// let mut a = [[0.0; 2]; 9];
+/// let sum = softmax_cross_entropy_batch_n(&zs, &ys, &mut a, 0.0);
+/// assert_eq!(a[8], [0.5, 0.5]);
+/// assert!((sum - 9.0 * core::f64::consts::LN_2).abs() < 1e-14);
+/// ```
+#[inline]
+pub fn softmax_cross_entropy_batch_n<T: Real, const O: usize>(
+    zs: &[[T; O]],
+    ys: &[[T; O]],
+    as_: &mut [[T; O]],
+    sum: T,
+) -> T {
+    let mut sum = sum;
+    let mut done = 0;
+    if O > 0 {
+        let zb = zs.as_chunks::<BLOCK>().0;
+        let yb = ys.as_chunks::<BLOCK>().0;
+        let ab = as_.as_chunks_mut::<BLOCK>().0;
+        for ((z, y), a) in zb.iter().zip(yb).zip(ab.iter_mut()) {
+            for l in softmax_cross_entropy_block(z, y, a) {
+                sum += l;
+            }
+            done += BLOCK;
+        }
+    }
+    let rest = zs
+        .get(done..)
+        .unwrap_or_default()
+        .iter()
+        .zip(ys.get(done..).unwrap_or_default())
+        .zip(as_.get_mut(done..).unwrap_or_default());
+    for ((z, y), a) in rest {
+        sum += softmax_with_cross_entropy(z, y, a);
+    }
+    sum
+}
+
+/// Eight values, one per sample of a block.
+type Across<T> = [T; BLOCK];
+
+/// [`softmax_with_cross_entropy`] of [`BLOCK`] samples side by side (`O >= 1`): the losses.
+#[inline(always)]
+fn softmax_cross_entropy_block<T: Real, const O: usize>(
+    zs: &[[T; O]; BLOCK],
+    ys: &[[T; O]; BLOCK],
+    as_: &mut [[T; O]; BLOCK],
+) -> Across<T> {
+    let zt: [Across<T>; O] = core::array::from_fn(|j| core::array::from_fn(|s| zs[s][j]));
+    let yt: [Across<T>; O] = core::array::from_fn(|j| core::array::from_fn(|s| ys[s][j]));
+    let mut at = [[T::ZERO; BLOCK]; O];
+    let loss = softmax_cross_entropy_across(&zt, &yt, &mut at);
+    for (s, a) in as_.iter_mut().enumerate() {
+        for (aj, v) in a.iter_mut().zip(&at) {
+            if let Some(v) = v.get(s) {
+                *aj = *v;
+            }
+        }
+    }
+    loss
+}
+
+/// The arithmetic of [`softmax_cross_entropy_block`] on the transposed block (`zt[j][s]`).
+///
+/// Not inlined, on purpose: inlined with the transpositions the compiler keeps the block in
+/// scalar code; on its own each step runs on the eight samples in one SIMD instruction.
+#[inline(never)]
+fn softmax_cross_entropy_across<T: Real, const O: usize>(
+    zt: &[Across<T>; O],
+    yt: &[Across<T>; O],
+    at: &mut [Across<T>; O],
+) -> Across<T> {
+    let Some(first) = zt.first() else {
+        return [T::ZERO; BLOCK];
+    };
+    let mut m = *first;
+    for zj in zt {
+        m = core::array::from_fn(|s| m[s].max(zj[s]));
+    }
+    for (aj, zj) in at.iter_mut().zip(zt) {
+        *aj = core::array::from_fn(|s| (zj[s] - m[s]).exp());
+    }
+    let mut sum = [T::ZERO; BLOCK];
+    for aj in at.iter() {
+        sum = core::array::from_fn(|s| sum[s] + aj[s]);
+    }
+    // As `log_sum_exp`: an infinite or NaN maximum is the result itself.
+    let lse: Across<T> = core::array::from_fn(|s| {
+        if m[s] * T::ZERO != T::ZERO {
+            m[s]
+        } else {
+            m[s] + sum[s].ln()
+        }
+    });
+    for aj in at.iter_mut() {
+        *aj = core::array::from_fn(|s| aj[s] / sum[s]);
+    }
+    let mut loss = [T::ZERO; BLOCK];
+    for (zj, yj) in zt.iter().zip(yt) {
+        loss = core::array::from_fn(|s| loss[s] + yj[s] * (lse[s] - zj[s]));
+    }
+    loss
+}
+
 /// Squared error `1/2 sum_j (a_j - y_j)^2`.
 ///
 /// Order: `s = sum_j (a_j - y_j) * (a_j - y_j)` from `ZERO` in increasing `j` over the zip of `a`
@@ -156,6 +336,95 @@ mod tests {
     use super::*;
     use crate::rng::SplitMix64;
     use std::vec::Vec;
+
+    /// Each value, every NaN as one (Rust leaves a NaN's sign and payload unspecified).
+    fn same_bits<T: Real>(v: &[T]) -> Vec<u64> {
+        v.iter()
+            .map(|x| {
+                if x.to_f64().is_nan() {
+                    u64::MAX
+                } else {
+                    x.to_f64().to_bits()
+                }
+            })
+            .collect()
+    }
+
+    /// Logits for the fused softmax: mostly moderate, with ties, huge values, infinities and NaN.
+    fn logit<T: Real>(rng: &mut SplitMix64) -> T {
+        let r = rng.uniform(0.0, 1.0);
+        let special = [
+            0.0,
+            -0.0,
+            1e30,
+            -1e30,
+            f64::INFINITY,
+            f64::NEG_INFINITY,
+            f64::NAN,
+        ];
+        T::from_f64(if r < 0.08 {
+            special[(r * 1000.0) as usize % special.len()]
+        } else if r < 0.2 {
+            1.5
+        } else {
+            rng.uniform(-30.0, 30.0)
+        })
+    }
+
+    fn fused_softmax_equals_the_three_steps<T: Real, const O: usize>(seed: u64) {
+        let mut rng = SplitMix64::new(seed);
+        for m in [0, 1, 7, 8, 9, 16, 21, 40] {
+            let zs: Vec<[T; O]> = (0..m)
+                .map(|_| core::array::from_fn(|_| logit(&mut rng)))
+                .collect();
+            let ys: Vec<[T; O]> = (0..m)
+                .map(|_| core::array::from_fn(|_| T::from_f64(rng.uniform(0.0, 1.0))))
+                .collect();
+            // The three steps the generated code ran before, and the engine's order of the sum.
+            let mut want_a = zs.clone();
+            let mut want_sum = T::from_f64(0.25);
+            for (a, (z, y)) in want_a.iter_mut().zip(zs.iter().zip(&ys)) {
+                crate::act::softmax(a);
+                want_sum += softmax_cross_entropy(z, y);
+            }
+            let mut a = std::vec![[T::ZERO; O]; m];
+            let sum = softmax_cross_entropy_batch_n(&zs, &ys, &mut a, T::from_f64(0.25));
+            assert_eq!(
+                same_bits(a.as_flattened()),
+                same_bits(want_a.as_flattened()),
+                "{O} x {m}"
+            );
+            assert_eq!(same_bits(&[sum]), same_bits(&[want_sum]), "{O} x {m}");
+            for ((z, y), want) in zs.iter().zip(&ys).zip(&want_a) {
+                let mut one = [T::ONE; O];
+                let l = softmax_with_cross_entropy(z, y, &mut one);
+                assert_eq!(same_bits(&one), same_bits(want));
+                assert_eq!(same_bits(&[l]), same_bits(&[softmax_cross_entropy(z, y)]));
+            }
+        }
+    }
+
+    #[test]
+    fn fused_softmax_cross_entropy_equals_softmax_then_loss() {
+        fused_softmax_equals_the_three_steps::<f32, 1>(1);
+        fused_softmax_equals_the_three_steps::<f32, 2>(2);
+        fused_softmax_equals_the_three_steps::<f32, 3>(3);
+        fused_softmax_equals_the_three_steps::<f32, 10>(4);
+        fused_softmax_equals_the_three_steps::<f32, 17>(5);
+        fused_softmax_equals_the_three_steps::<f64, 3>(6);
+        fused_softmax_equals_the_three_steps::<f64, 10>(7);
+        // Rows of other lengths than the logits: the three steps as stated.
+        let mut a = [9.0_f64; 3];
+        let l = softmax_with_cross_entropy(&[0.0, 0.0], &[1.0, 0.0], &mut a);
+        let mut want = [0.0, 0.0, 9.0];
+        crate::act::softmax(&mut want);
+        assert_eq!(
+            (a, l),
+            (want, softmax_cross_entropy(&[0.0, 0.0], &[1.0, 0.0]))
+        );
+        let mut empty: [f64; 0] = [];
+        assert_eq!(softmax_with_cross_entropy(&[], &[], &mut empty), 0.0);
+    }
 
     #[test]
     fn log_sum_exp_does_not_overflow() {

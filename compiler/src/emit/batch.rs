@@ -105,6 +105,10 @@ pub(super) fn items(cx: &Ctx) -> TokenStream {
         TokenStream::new()
     };
 
+    // Softmax with cross-entropy: one runtime call gives the outputs and the losses, sharing
+    // the exponentials (bit for bit the separate softmax and loss).
+    let fused_softmax =
+        cx.model.loss == Loss::CrossEntropy && cx.model.output().activation == Activation::Softmax;
     let mut forward = Vec::new();
     for (i, layer, n) in cx.layers() {
         let w = ident(&n.weights);
@@ -116,6 +120,11 @@ pub(super) fn items(cx: &Ctx) -> TokenStream {
             forward.push(quote! {
                 rt::affine_batch_n(&self.#w, &self.#b, #inp, #a);
                 #act
+            });
+        } else if fused_softmax {
+            // The softmax outputs come with the loss, below.
+            forward.push(quote! {
+                rt::affine_batch_n(&self.#w, &self.#b, #inp, #z_out);
             });
         } else {
             let act = activate_block(cx, layer.activation, &a);
@@ -135,9 +144,7 @@ pub(super) fn items(cx: &Ctx) -> TokenStream {
     let d_out = ident(&out_names.errors);
     let loss = match (cx.model.loss, out.activation) {
         (Loss::CrossEntropy, Activation::Softmax) => quote! {
-            for (z_row, y) in #z_out.iter().zip(yb) {
-                sum += rt::loss::softmax_cross_entropy(z_row, y);
-            }
+            sum = rt::loss::softmax_cross_entropy_batch_n(#z_out, yb, #a_out, sum);
         },
         (Loss::CrossEntropy, Activation::Sigmoid) => quote! {
             for (z_row, y) in #z_out.iter().zip(yb) {

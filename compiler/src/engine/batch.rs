@@ -103,6 +103,8 @@ fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut
         }
     }
     let last = model.layers.len().saturating_sub(1);
+    let out_act = model.output().activation;
+    let fused = model.loss == Loss::CrossEntropy && out_act == ir::Activation::Softmax;
     for (l, ((layer, lp), act)) in model
         .layers
         .iter()
@@ -121,11 +123,21 @@ fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut
         rt::affine_batch(&lp.weights, &lp.bias, input, out, layer.fan_in);
         if l == last {
             sb.z_out[..used * layer.width].copy_from_slice(out);
+            if fused {
+                // Softmax outputs and losses in one pass over the shared exponentials.
+                let w = layer.width;
+                let rows = sb.z_out.chunks_exact(w).zip(ys.chunks_exact(w));
+                for ((loss, (z, y)), a) in
+                    sb.losses.iter_mut().zip(rows).zip(out.chunks_exact_mut(w))
+                {
+                    *loss = rt::loss::softmax_with_cross_entropy(z, y, a);
+                }
+                continue;
+            }
         }
         forward_rows(act, out, layer.width);
     }
     // Losses from the logits (or the activations, for squared error), then the output error.
-    let out_act = model.output().activation;
     let (Some(a_out), Some(d_out)) = (sb.a.last(), sb.d.last_mut()) else {
         return;
     };
@@ -134,7 +146,7 @@ fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut
         .chunks_exact(n_out)
         .zip(a_out.chunks_exact(n_out))
         .zip(ys.chunks_exact(n_out));
-    for (loss, ((z, a), y)) in sb.losses.iter_mut().zip(rows) {
+    for (loss, ((z, a), y)) in sb.losses.iter_mut().zip(rows).filter(|_| !fused) {
         *loss = match (model.loss, out_act) {
             (Loss::CrossEntropy, ir::Activation::Softmax) => rt::loss::softmax_cross_entropy(z, y),
             (Loss::CrossEntropy, _) => rt::loss::logistic_cross_entropy(z, y),
