@@ -525,6 +525,29 @@ pub fn standardize_n<T: Real, const N: usize>(
 /// ```
 #[inline(always)]
 pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize) {
+    let o = b.len();
+    // Short rows: whole blocks of samples with one sample per SIMD lane (a kernel for each
+    // fan-in from 1 to 16), the rest below.
+    let done = if ACROSS && o > 0 && w.len() == n * o {
+        macro_rules! by_fan_in {
+            ($($k:literal)*) => {
+                match n {
+                    $($k => across::affine_blocks::<T, $k>(
+                        w.as_chunks::<$k>().0,
+                        b,
+                        xs.as_chunks::<$k>().0,
+                        zs,
+                    ),)*
+                    _ => 0,
+                }
+            };
+        }
+        by_fan_in!(1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16)
+    } else {
+        0
+    };
+    let xs = xs.get(done * n..).unwrap_or_default();
+    let zs = zs.get_mut(done * o..).unwrap_or_default();
     affine_batch_with::<T, false, PAIRED>(w, b, xs, zs, n);
 }
 
@@ -626,17 +649,11 @@ pub fn affine_batch_n<T: Real, const I: usize, const O: usize>(
     zs: &mut [[T; O]],
 ) {
     // Short rows: whole blocks of samples with one sample per SIMD lane, the rest below.
-    let blocks = if ACROSS && I > 0 && I < INLINE_FOLD_BELOW {
-        let xb = xs.as_chunks::<{ across::BLOCK }>().0;
-        let zb = zs.as_chunks_mut::<{ across::BLOCK }>().0;
-        for (x, z) in xb.iter().zip(zb.iter_mut()) {
-            across::affine_block(w, b, x, z);
-        }
-        xb.len().min(zb.len())
+    let done = if ACROSS && I > 0 && I < INLINE_FOLD_BELOW {
+        across::affine_blocks(w.as_slice(), b, xs, zs.as_flattened_mut())
     } else {
         0
     };
-    let done = blocks * across::BLOCK;
     let xs = xs.get(done..).unwrap_or_default();
     let zs = zs.get_mut(done..).unwrap_or_default();
     let (w, xs, zs) = (w.as_flattened(), xs.as_flattened(), zs.as_flattened_mut());
@@ -671,6 +688,28 @@ pub fn back_batch<T: Real>(w: &[T], ds: &[T], outs: &mut [T], n: usize) {
     if o == 0 {
         return;
     }
+    // Narrow outputs: whole blocks of samples with one sample per SIMD lane (a kernel for each
+    // width from 1 to 16), the rest below.
+    let done = if ACROSS && w.len() == n * o {
+        macro_rules! by_width {
+            ($($k:literal)*) => {
+                match n {
+                    $($k => across::back_blocks::<T, $k>(
+                        w.as_chunks::<$k>().0,
+                        ds,
+                        o,
+                        outs.as_chunks_mut::<$k>().0,
+                    ),)*
+                    _ => 0,
+                }
+            };
+        }
+        by_width!(1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16)
+    } else {
+        0
+    };
+    let ds = ds.get(done * o..).unwrap_or_default();
+    let outs = outs.get_mut(done * n..).unwrap_or_default();
     for (d, out) in pieces(ds, o).zip(pieces_mut(outs, n)) {
         back(w, d, out);
     }
@@ -692,10 +731,16 @@ pub fn back_batch_n<T: Real, const I: usize, const O: usize>(
     ds: &[[T; O]],
     outs: &mut [[T; I]],
 ) {
+    // Narrow outputs: whole blocks of samples with one sample per SIMD lane, the rest below.
+    let done = if ACROSS && I > 0 && I < INLINE_FOLD_BELOW && O > 0 {
+        across::back_blocks(w.as_slice(), ds.as_flattened(), O, outs)
+    } else {
+        0
+    };
     back_batch(
         w.as_flattened(),
-        ds.as_flattened(),
-        outs.as_flattened_mut(),
+        ds.get(done..).unwrap_or_default().as_flattened(),
+        outs.get_mut(done..).unwrap_or_default().as_flattened_mut(),
         I,
     );
 }
@@ -1346,6 +1391,36 @@ mod tests {
                     "{I}x{O}, {m} samples, sample {s}"
                 );
             }
+            // The slice forms (the engine's), with the fan-in known only at run time.
+            let mut flat = vec![T::ONE; m * O];
+            affine_batch(w.as_flattened(), &b, xs.as_flattened(), &mut flat, I);
+            assert_eq!(
+                same_bits(&flat),
+                same_bits(zs.as_flattened()),
+                "slice {I}x{O}, {m}"
+            );
+            let ds: Vec<[T; O]> = (0..m)
+                .map(|_| core::array::from_fn(|_| edgy(&mut rng)))
+                .collect();
+            let mut flat = vec![T::ONE; m * I];
+            back_batch(w.as_flattened(), ds.as_flattened(), &mut flat, I);
+            let mut outs = vec![[T::ONE; I]; m];
+            back_batch_n(&w, &ds, &mut outs);
+            for (s, (d, out)) in ds.iter().zip(&outs).enumerate() {
+                let mut want = [T::ONE; I];
+                back(w.as_flattened(), d, &mut want);
+                assert_eq!(
+                    same_bits(out),
+                    same_bits(&want),
+                    "back {I}x{O}, {m}, sample {s}"
+                );
+                let got = &flat[s * I..(s + 1) * I];
+                assert_eq!(
+                    same_bits(got),
+                    same_bits(&want),
+                    "slice back {I}x{O}, {m}, {s}"
+                );
+            }
             // Fewer outputs than inputs: only the pairs are written, the rest keep their value.
             let mut short = vec![[T::ONE; O]; m / 2];
             affine_batch_n(&w, &b, &xs, &mut short);
@@ -1371,6 +1446,9 @@ mod tests {
         across_equals_per_sample::<T, 14, 2>(14);
         across_equals_per_sample::<T, 15, 4>(15);
         across_equals_per_sample::<T, 16, 11>(16);
+        // More rows than one pass of the transposed block holds (16).
+        across_equals_per_sample::<T, 6, 40>(18);
+        across_equals_per_sample::<T, 3, 17>(19);
         // Past the threshold: the per-sample path.
         across_equals_per_sample::<T, 17, 5>(17);
     }

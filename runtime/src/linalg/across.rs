@@ -55,24 +55,42 @@ fn fold<T: Real>(l: [Across<T>; LANES], used: usize) -> Across<T> {
     v[0].unwrap_or([T::ZERO; BLOCK])
 }
 
-/// `zs[s] = W xs[s] + b` for the [`BLOCK`] samples of a block, bit for bit [`affine`] of each
-/// (`I >= 1`; with `I = 0` the caller takes the per-sample path).
+/// Output rows per pass of the slice forms (the transposed block of `CHUNK` outputs lives on
+/// the stack).
+const CHUNK: usize = 16;
+
+/// `xs` transposed: `xt[i][s] = xs[s][i]`.
+#[inline(always)]
+fn transpose<T: Real, const I: usize>(xs: &[[T; I]; BLOCK]) -> [Across<T>; I] {
+    core::array::from_fn(|i| core::array::from_fn(|s| xs[s][i]))
+}
+
+/// `zs[s] = W xs[s] + b` for the [`BLOCK`] samples of a block, bit for bit [`affine`] of each.
+///
+/// `w` holds `o` rows of `I >= 1` inputs and `b` at least `o` values; `zs` holds the block's
+/// outputs sample by sample, `o` each (`BLOCK * o` values). Outputs go `CHUNK` rows at a time.
 ///
 /// [`affine`]: super::affine
 #[inline(always)]
-pub(super) fn affine_block<T: Real, const I: usize, const O: usize>(
-    w: &[[T; I]; O],
-    b: &[T; O],
+pub(super) fn affine_block<T: Real, const I: usize>(
+    w: &[[T; I]],
+    b: &[T],
     xs: &[[T; I]; BLOCK],
-    zs: &mut [[T; O]; BLOCK],
+    zs: &mut [T],
+    o: usize,
 ) {
-    let xt: [Across<T>; I] = core::array::from_fn(|i| core::array::from_fn(|s| xs[s][i]));
-    let mut zt = [[T::ZERO; BLOCK]; O];
-    affine_across(w, b, &xt, &mut zt);
-    for (s, z) in zs.iter_mut().enumerate() {
-        for (zj, v) in z.iter_mut().zip(&zt) {
-            if let Some(v) = v.get(s) {
-                *zj = *v;
+    let xt = transpose(xs);
+    let mut zt = [[T::ZERO; BLOCK]; CHUNK];
+    for (c, (wc, bc)) in w.chunks(CHUNK).zip(b.chunks(CHUNK)).enumerate() {
+        let zc = zt.get_mut(..wc.len().min(bc.len())).unwrap_or_default();
+        affine_across(wc, bc, &xt, zc);
+        let j0 = c * CHUNK;
+        for (s, z) in super::pieces_mut(zs, o).enumerate().take(BLOCK) {
+            let Some(z) = z.get_mut(j0..) else { continue };
+            for (zj, v) in z.iter_mut().zip(zc.iter()) {
+                if let Some(v) = v.get(s) {
+                    *zj = *v;
+                }
             }
         }
     }
@@ -84,11 +102,11 @@ pub(super) fn affine_block<T: Real, const I: usize, const O: usize>(
 /// whole block into scalar code (one product per instruction, measured); on its own the row
 /// loop runs every operation on the eight samples in one SIMD instruction.
 #[inline(never)]
-fn affine_across<T: Real, const I: usize, const O: usize>(
-    w: &[[T; I]; O],
-    b: &[T; O],
+fn affine_across<T: Real, const I: usize>(
+    w: &[[T; I]],
+    b: &[T],
     xt: &[Across<T>; I],
-    zt: &mut [Across<T>; O],
+    zt: &mut [Across<T>],
 ) {
     for ((row, bj), zj) in w.iter().zip(b).zip(zt.iter_mut()) {
         let mut lanes = [[T::ZERO; BLOCK]; LANES];
@@ -100,4 +118,88 @@ fn affine_across<T: Real, const I: usize, const O: usize>(
             *z = v + *bj;
         }
     }
+}
+
+/// `outs[s] = W^T ds[s]` for the [`BLOCK`] samples of a block, bit for bit [`back`] of each:
+/// every `out_i` from `ZERO`, adding `w[j][i] * d_j` in increasing `j`.
+///
+/// `w` holds `o` rows of `I >= 1` values; `ds` the block's errors sample by sample, `o` each.
+/// The errors go `CHUNK` rows at a time, in order, into the same sums.
+///
+/// [`back`]: super::back
+#[inline(always)]
+pub(super) fn back_block<T: Real, const I: usize>(
+    w: &[[T; I]],
+    ds: &[T],
+    o: usize,
+    outs: &mut [[T; I]; BLOCK],
+) {
+    let mut ot = [[T::ZERO; BLOCK]; I];
+    let mut dt = [[T::ZERO; BLOCK]; CHUNK];
+    for (c, wc) in w.chunks(CHUNK).enumerate() {
+        let j0 = c * CHUNK;
+        for (s, d) in super::pieces(ds, o).enumerate().take(BLOCK) {
+            for (dj, v) in dt.iter_mut().zip(d.get(j0..).unwrap_or_default()) {
+                if let Some(slot) = dj.get_mut(s) {
+                    *slot = *v;
+                }
+            }
+        }
+        back_across(wc, dt.get(..wc.len()).unwrap_or_default(), &mut ot);
+    }
+    for (s, out) in outs.iter_mut().enumerate() {
+        for (oi, v) in out.iter_mut().zip(&ot) {
+            if let Some(v) = v.get(s) {
+                *oi = *v;
+            }
+        }
+    }
+}
+
+/// The arithmetic of [`back_block`] on the transposed block (not inlined, as [`affine_across`]).
+/// Rows of `W` in the outer loop: the `I` sums are independent, so their additions overlap.
+#[inline(never)]
+fn back_across<T: Real, const I: usize>(w: &[[T; I]], dt: &[Across<T>], ot: &mut [Across<T>; I]) {
+    for (row, dj) in w.iter().zip(dt) {
+        for (o, wji) in ot.iter_mut().zip(row) {
+            mul_add(o, *wji, dj);
+        }
+    }
+}
+
+/// Blocks of [`BLOCK`] samples of [`affine_batch`](super::affine_batch) with `I` inputs (a
+/// constant): `w` exactly `o` rows, `b` exactly `o` values. Returns the samples done.
+#[inline(always)]
+pub(super) fn affine_blocks<T: Real, const I: usize>(
+    w: &[[T; I]],
+    b: &[T],
+    xs: &[[T; I]],
+    zs: &mut [T],
+) -> usize {
+    let o = b.len();
+    let xb = xs.as_chunks::<BLOCK>().0;
+    let mut done = 0;
+    for (x, z) in xb.iter().zip(super::pieces_mut(zs, BLOCK * o)) {
+        affine_block(w, b, x, z, o);
+        done += BLOCK;
+    }
+    done
+}
+
+/// Blocks of [`BLOCK`] samples of [`back_batch`](super::back_batch) with `I` outputs (a
+/// constant): `w` exactly `o` rows. Returns the samples done.
+#[inline(always)]
+pub(super) fn back_blocks<T: Real, const I: usize>(
+    w: &[[T; I]],
+    ds: &[T],
+    o: usize,
+    outs: &mut [[T; I]],
+) -> usize {
+    let ob = outs.as_chunks_mut::<BLOCK>().0;
+    let mut done = 0;
+    for (d, out) in super::pieces(ds, BLOCK * o).zip(ob.iter_mut()) {
+        back_block(w, d, o, out);
+        done += BLOCK;
+    }
+    done
 }
