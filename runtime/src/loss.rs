@@ -225,6 +225,82 @@ pub fn softmax_cross_entropy_batch_n<T: Real, const O: usize>(
     sum
 }
 
+/// Slice form of [`softmax_cross_entropy_batch_n`] for rows of `o` values (the host engine's):
+/// for every sample `s` of the zip of `zs`, `ys` and `as_` taken `o` at a time, and of `losses`,
+/// `as_[s] = softmax(zs[s])` and `losses[s] = ` [`softmax_cross_entropy`]`(zs[s], ys[s])`, bit
+/// for bit [`softmax_with_cross_entropy`] of each. Rows of 1 to 16 values run eight samples side
+/// by side, as the array form does; with `o = 0` nothing is written.
+///
+/// # Examples
+///
+/// ```
+/// use sinew_runtime::loss::softmax_cross_entropy_batch;
+///
+/// let mut a = [0.0_f64; 4];
+/// let mut losses = [0.0; 2];
+/// softmax_cross_entropy_batch(&[0.0; 4], &[1.0, 0.0, 0.0, 1.0], &mut a, &mut losses, 2);
+/// assert_eq!(a, [0.5; 4]);
+/// assert_eq!(losses, [core::f64::consts::LN_2; 2]);
+/// ```
+#[inline]
+pub fn softmax_cross_entropy_batch<T: Real>(
+    zs: &[T],
+    ys: &[T],
+    as_: &mut [T],
+    losses: &mut [T],
+    o: usize,
+) {
+    if o == 0 {
+        return;
+    }
+    macro_rules! by_width {
+        ($($k:literal)*) => {
+            match o {
+                $($k => softmax_cross_entropy_blocks::<T, $k>(
+                    zs.as_chunks::<$k>().0,
+                    ys.as_chunks::<$k>().0,
+                    as_.as_chunks_mut::<$k>().0,
+                    losses,
+                ),)*
+                _ => 0,
+            }
+        };
+    }
+    let done = by_width!(1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16);
+    let rows = zs
+        .chunks_exact(o)
+        .zip(ys.chunks_exact(o))
+        .zip(as_.chunks_exact_mut(o))
+        .zip(losses.iter_mut())
+        .skip(done);
+    for (((z, y), a), loss) in rows {
+        *loss = softmax_with_cross_entropy(z, y, a);
+    }
+}
+
+/// The whole blocks of [`softmax_cross_entropy_batch`] with rows of `O` values: the samples done.
+#[inline(always)]
+fn softmax_cross_entropy_blocks<T: Real, const O: usize>(
+    zs: &[[T; O]],
+    ys: &[[T; O]],
+    as_: &mut [[T; O]],
+    losses: &mut [T],
+) -> usize {
+    let blocks = zs
+        .as_chunks::<BLOCK>()
+        .0
+        .iter()
+        .zip(ys.as_chunks::<BLOCK>().0)
+        .zip(as_.as_chunks_mut::<BLOCK>().0)
+        .zip(losses.as_chunks_mut::<BLOCK>().0);
+    let mut done = 0;
+    for (((z, y), a), l) in blocks {
+        *l = softmax_cross_entropy_block(z, y, a);
+        done += BLOCK;
+    }
+    done
+}
+
 /// Eight values, one per sample of a block.
 type Across<T> = [T; BLOCK];
 
@@ -395,6 +471,21 @@ mod tests {
                 "{O} x {m}"
             );
             assert_eq!(same_bits(&[sum]), same_bits(&[want_sum]), "{O} x {m}");
+            let mut flat = std::vec![T::ONE; m * O];
+            let mut losses = std::vec![T::ONE; m];
+            let (zf, yf) = (zs.as_flattened(), ys.as_flattened());
+            softmax_cross_entropy_batch(zf, yf, &mut flat, &mut losses, O);
+            assert_eq!(
+                same_bits(&flat),
+                same_bits(want_a.as_flattened()),
+                "slice {O} x {m}"
+            );
+            let each: Vec<T> = zs
+                .iter()
+                .zip(&ys)
+                .map(|(z, y)| softmax_cross_entropy(z, y))
+                .collect();
+            assert_eq!(same_bits(&losses), same_bits(&each), "slice {O} x {m}");
             for ((z, y), want) in zs.iter().zip(&ys).zip(&want_a) {
                 let mut one = [T::ONE; O];
                 let l = softmax_with_cross_entropy(z, y, &mut one);

@@ -125,13 +125,8 @@ fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut
             sb.z_out[..used * layer.width].copy_from_slice(out);
             if fused {
                 // Softmax outputs and losses in one pass over the shared exponentials.
-                let w = layer.width;
-                let rows = sb.z_out.chunks_exact(w).zip(ys.chunks_exact(w));
-                for ((loss, (z, y)), a) in
-                    sb.losses.iter_mut().zip(rows).zip(out.chunks_exact_mut(w))
-                {
-                    *loss = rt::loss::softmax_with_cross_entropy(z, y, a);
-                }
+                let z = &sb.z_out[..used * layer.width];
+                rt::loss::softmax_cross_entropy_batch(z, ys, out, &mut sb.losses, layer.width);
                 continue;
             }
         }
