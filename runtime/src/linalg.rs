@@ -261,7 +261,21 @@ fn input_tail<T: Real>(x: &[T]) -> [T; LANES] {
 /// ```
 #[inline(always)]
 pub fn affine<T: Real>(w: &[T], b: &[T], x: &[T], z: &mut [T]) {
-    affine_with::<T, false>(w, b, x, z);
+    // Short rows (fan-in 1 to 16, known here only at run time): a kernel for each fan-in, with
+    // its lane folds inline, as the array form runs them. Same operations, same bits.
+    macro_rules! by_fan_in {
+        ($($k:literal)*) => {
+            match x.len() {
+                $($k => {
+                    if let Ok(x) = <&[T; $k]>::try_from(x) {
+                        affine_with::<T, true>(w, b, x, z);
+                    }
+                })*
+                _ => affine_with::<T, false>(w, b, x, z),
+            }
+        };
+    }
+    by_fan_in!(1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16);
 }
 
 /// [`affine`], with the lane sums inline when `INLINE`.

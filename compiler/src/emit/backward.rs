@@ -114,14 +114,24 @@ fn propagate(cx: &Ctx, i: usize) -> TokenStream {
 pub(super) fn backprop(cx: &Ctx) -> TokenStream {
     let hidden = hidden_layers(cx);
     let logits = output_logits(cx);
-    let acts = output_activations(cx);
-    let loss = loss_expr(cx);
     let last = cx.last();
     let out = cx.model.output();
     let n = &cx.names.layers[last];
     let a = ident(&n.activations);
     let d = ident(&n.errors);
     let width = cx.width_const(last);
+    // Softmax with cross-entropy: the outputs and the loss from one runtime call that shares
+    // their exponentials (bit for bit the separate softmax and loss).
+    let (acts, loss) =
+        if cx.model.loss == Loss::CrossEntropy && out.activation == Activation::Softmax {
+            let z = ident(&n.logits);
+            (
+                quote!(let mut #a = [ZERO; #width];),
+                quote!(rt::loss::softmax_with_cross_entropy(&#z, y, &mut #a)),
+            )
+        } else {
+            (output_activations(cx), loss_expr(cx))
+        };
     let out_grad = match cx.model.loss {
         Loss::CrossEntropy => TokenStream::new(),
         Loss::SquaredError => activation_grad(cx, out.activation, &a, &d),

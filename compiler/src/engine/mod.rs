@@ -257,6 +257,21 @@ impl<'m, T: Real> Net<'m, T> {
     /// Forward pass into `s.a`; with `keep_logits` the output's z is copied to `s.z_out` before
     /// the output activation.
     pub fn forward(&self, p: &Params<T>, x: &[T], s: &mut Scratch<T>, keep_logits: bool) {
+        self.forward_with(p, x, s, keep_logits, None);
+    }
+
+    /// [`Net::forward`]; with `fused_loss = Some(y)`, a softmax output layer gets its outputs and
+    /// its cross-entropy against `y` from one runtime call (shared exponentials, the same bits)
+    /// and the loss is returned. Otherwise `None`.
+    fn forward_with(
+        &self,
+        p: &Params<T>,
+        x: &[T],
+        s: &mut Scratch<T>,
+        keep_logits: bool,
+        fused_loss: Option<&[T]>,
+    ) -> Option<T> {
+        let mut loss = None;
         let input: &[T] = if self.model.input.standardize {
             rt::standardize(x, &p.mean, &p.std, &mut s.x0);
             &s.x0
@@ -274,9 +289,14 @@ impl<'m, T: Real> Net<'m, T> {
             rt::affine(&lp.weights, &lp.bias, prev, out);
             if keep_logits && l == last {
                 s.z_out.copy_from_slice(out);
+                if let (Some(y), Activation::Softmax) = (fused_loss, act) {
+                    loss = Some(rt::loss::softmax_with_cross_entropy(&s.z_out, y, out));
+                    continue;
+                }
             }
             act.forward(out);
         }
+        loss
     }
 
     /// Network output for one sample, written to `out` (the generated `predict_into`).
@@ -307,8 +327,11 @@ impl<'m, T: Real> Net<'m, T> {
     /// Forward pass and error terms of one sample, leaving activations in `s.a` and errors in
     /// `s.d`; returns the sample's loss. No gradient is accumulated.
     pub fn deltas(&self, p: &Params<T>, x: &[T], y: &[T], s: &mut Scratch<T>) -> T {
-        self.forward(p, x, s, true);
-        let loss = self.sample_loss(s, y);
+        let fused = self.model.loss == Loss::CrossEntropy;
+        let loss = match self.forward_with(p, x, s, true, fused.then_some(y)) {
+            Some(loss) => loss,
+            None => self.sample_loss(s, y),
+        };
         let n = s.d.len();
         // Output error.
         if let (Some(a_out), Some(d_out)) = (s.a.last(), s.d.last_mut()) {
