@@ -353,6 +353,26 @@ pub fn affine_n<T: Real, const I: usize, const O: usize>(
 /// ```
 #[inline(always)]
 pub fn back<T: Real>(w: &[T], d: &[T], out: &mut [T]) {
+    // Narrow outputs (1 to 16, known here only at run time): a kernel for each width, so that
+    // each row is a fixed-size vector operation. Same operations, same bits.
+    macro_rules! by_width {
+        ($($k:literal)*) => {
+            match out.len() {
+                $($k => {
+                    if let Ok(out) = <&mut [T; $k]>::try_from(&mut *out) {
+                        back_with(w, d, out);
+                    }
+                })*
+                _ => back_with(w, d, out),
+            }
+        };
+    }
+    by_width!(1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16);
+}
+
+/// The kernel of [`back`].
+#[inline(always)]
+fn back_with<T: Real>(w: &[T], d: &[T], out: &mut [T]) {
     let n = out.len();
     if n == 0 {
         return;
@@ -431,6 +451,26 @@ pub fn back_n<T: Real, const I: usize, const O: usize>(
 /// ```
 #[inline(always)]
 pub fn outer_acc<T: Real>(g: &mut [T], d: &[T], a: &[T]) {
+    // Short rows (1 to 16 columns, known here only at run time): a kernel for each length, so
+    // that each row is a fixed-size vector operation. Same operations, same bits.
+    macro_rules! by_columns {
+        ($($k:literal)*) => {
+            match a.len() {
+                $($k => {
+                    if let Ok(a) = <&[T; $k]>::try_from(a) {
+                        outer_acc_with(g, d, a);
+                    }
+                })*
+                _ => outer_acc_with(g, d, a),
+            }
+        };
+    }
+    by_columns!(1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16);
+}
+
+/// The kernel of [`outer_acc`].
+#[inline(always)]
+fn outer_acc_with<T: Real>(g: &mut [T], d: &[T], a: &[T]) {
     let n = a.len();
     if n == 0 {
         return;
