@@ -16,9 +16,9 @@
 //! | module | kernels |
 //! | --- | --- |
 //! | [`real`] | [`Real`]: the scalar trait (`f32`, `f64`) over libm |
-//! | [`linalg`] | [`affine`] `z = W x + b`, [`back`] `out = W^T d`, [`outer_acc`] `G += d a^T`, [`add_acc`] `g += d`, [`standardize`] `(x - mean) / std`, each with an `_n` array form where shapes matter; their batch forms over a block of samples ([`affine_batch`], [`back_batch`], [`outer_acc_batch`] and its row-range form [`outer_acc_batch_rows`], [`add_acc_batch`]), bit for bit the per-sample loop |
+//! | [`linalg`] | [`affine`] `z = W x + b`, [`back`] `out = W^T d`, [`outer_acc`] `G += d a^T`, [`add_acc`] `g += d`, [`standardize`] `(x - mean) / std`, each with an `_n` array form where shapes matter; their batch forms over a block of samples ([`affine_batch`], [`back_batch`], [`outer_acc_batch`] and its row-range form [`outer_acc_batch_rows`], [`add_acc_batch`]), bit for bit the per-sample loop (layers of at most 16 inputs or outputs run eight samples side by side, one per SIMD lane) |
 //! | [`act`] | [`act::identity`], [`act::sigmoid`], [`act::tanh`], [`act::relu`], [`act::leaky_relu`], [`act::softmax`] and their `_grad` forms; [`act::Activation`] |
-//! | [`loss`] | [`loss::softplus`], [`loss::log_sum_exp`], [`loss::logistic_cross_entropy`], [`loss::softmax_cross_entropy`], [`loss::squared_error`], [`loss::output_error`] |
+//! | [`loss`] | [`loss::softplus`], [`loss::log_sum_exp`], [`loss::logistic_cross_entropy`], [`loss::softmax_cross_entropy`], [`loss::squared_error`], [`loss::output_error`]; softmax outputs with their cross-entropy in one pass: [`loss::softmax_with_cross_entropy`] and its batch forms [`loss::softmax_cross_entropy_batch`], [`loss::softmax_cross_entropy_batch_n`] |
 //! | [`penalty`] | [`penalty::Penalty`] (none, L2, L1: cost term and gradient), [`penalty::finish_bias`] |
 //! | [`optim`] | [`optim::sgd`], [`optim::momentum`], [`optim::adam`] |
 //! | [`rng`] | [`rng::SplitMix64`] with uniform and normal draws; [`rng::fill_uniform`], [`rng::fill_normal`], [`rng::glorot_limit`], [`rng::he_std`] |
