@@ -61,6 +61,27 @@
 #[cfg(test)]
 extern crate std;
 
+/// `$body` with `$k` a `const usize` equal to `$n` when `$n` is 1 to 16 (so that the body can use
+/// it as a const generic argument), else `$other`: how the slice forms, whose lengths are known
+/// only at run time (the engine's), reach the const-length code that the array forms run.
+macro_rules! by_length_1_to_16 {
+    ($n:expr, $k:ident => $body:expr, _ => $other:expr) => {
+        by_length_1_to_16!(@arms $n, $k, $body, $other; 1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16)
+    };
+    (@arms $n:expr, $k:ident, $body:expr, $other:expr; $($v:literal)*) => {
+        match $n {
+            $($v => {
+                const $k: usize = $v;
+                $body
+            })*
+            _ => $other,
+        }
+    };
+}
+
+#[cfg(test)]
+mod testutil;
+
 pub mod act;
 pub mod blob;
 pub mod linalg;

@@ -263,19 +263,11 @@ fn input_tail<T: Real>(x: &[T]) -> [T; LANES] {
 pub fn affine<T: Real>(w: &[T], b: &[T], x: &[T], z: &mut [T]) {
     // Short rows (fan-in 1 to 16, known here only at run time): a kernel for each fan-in, with
     // its lane folds inline, as the array form runs them. Same operations, same bits.
-    macro_rules! by_fan_in {
-        ($($k:literal)*) => {
-            match x.len() {
-                $($k => {
-                    if let Ok(x) = <&[T; $k]>::try_from(x) {
-                        affine_with::<T, true>(w, b, x, z);
-                    }
-                })*
-                _ => affine_with::<T, false>(w, b, x, z),
-            }
-        };
-    }
-    by_fan_in!(1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16);
+    by_length_1_to_16!(x.len(), K => {
+        if let Ok(x) = <&[T; K]>::try_from(x) {
+            affine_with::<T, true>(w, b, x, z);
+        }
+    }, _ => affine_with::<T, false>(w, b, x, z));
 }
 
 /// [`affine`], with the lane sums inline when `INLINE`.
@@ -355,19 +347,11 @@ pub fn affine_n<T: Real, const I: usize, const O: usize>(
 pub fn back<T: Real>(w: &[T], d: &[T], out: &mut [T]) {
     // Narrow outputs (1 to 16, known here only at run time): a kernel for each width, so that
     // each row is a fixed-size vector operation. Same operations, same bits.
-    macro_rules! by_width {
-        ($($k:literal)*) => {
-            match out.len() {
-                $($k => {
-                    if let Ok(out) = <&mut [T; $k]>::try_from(&mut *out) {
-                        back_with(w, d, out);
-                    }
-                })*
-                _ => back_with(w, d, out),
-            }
-        };
-    }
-    by_width!(1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16);
+    by_length_1_to_16!(out.len(), K => {
+        if let Ok(out) = <&mut [T; K]>::try_from(&mut *out) {
+            back_with(w, d, out);
+        }
+    }, _ => back_with(w, d, out));
 }
 
 /// The kernel of [`back`].
@@ -453,19 +437,11 @@ pub fn back_n<T: Real, const I: usize, const O: usize>(
 pub fn outer_acc<T: Real>(g: &mut [T], d: &[T], a: &[T]) {
     // Short rows (1 to 16 columns, known here only at run time): a kernel for each length, so
     // that each row is a fixed-size vector operation. Same operations, same bits.
-    macro_rules! by_columns {
-        ($($k:literal)*) => {
-            match a.len() {
-                $($k => {
-                    if let Ok(a) = <&[T; $k]>::try_from(a) {
-                        outer_acc_with(g, d, a);
-                    }
-                })*
-                _ => outer_acc_with(g, d, a),
-            }
-        };
-    }
-    by_columns!(1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16);
+    by_length_1_to_16!(a.len(), K => {
+        if let Ok(a) = <&[T; K]>::try_from(a) {
+            outer_acc_with(g, d, a);
+        }
+    }, _ => outer_acc_with(g, d, a));
 }
 
 /// The kernel of [`outer_acc`].
@@ -583,20 +559,12 @@ pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize)
     // Short rows: whole blocks of samples with one sample per SIMD lane (a kernel for each
     // fan-in from 1 to 16), the rest below.
     let done = if ACROSS && o > 0 && w.len() == n * o {
-        macro_rules! by_fan_in {
-            ($($k:literal)*) => {
-                match n {
-                    $($k => across::affine_blocks::<T, $k>(
-                        w.as_chunks::<$k>().0,
-                        b,
-                        xs.as_chunks::<$k>().0,
-                        zs,
-                    ),)*
-                    _ => 0,
-                }
-            };
-        }
-        by_fan_in!(1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16)
+        by_length_1_to_16!(n, K => across::affine_blocks::<T, K>(
+            w.as_chunks::<K>().0,
+            b,
+            xs.as_chunks::<K>().0,
+            zs,
+        ), _ => 0)
     } else {
         0
     };
@@ -745,20 +713,12 @@ pub fn back_batch<T: Real>(w: &[T], ds: &[T], outs: &mut [T], n: usize) {
     // Narrow outputs: whole blocks of samples with one sample per SIMD lane (a kernel for each
     // width from 1 to 16), the rest below.
     let done = if ACROSS && w.len() == n * o {
-        macro_rules! by_width {
-            ($($k:literal)*) => {
-                match n {
-                    $($k => across::back_blocks::<T, $k>(
-                        w.as_chunks::<$k>().0,
-                        ds,
-                        o,
-                        outs.as_chunks_mut::<$k>().0,
-                    ),)*
-                    _ => 0,
-                }
-            };
-        }
-        by_width!(1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16)
+        by_length_1_to_16!(n, K => across::back_blocks::<T, K>(
+            w.as_chunks::<K>().0,
+            ds,
+            o,
+            outs.as_chunks_mut::<K>().0,
+        ), _ => 0)
     } else {
         0
     };
@@ -1000,6 +960,7 @@ mod tests {
     //! the batch kernels against their per-sample kernels, bit for bit.
     use super::*;
     use crate::rng::SplitMix64;
+    use crate::testutil::same_bits;
     use std::boxed::Box;
     use std::vec;
     use std::vec::Vec;
@@ -1409,21 +1370,6 @@ mod tests {
         } else {
             T::from_f64(rng.uniform(-1.0, 1.0))
         }
-    }
-
-    /// The bits of each value, every NaN as one: Rust leaves the sign and payload of a NaN result
-    /// unspecified (they follow the operand order of the hardware's NaN propagation), so the
-    /// contract of the same bits holds for every value but NaN, which stays NaN.
-    fn same_bits<T: Real>(v: &[T]) -> Vec<u64> {
-        v.iter()
-            .map(|x| {
-                if x.to_f64().is_nan() {
-                    u64::MAX
-                } else {
-                    x.to_f64().to_bits()
-                }
-            })
-            .collect()
     }
 
     fn across_equals_per_sample<T: Real, const I: usize, const O: usize>(seed: u64) {

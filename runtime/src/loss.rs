@@ -253,20 +253,12 @@ pub fn softmax_cross_entropy_batch<T: Real>(
     if o == 0 {
         return;
     }
-    macro_rules! by_width {
-        ($($k:literal)*) => {
-            match o {
-                $($k => softmax_cross_entropy_blocks::<T, $k>(
-                    zs.as_chunks::<$k>().0,
-                    ys.as_chunks::<$k>().0,
-                    as_.as_chunks_mut::<$k>().0,
-                    losses,
-                ),)*
-                _ => 0,
-            }
-        };
-    }
-    let done = by_width!(1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16);
+    let done = by_length_1_to_16!(o, K => softmax_cross_entropy_blocks::<T, K>(
+        zs.as_chunks::<K>().0,
+        ys.as_chunks::<K>().0,
+        as_.as_chunks_mut::<K>().0,
+        losses,
+    ), _ => 0);
     let rows = zs
         .chunks_exact(o)
         .zip(ys.chunks_exact(o))
@@ -411,20 +403,8 @@ pub fn output_error<T: Real>(a: &[T], y: &[T], d: &mut [T]) {
 mod tests {
     use super::*;
     use crate::rng::SplitMix64;
+    use crate::testutil::same_bits;
     use std::vec::Vec;
-
-    /// Each value, every NaN as one (Rust leaves a NaN's sign and payload unspecified).
-    fn same_bits<T: Real>(v: &[T]) -> Vec<u64> {
-        v.iter()
-            .map(|x| {
-                if x.to_f64().is_nan() {
-                    u64::MAX
-                } else {
-                    x.to_f64().to_bits()
-                }
-            })
-            .collect()
-    }
 
     /// Logits for the fused softmax: mostly moderate, with ties, huge values, infinities and NaN.
     fn logit<T: Real>(rng: &mut SplitMix64) -> T {
