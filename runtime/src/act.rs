@@ -49,15 +49,45 @@ pub fn identity_grad<T: Real>(a: &[T], d: &mut [T]) {
 /// sinew_runtime::act::sigmoid(&mut v);
 /// assert_eq!(v, [0.5, 1.0, 0.0]);
 /// ```
+#[inline(always)]
 pub fn sigmoid<T: Real>(v: &mut [T]) {
-    for x in v.iter_mut() {
-        let z = *x;
+    by_lanes(v, |z| {
         // One exponential of `-|z|` (which is `-z` for `z >= 0` and `z` for `z < 0`, exactly) and
         // a select instead of a branch: the same operations as the two cases above, without a
         // mispredicted jump on every other unit.
         let e = (-z.abs()).exp();
         let numerator = if z >= T::ZERO { T::ONE } else { e };
-        *x = numerator / (T::ONE + e);
+        numerator / (T::ONE + e)
+    });
+}
+
+/// Lanes of an element-wise activation.
+const LANES: usize = 8;
+
+/// `v_i = f(v_i)` for every element, in chunks of [`LANES`] as fixed arrays. With
+/// [`Real::LANE_MATH`] the tail is computed as one zero-padded chunk too (the padding is computed
+/// and dropped), so that a layer of 10 units is two vector passes rather than one and two scalar
+/// calls of the 25-operation `exp`; each element's value is `f` of it alone, so the bits are the
+/// same either way.
+#[inline(always)]
+pub(crate) fn by_lanes<T: Real>(v: &mut [T], f: impl Fn(T) -> T) {
+    let (chunks, tail) = v.as_chunks_mut::<LANES>();
+    for e in chunks.as_flattened_mut() {
+        *e = f(*e);
+    }
+    if T::LANE_MATH && !tail.is_empty() {
+        // Read lane by lane (a copy of a run-time length would become a call to `memcpy`).
+        let mut x: [T; LANES] = core::array::from_fn(|k| tail.get(k).copied().unwrap_or(T::ZERO));
+        for e in x.iter_mut() {
+            *e = f(*e);
+        }
+        for (t, e) in tail.iter_mut().zip(x) {
+            *t = e;
+        }
+    } else {
+        for t in tail.iter_mut() {
+            *t = f(*t);
+        }
     }
 }
 
@@ -85,10 +115,9 @@ pub fn sigmoid_grad<T: Real>(a: &[T], d: &mut [T]) {
 /// sinew_runtime::act::tanh(&mut v);
 /// assert_eq!(v, [0.0, 1.0]);
 /// ```
+#[inline(always)]
 pub fn tanh<T: Real>(v: &mut [T]) {
-    for x in v.iter_mut() {
-        *x = x.tanh();
-    }
+    by_lanes(v, T::tanh);
 }
 
 /// Derivative of tanh from its output, `g'(z) = 1 - a^2`: `d_j *= 1 - a_j * a_j`.
@@ -193,6 +222,7 @@ pub fn leaky_relu_grad<T: Real>(a: &[T], d: &mut [T], alpha: T) {
 /// sinew_runtime::act::softmax(&mut v);
 /// assert_eq!(v, [0.5, 0.5]);
 /// ```
+#[inline(always)]
 pub fn softmax<T: Real>(v: &mut [T]) {
     let Some(first) = v.first() else {
         return;
@@ -203,9 +233,7 @@ pub fn softmax<T: Real>(v: &mut [T]) {
     }
     // The exponentials in a loop of their own (independent, so they run in SIMD lanes), then
     // the sum in increasing index, as one loop doing both would add them.
-    for x in v.iter_mut() {
-        *x = (*x - m).exp();
-    }
+    by_lanes(v, |x| (x - m).exp());
     let mut s = T::ZERO;
     for x in v.iter() {
         s += *x;
@@ -270,16 +298,28 @@ pub enum Activation<T> {
     Softmax,
 }
 
+/// `f(v)` with the width of `v` (1 to 16, known here only at run time) made a constant, so that
+/// the exponentials of a narrow layer run as the array form runs them (whole padded chunks, no
+/// copy of a run-time length). Same function, same bits.
+#[inline(always)]
+fn by_width<T: Real>(v: &mut [T], f: impl Fn(&mut [T])) {
+    by_length_1_to_16!(v.len(), K => {
+        if let Ok(v) = <&mut [T; K]>::try_from(&mut *v) {
+            f(v);
+        }
+    }, _ => f(v));
+}
+
 impl<T: Real> Activation<T> {
     /// Applies the activation in place: `v` holds `z` before and `a = g(z)` after.
     pub fn forward(&self, v: &mut [T]) {
         match *self {
             Activation::Identity => identity(v),
-            Activation::Sigmoid => sigmoid(v),
-            Activation::Tanh => tanh(v),
+            Activation::Sigmoid => by_width(v, sigmoid),
+            Activation::Tanh => by_width(v, tanh),
             Activation::Relu => relu(v),
             Activation::LeakyRelu(alpha) => leaky_relu(v, alpha),
-            Activation::Softmax => softmax(v),
+            Activation::Softmax => by_width(v, softmax),
         }
     }
 
@@ -302,6 +342,65 @@ mod tests {
     use super::*;
     use crate::rng::SplitMix64;
     use std::vec::Vec;
+
+    /// Sigmoid, tanh and softmax run in padded chunks of eight and, in [`Activation::forward`],
+    /// through a kernel per width: every width 0 to 40 must give the bits of the plain
+    /// element-by-element definition (softmax: maximum, exponentials, sum in increasing index,
+    /// divisions), for ordinary values, zeros of both signs, infinities and NaN.
+    #[test]
+    fn chunked_activations_equal_the_element_by_element_form() {
+        use crate::testutil::same_bits;
+        let mut rng = SplitMix64::new(5);
+        let special = [
+            0.0_f32,
+            -0.0,
+            f32::INFINITY,
+            f32::NEG_INFINITY,
+            f32::NAN,
+            88.0,
+            -104.0,
+        ];
+        for n in 0..=40_usize {
+            let z: Vec<f32> = (0..n)
+                .map(|i| match rng.next_u64() % 6 {
+                    0 => special[i % special.len()],
+                    _ => rng.uniform(-30.0, 30.0) as f32,
+                })
+                .collect();
+            let sig: Vec<f32> = z
+                .iter()
+                .map(|&z| {
+                    // The trait's functions (sinew's `f32` exp), not std's inherent ones.
+                    let e = Real::exp(-Real::abs(z));
+                    (if z >= 0.0 { 1.0 } else { e }) / (1.0 + e)
+                })
+                .collect();
+            let th: Vec<f32> = z.iter().map(|&z| Real::tanh(z)).collect();
+            let mut sm = z.clone();
+            if let Some(&first) = z.first() {
+                let m = z.iter().fold(first, |m, &x| Real::max(m, x));
+                sm.iter_mut().for_each(|x| *x = Real::exp(*x - m));
+                let s = sm.iter().fold(0.0_f32, |s, &x| s + x);
+                sm.iter_mut().for_each(|x| *x /= s);
+            }
+            for (act, want) in [
+                (Activation::Sigmoid, &sig),
+                (Activation::Tanh, &th),
+                (Activation::Softmax, &sm),
+            ] {
+                let mut got = z.clone();
+                act.forward(&mut got);
+                assert_eq!(same_bits(&got), same_bits(want), "{act:?} width {n}");
+                let mut direct = z.clone();
+                match act {
+                    Activation::Sigmoid => sigmoid(&mut direct),
+                    Activation::Tanh => tanh(&mut direct),
+                    _ => softmax(&mut direct),
+                }
+                assert_eq!(same_bits(&direct), same_bits(want), "{act:?} slice {n}");
+            }
+        }
+    }
 
     fn apply(f: fn(&mut [f64]), z: f64) -> f64 {
         let mut v = [z];

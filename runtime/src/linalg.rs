@@ -349,9 +349,31 @@ pub fn back<T: Real>(w: &[T], d: &[T], out: &mut [T]) {
     // each row is a fixed-size vector operation. Same operations, same bits.
     by_length_1_to_16!(out.len(), K => {
         if let Ok(out) = <&mut [T; K]>::try_from(&mut *out) {
-            back_with(w, d, out);
+            back_rows(w, d, out);
         }
     }, _ => back_with(w, d, out));
+}
+
+/// [`back_with`] for `K` outputs, summed in registers and stored once: the same additions in the
+/// same order (four rows per pass, then the rows left one by one), but no store to `out` between
+/// the loads of `w`, which the compiler could not tell apart from `out` inside the engine.
+#[inline(always)]
+fn back_rows<T: Real, const K: usize>(w: &[T], d: &[T], out: &mut [T; K]) {
+    let mut o = [T::ZERO; K];
+    let rows = w.as_chunks::<K>().0;
+    let blocks = rows.len().min(d.len()) / ROWS;
+    let (r4, d4) = (rows.as_chunks::<ROWS>().0, d.as_chunks::<ROWS>().0);
+    for ([r0, r1, r2, r3], [d0, d1, d2, d3]) in r4.iter().zip(d4).take(blocks) {
+        for k in 0..K {
+            o[k] = (((o[k] + r0[k] * *d0) + r1[k] * *d1) + r2[k] * *d2) + r3[k] * *d3;
+        }
+    }
+    for (row, dj) in rows.iter().zip(d).skip(blocks * ROWS) {
+        for (ok, wk) in o.iter_mut().zip(row) {
+            *ok += *wk * *dj;
+        }
+    }
+    *out = o;
 }
 
 /// The kernel of [`back`].
@@ -439,9 +461,24 @@ pub fn outer_acc<T: Real>(g: &mut [T], d: &[T], a: &[T]) {
     // that each row is a fixed-size vector operation. Same operations, same bits.
     by_length_1_to_16!(a.len(), K => {
         if let Ok(a) = <&[T; K]>::try_from(a) {
-            outer_acc_with(g, d, a);
+            outer_acc_rows(g, d, *a);
         }
     }, _ => outer_acc_with(g, d, a));
+}
+
+/// [`outer_acc`] for rows of `K` columns: `a` and each row are copied into registers before the
+/// row is written back, so the compiler needs no proof that `g` and `a` are apart to use vector
+/// operations (inlined into the engine, whose buffers it cannot tell apart, the element-wise
+/// form stayed scalar). Each element gets its one addition: the same bits.
+#[inline(always)]
+fn outer_acc_rows<T: Real, const K: usize>(g: &mut [T], d: &[T], a: [T; K]) {
+    for (row, dj) in g.as_chunks_mut::<K>().0.iter_mut().zip(d) {
+        let mut v = *row;
+        for (gji, ai) in v.iter_mut().zip(&a) {
+            *gji += *dj * *ai;
+        }
+        *row = v;
+    }
 }
 
 /// The kernel of [`outer_acc`].
@@ -992,6 +1029,16 @@ mod tests {
         s.extend([(784, 128), (128, 64), (64, 10), (1, 300), (300, 1)]);
         // More widths with single rows after the blocks of four.
         s.extend([(5, 12), (3, 15), (17, 13), (24, 20)]);
+        // Widths 10 to 16 (a kernel of its own per width in the slice forms).
+        s.extend([
+            (10, 8),
+            (16, 7),
+            (11, 3),
+            (14, 17),
+            (13, 13),
+            (12, 1),
+            (15, 6),
+        ]);
         s
     }
 

@@ -148,8 +148,9 @@ pub fn softmax_with_cross_entropy<T: Real>(z: &[T], y: &[T], a: &mut [T]) -> T {
         m = m.max(*zj);
     }
     for (aj, zj) in a.iter_mut().zip(z) {
-        *aj = (*zj - m).exp();
+        *aj = *zj;
     }
+    crate::act::by_lanes(a, |x| (x - m).exp());
     let mut s = T::ZERO;
     for aj in a.iter() {
         s += *aj;

@@ -58,6 +58,10 @@ pub trait Real:
     const TWO: Self;
     /// 1/2.
     const HALF: Self;
+    /// Whether [`Real::exp`] and [`Real::tanh`] are sinew's own branch-free functions, which the
+    /// compiler runs in SIMD lanes (`f32`), rather than library calls (`f64`, libm): the
+    /// activations then compute a short tail as a whole, zero-padded chunk.
+    const LANE_MATH: bool = false;
 
     /// `v` rounded to the nearest value of `Self` (exact for `f64`).
     fn from_f64(v: f64) -> Self;
@@ -86,12 +90,13 @@ pub trait Real:
 }
 
 macro_rules! impl_real {
-    ($t:ty, $exp:path, $ln:path, $ln1p:path, $tanh:path, $sqrt:path, $abs:path, $pow:path) => {
+    ($t:ty, $lanes:expr, $exp:path, $ln:path, $ln1p:path, $tanh:path, $sqrt:path, $abs:path, $pow:path) => {
         impl Real for $t {
             const ZERO: Self = 0.0;
             const ONE: Self = 1.0;
             const TWO: Self = 2.0;
             const HALF: Self = 0.5;
+            const LANE_MATH: bool = $lanes;
 
             #[inline]
             fn from_f64(v: f64) -> Self {
@@ -150,6 +155,7 @@ macro_rules! impl_real {
 
 impl_real!(
     f32,
+    true,
     crate::math::expf,
     libm::logf,
     libm::log1pf,
@@ -160,6 +166,7 @@ impl_real!(
 );
 impl_real!(
     f64,
+    false,
     libm::exp,
     libm::log,
     libm::log1p,
