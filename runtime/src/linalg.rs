@@ -265,7 +265,10 @@ pub fn affine<T: Real>(w: &[T], b: &[T], x: &[T], z: &mut [T]) {
     // its lane folds inline, as the array form runs them. Same operations, same bits.
     by_length_1_to_16!(x.len(), K => {
         if let Ok(x) = <&[T; K]>::try_from(x) {
-            affine_with::<T, true>(w, b, x, z);
+            // A copy in registers: a store to `z` cannot change it, so it is not loaded again
+            // for every row (the engine's buffers look alike to the compiler).
+            let x = *x;
+            affine_with::<T, true>(w, b, &x, z);
         }
     }, _ => affine_with::<T, false>(w, b, x, z));
 }

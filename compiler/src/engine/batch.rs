@@ -136,28 +136,28 @@ fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut
     let (Some(a_out), Some(d_out)) = (sb.a.last(), sb.d.last_mut()) else {
         return;
     };
-    let rows = sb
-        .z_out
-        .chunks_exact(n_out)
-        .zip(a_out.chunks_exact(n_out))
-        .zip(ys.chunks_exact(n_out));
-    for (loss, ((z, a), y)) in sb.losses.iter_mut().zip(rows).filter(|_| !fused) {
-        *loss = match (model.loss, out_act) {
-            (Loss::CrossEntropy, ir::Activation::Softmax) => rt::loss::softmax_cross_entropy(z, y),
-            (Loss::CrossEntropy, _) => rt::loss::logistic_cross_entropy(z, y),
-            (Loss::SquaredError, _) => rt::loss::squared_error(a, y),
-        };
+    if !fused {
+        let rows = sb
+            .z_out
+            .chunks_exact(n_out)
+            .zip(a_out.chunks_exact(n_out))
+            .zip(ys.chunks_exact(n_out));
+        for (loss, ((z, a), y)) in sb.losses.iter_mut().zip(rows) {
+            *loss = match (model.loss, out_act) {
+                (Loss::CrossEntropy, ir::Activation::Softmax) => {
+                    rt::loss::softmax_cross_entropy(z, y)
+                }
+                (Loss::CrossEntropy, _) => rt::loss::logistic_cross_entropy(z, y),
+                (Loss::SquaredError, _) => rt::loss::squared_error(a, y),
+            };
+        }
     }
-    for ((d, a), y) in d_out
-        .chunks_exact_mut(n_out)
-        .zip(a_out.chunks_exact(n_out))
-        .zip(ys.chunks_exact(n_out))
-    {
-        rt::loss::output_error(a, y, d);
-        if model.loss == Loss::SquaredError {
-            if let Some(act) = net.acts.last() {
-                act.backward(a, d);
-            }
+    // `d = a - y` is element-wise: one call over the used rows, not one per sample.
+    let (a_used, d_used) = (&a_out[..used * n_out], &mut d_out[..used * n_out]);
+    rt::loss::output_error(a_used, ys, d_used);
+    if model.loss == Loss::SquaredError {
+        if let Some(act) = net.acts.last() {
+            backward_rows(act, a_used, d_used, n_out);
         }
     }
     // Hidden errors, from the last hidden layer down to the first.
