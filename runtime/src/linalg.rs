@@ -817,13 +817,13 @@ fn outer_tile<T: Real, const R: usize, const C: usize>(
             *a = *g;
         }
     }
-    let samples = ds.len().checked_div(o).unwrap_or(0);
-    let samples = samples.min(xs.len().checked_div(n).unwrap_or(0));
-    for s in 0..samples {
-        let (Some(dv), Some(xv)) = (
-            ds.get(s * o + j..s * o + j + R),
-            xs.get(s * n + i..s * n + i + C),
-        ) else {
+    if o == 0 || n == 0 {
+        return;
+    }
+    // Sample by sample as whole rows, so that the checks of the tile's ranges inside a row do
+    // not depend on the sample (the compiler takes them out of the loop).
+    for (d_s, x_s) in ds.chunks_exact(o).zip(xs.chunks_exact(n)) {
+        let (Some(dv), Some(xv)) = (d_s.get(j..j + R), x_s.get(i..i + C)) else {
             continue;
         };
         let (Ok(dv), Ok(xv)) = (<&[T; R]>::try_from(dv), <&[T; C]>::try_from(xv)) else {
@@ -855,6 +855,13 @@ fn outer_rows<T: Real, const R: usize>(
     xs: &[T],
     (j, n, o): (usize, usize, usize),
 ) {
+    // Rows of at most 16 columns: the whole row is one tile (a kernel per width), so the samples
+    // pass once, not once for each tile of 8, 4 and 1 columns (N1's rows of 6 and 10 columns
+    // took three passes each). A speed choice only: the additions per element are the same.
+    if n <= 16 {
+        by_length_1_to_16!(n, C => outer_tile::<T, R, C>(rows, ds, xs, (j, 0, n, o)), _ => {});
+        return;
+    }
     let mut i = 0;
     // Tiles of 32 columns where vector registers hold 16 lanes (eight accumulators in flight, as
     // the 16-column tiles give 256-bit registers); a speed choice only, the additions per element
