@@ -6,6 +6,7 @@
 //! what a layer keeps. Slices of different lengths are paired by `zip`: surplus elements are left
 //! untouched.
 
+use crate::linalg::{padded, LANES};
 use crate::Real;
 
 /// Identity `g(z) = z`: leaves `v` as it is.
@@ -61,9 +62,6 @@ pub fn sigmoid<T: Real>(v: &mut [T]) {
     });
 }
 
-/// Lanes of an element-wise activation.
-const LANES: usize = 8;
-
 /// Whether the target has a floating-point vector unit, where a padded chunk costs what a short
 /// tail costs. On a scalar FPU (Cortex-M4F, RISC-V without V) the padding would be work thrown
 /// away (N1 inference on the M4F: 2442 -> 2728 instructions), so the tail stays element-wise.
@@ -73,8 +71,14 @@ const VECTOR_UNIT: bool = cfg!(any(
     target_feature = "simd128"
 ));
 
-/// `v_i = f(v_i)` for every element, in chunks of [`LANES`] as fixed arrays. With
-/// [`Real::LANE_MATH`], on a target with a vector unit, the tail is computed as one zero-padded
+/// Whether [`by_lanes`] computes a short tail as one padded chunk: for a type whose functions
+/// vectorise ([`Real::LANE_MATH`]) on a target with a vector unit ([`VECTOR_UNIT`]).
+const fn pads_tail<T: Real>() -> bool {
+    T::LANE_MATH && VECTOR_UNIT
+}
+
+/// `v_i = f(v_i)` for every element, in chunks of [`LANES`] as fixed arrays. Where
+/// [`pads_tail`] holds, the tail is computed as one zero-padded
 /// chunk too (the padding is computed and dropped), so that a layer of 10 units is two vector
 /// passes rather than one and two scalar calls of the 25-operation `exp`; each element's value is
 /// `f` of it alone, so the bits are the same either way.
@@ -84,9 +88,8 @@ pub(crate) fn by_lanes<T: Real>(v: &mut [T], f: impl Fn(T) -> T) {
     for e in chunks.as_flattened_mut() {
         *e = f(*e);
     }
-    if T::LANE_MATH && VECTOR_UNIT && !tail.is_empty() {
-        // Read lane by lane (a copy of a run-time length would become a call to `memcpy`).
-        let mut x: [T; LANES] = core::array::from_fn(|k| tail.get(k).copied().unwrap_or(T::ZERO));
+    if pads_tail::<T>() && !tail.is_empty() {
+        let mut x = padded(tail);
         for e in x.iter_mut() {
             *e = f(*e);
         }

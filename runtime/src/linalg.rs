@@ -81,7 +81,7 @@ fn lanes_mul_add<T: Real>(acc: &mut [T; LANES], w: &[T; LANES], x: &[T; LANES]) 
 /// `+0` and so is never `-0` (in round-to-nearest, `a + b` is `-0` only when both are `-0`), and
 /// `s + (+0) = s` for every `s` other than `-0`, NaN and infinities included.
 #[inline(always)]
-fn padded<T: Real>(tail: &[T]) -> [T; LANES] {
+pub(crate) fn padded<T: Real>(tail: &[T]) -> [T; LANES] {
     // Lane by lane (a copy of a run-time length would become a call to `memcpy`).
     core::array::from_fn(|k| tail.get(k).copied().unwrap_or(T::ZERO))
 }

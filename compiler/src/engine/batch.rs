@@ -153,7 +153,10 @@ fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut
         }
     }
     // `d = a - y` is element-wise: one call over the used rows, not one per sample.
-    let (a_used, d_used) = (&a_out[..used * n_out], &mut d_out[..used * n_out]);
+    let (Some(a_used), Some(d_used)) = (a_out.get(..used * n_out), d_out.get_mut(..used * n_out))
+    else {
+        return;
+    };
     rt::loss::output_error(a_used, ys, d_used);
     if model.loss == Loss::SquaredError {
         if let Some(act) = net.acts.last() {
@@ -163,18 +166,19 @@ fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut
     // Hidden errors, from the last hidden layer down to the first.
     for l in (1..model.layers.len()).rev() {
         let (lower, upper) = sb.d.split_at_mut(l);
-        if let (Some(d_prev), Some(d_l), Some(lp), Some(a_prev), Some(act), Some(prev)) = (
-            lower.last_mut(),
-            upper.first(),
+        let (Some(prev), Some(this)) = (model.layers.get(l - 1), model.layers.get(l)) else {
+            continue;
+        };
+        let (w, n) = (prev.width, this.width);
+        if let (Some(d_prev), Some(d_l), Some(lp), Some(a_prev), Some(act)) = (
+            lower.last_mut().and_then(|d| d.get_mut(..used * w)),
+            upper.first().and_then(|d| d.get(..used * n)),
             p.layers.get(l),
-            sb.a.get(l - 1),
+            sb.a.get(l - 1).and_then(|a| a.get(..used * w)),
             net.acts.get(l - 1),
-            model.layers.get(l - 1),
         ) {
-            let w = prev.width;
-            let d_prev = &mut d_prev[..used * w];
-            rt::back_batch(&lp.weights, &d_l[..used * model.layers[l].width], d_prev, w);
-            backward_rows(act, &a_prev[..used * w], d_prev, w);
+            rt::back_batch(&lp.weights, d_l, d_prev, w);
+            backward_rows(act, a_prev, d_prev, w);
         }
     }
 }
