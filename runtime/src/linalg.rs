@@ -994,9 +994,31 @@ pub fn add_acc_batch<T: Real>(g: &mut [T], ds: &[T]) {
     if g.is_empty() {
         return;
     }
-    for d in pieces(ds, g.len()) {
-        add_acc(g, d);
+    // Short rows (1 to 16, known here only at run time): the sums in registers, stored once.
+    by_length_1_to_16!(g.len(), K => {
+        if let Ok(g) = <&mut [T; K]>::try_from(&mut *g) {
+            add_acc_rows(g, ds);
+        }
+    }, _ => {
+        for d in pieces(ds, g.len()) {
+            add_acc(g, d);
+        }
+    });
+}
+
+/// [`add_acc_batch`] for rows of `K`: `g` is copied into registers, the rows are added in order
+/// and `g` is stored once (inside the engine, whose buffers the compiler cannot tell apart, the
+/// slice form loaded and stored `g` for every sample). Each element gets the same additions in
+/// the same order: the same bits.
+#[inline(always)]
+fn add_acc_rows<T: Real, const K: usize>(g: &mut [T; K], ds: &[T]) {
+    let mut acc = *g;
+    for d in ds.as_chunks::<K>().0 {
+        for (a, v) in acc.iter_mut().zip(d) {
+            *a += *v;
+        }
     }
+    *g = acc;
 }
 
 #[cfg(test)]

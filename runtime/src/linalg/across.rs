@@ -65,6 +65,45 @@ fn transpose<T: Real, const I: usize>(xs: &[[T; I]; BLOCK]) -> [Across<T>; I] {
     core::array::from_fn(|i| core::array::from_fn(|s| xs[s][i]))
 }
 
+/// `zs[s][j] = zt[j][s]` for the block's samples, `o <= W <= CHUNK` outputs each (`zs` holds
+/// `BLOCK * o` values, sample by sample).
+///
+/// Each sample is stored as `W` values from its first output: the `W - o` past its row land on
+/// the next sample's row, which is stored after it (the samples go in increasing order). A
+/// sample whose `W` values would pass the end of `zs` is stored value by value.
+#[inline(always)]
+fn rows_out<T: Real, const W: usize>(zt: &[Across<T>; CHUNK], zs: &mut [T], o: usize) {
+    for s in 0..BLOCK {
+        let row: [T; W] = core::array::from_fn(|j| zt.get(j).map_or(T::ZERO, |v| v[s]));
+        let Some(z) = zs.get_mut(s * o..) else { return };
+        if let Some(z) = z.first_chunk_mut::<W>() {
+            *z = row;
+        } else {
+            for (zj, v) in z.iter_mut().zip(row).take(o) {
+                *zj = v;
+            }
+        }
+    }
+}
+
+/// `dt[j][s] = ds[s][j]` for the block's samples, `o <= W <= CHUNK` errors each (`ds` holds
+/// `BLOCK * o` values, sample by sample). Each sample is read as `W` values from its first
+/// error (zeros past the end of `ds`); `dt[j]` for `j >= o` is left with values of the next
+/// sample, which [`back_across`] never reads (it stops at the `o` rows of `W`).
+#[inline(always)]
+fn rows_in<T: Real, const W: usize>(ds: &[T], o: usize, dt: &mut [Across<T>; CHUNK]) {
+    for s in 0..BLOCK {
+        let d = ds.get(s * o..).unwrap_or_default();
+        let row: [T; W] = match d.first_chunk::<W>() {
+            Some(r) => *r,
+            None => core::array::from_fn(|j| d.get(j).copied().unwrap_or(T::ZERO)),
+        };
+        for (dj, v) in dt.iter_mut().zip(row) {
+            dj[s] = v;
+        }
+    }
+}
+
 /// `zs[s] = W xs[s] + b` for the [`BLOCK`] samples of a block, bit for bit [`affine`] of each.
 ///
 /// `w` holds `o` rows of `I >= 1` inputs and `b` at least `o` values; `zs` holds the block's
@@ -81,6 +120,17 @@ pub(super) fn affine_block<T: Real, const I: usize>(
 ) {
     let xt = transpose(xs);
     let mut zt = [[T::ZERO; BLOCK]; CHUNK];
+    if o <= CHUNK && w.len() == o && b.len() == o {
+        // One chunk: the outputs go back as rows of a fixed width (a run-time `o` would make
+        // the copy a loop with a range check per value).
+        affine_across(w, b, &xt, zt.get_mut(..o).unwrap_or_default());
+        match o {
+            0..=4 => rows_out::<T, 4>(&zt, zs, o),
+            5..=8 => rows_out::<T, 8>(&zt, zs, o),
+            _ => rows_out::<T, CHUNK>(&zt, zs, o),
+        }
+        return;
+    }
     for (c, (wc, bc)) in w.chunks(CHUNK).zip(b.chunks(CHUNK)).enumerate() {
         let zc = zt.get_mut(..wc.len().min(bc.len())).unwrap_or_default();
         affine_across(wc, bc, &xt, zc);
@@ -136,16 +186,26 @@ pub(super) fn back_block<T: Real, const I: usize>(
 ) {
     let mut ot = [[T::ZERO; BLOCK]; I];
     let mut dt = [[T::ZERO; BLOCK]; CHUNK];
-    for (c, wc) in w.chunks(CHUNK).enumerate() {
-        let j0 = c * CHUNK;
-        for (s, d) in super::pieces(ds, o).enumerate().take(BLOCK) {
-            for (dj, v) in dt.iter_mut().zip(d.get(j0..).unwrap_or_default()) {
-                if let Some(slot) = dj.get_mut(s) {
-                    *slot = *v;
+    if o <= CHUNK && w.len() == o {
+        // One chunk, read as rows of a fixed width (see `affine_block`).
+        match o {
+            0..=4 => rows_in::<T, 4>(ds, o, &mut dt),
+            5..=8 => rows_in::<T, 8>(ds, o, &mut dt),
+            _ => rows_in::<T, CHUNK>(ds, o, &mut dt),
+        }
+        back_across(w, dt.get(..o).unwrap_or_default(), &mut ot);
+    } else {
+        for (c, wc) in w.chunks(CHUNK).enumerate() {
+            let j0 = c * CHUNK;
+            for (s, d) in super::pieces(ds, o).enumerate().take(BLOCK) {
+                for (dj, v) in dt.iter_mut().zip(d.get(j0..).unwrap_or_default()) {
+                    if let Some(slot) = dj.get_mut(s) {
+                        *slot = *v;
+                    }
                 }
             }
+            back_across(wc, dt.get(..wc.len()).unwrap_or_default(), &mut ot);
         }
-        back_across(wc, dt.get(..wc.len()).unwrap_or_default(), &mut ot);
     }
     for (s, out) in outs.iter_mut().enumerate() {
         for (oi, v) in out.iter_mut().zip(&ot) {
