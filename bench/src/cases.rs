@@ -285,14 +285,17 @@ fn engine_cases(v: &mut Vec<Case>, shape: Shape, layers: &crate::Layers) {
         black_box(&grad);
     }));
     v.push(case(shape, Op::Batch, "engine", move |iters| {
+        // A user training on the workstation holds the batch buffers across steps.
         let mut grad = engine::Params::zero_gradient(model);
+        let mut scratch = batch::BatchScratch::new(model);
         for _ in 0..iters {
-            black_box(batch::gradient_into(
+            black_box(batch::gradient_into_with(
                 net,
                 p,
                 black_box(&data.xs),
                 &data.ys,
                 &mut grad,
+                &mut scratch,
             ));
         }
         black_box(&grad);

@@ -77,6 +77,45 @@ fn parallel_batch_gradient_equals_sequential_loop_bitwise() {
     );
 }
 
+/// A 5-7-3 standardized sigmoid classifier: a shape unlike [`WIDE`], for the reused buffers.
+const NARROW: &str = "model narrow\nscalar f32\ninput x 5 standardize\nlayer h 7 sigmoid\n\
+output y 3 softmax\nloss cross_entropy\npenalty l2 0.01\ninit glorot seed 2\n";
+
+#[test]
+fn reused_batch_buffers_give_the_sequential_bits_for_any_size_and_shape() {
+    let models = [model(WIDE), model(NARROW)];
+    // One scratch, built for the narrow model, then handed both shapes and batch sizes that
+    // fill, underfill and overrun a block (64) and a sub-block (32).
+    let mut scratch = batch::BatchScratch::<f32>::new(&models[1]);
+    for (k, &(which, m_samples)) in [(0, 300), (0, 1), (1, 33), (0, 64), (1, 97), (1, 2), (0, 31)]
+        .iter()
+        .enumerate()
+    {
+        let m = &models[which];
+        let net = Net::<f32>::new(m);
+        let mut p = Params::<f32>::init(m, 3 + k as u64);
+        if m.input.standardize {
+            p.mean
+                .iter_mut()
+                .enumerate()
+                .for_each(|(i, v)| *v = 0.1 * i as f32);
+            p.std
+                .iter_mut()
+                .enumerate()
+                .for_each(|(i, v)| *v = 0.5 + 0.25 * i as f32);
+        }
+        let (xs, ys) = drawn(m, m_samples, 40 + k as u64);
+        let xs: Vec<f32> = xs.iter().map(|&v| v as f32).collect();
+        let ys: Vec<f32> = ys.iter().map(|&v| v as f32).collect();
+        let mut g_seq = Params::zero_gradient(m);
+        let c_seq = batch::gradient_sequential(&net, &p, &xs, &ys, &mut g_seq).unwrap();
+        let mut g = Params::zero_gradient(m);
+        let c = batch::gradient_into_with(&net, &p, &xs, &ys, &mut g, &mut scratch).unwrap();
+        assert_eq!(c_seq.to_bits(), c.to_bits(), "case {k}: cost");
+        assert_eq!(bits(&g_seq), bits(&g), "case {k}: gradient");
+    }
+}
+
 #[test]
 fn empty_batch_gives_none_and_zero_gradient() {
     let m = model(WIDE);

@@ -183,14 +183,76 @@ fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut
     }
 }
 
+/// Reusable buffers of [`gradient_into_with`]: the sub-blocks of one block, sized for a model.
+///
+/// A trainer holds one across steps, so a step allocates nothing. Handed a model of another
+/// shape, the buffers are rebuilt for it (never a panic, never a stale size).
+#[derive(Debug, Clone)]
+pub struct BatchScratch<T> {
+    /// Sub-blocks of one block, allocated as the batch sizes need them.
+    subs: Vec<SubBlock<T>>,
+    /// The shape the sub-blocks are sized for: standardize flag, input width, layer widths.
+    shape: Vec<usize>,
+}
+
+impl<T: Real> BatchScratch<T> {
+    /// Buffers for one full block of `model`.
+    pub fn new(model: &ir::Model) -> Self {
+        let mut s = BatchScratch {
+            subs: Vec::new(),
+            shape: Vec::new(),
+        };
+        s.fit(model, BLOCK / SUB_BLOCK);
+        s
+    }
+
+    /// `model`'s shape key.
+    fn shape_of(model: &ir::Model) -> impl Iterator<Item = usize> + '_ {
+        [usize::from(model.input.standardize), model.input.width]
+            .into_iter()
+            .chain(model.layers.iter().map(|l| l.width))
+    }
+
+    /// At least `count` sub-blocks sized for `model` (rebuilt if the shape differs).
+    fn fit(&mut self, model: &ir::Model, count: usize) -> &mut [SubBlock<T>] {
+        if !self.shape.iter().copied().eq(Self::shape_of(model)) {
+            self.shape.clear();
+            self.shape.extend(Self::shape_of(model));
+            self.subs.clear();
+        }
+        while self.subs.len() < count {
+            self.subs.push(SubBlock::new(model));
+        }
+        &mut self.subs[..count]
+    }
+}
+
 /// Zeroes `grad`, accumulates the gradient of every sample, finishes it (1/m and penalty) and
-/// returns the batch cost J. `None` (and `grad` zero) for an empty batch.
+/// returns the batch cost J. `None` (and `grad` zero) for an empty batch. Allocates its buffers;
+/// [`gradient_into_with`] reuses them.
 pub fn gradient_into<T: Real + Send + Sync>(
     net: &Net<'_, T>,
     p: &Params<T>,
     xs: &[T],
     ys: &[T],
     grad: &mut Params<T>,
+) -> Option<T> {
+    let mut scratch = BatchScratch {
+        subs: Vec::new(),
+        shape: Vec::new(),
+    };
+    gradient_into_with(net, p, xs, ys, grad, &mut scratch)
+}
+
+/// [`gradient_into`] with buffers held by the caller: the same bits, no allocation once
+/// `scratch` has grown to the batch.
+pub fn gradient_into_with<T: Real + Send + Sync>(
+    net: &Net<'_, T>,
+    p: &Params<T>,
+    xs: &[T],
+    ys: &[T],
+    grad: &mut Params<T>,
+    scratch: &mut BatchScratch<T>,
 ) -> Option<T> {
     let model = net.model;
     let (n_in, n_out) = (model.input.width, model.output().width);
@@ -205,24 +267,25 @@ pub fn gradient_into<T: Real + Send + Sync>(
     let work = model.parameters() * BLOCK;
     let parallel = work >= PARALLEL_MIN_WORK && rayon::current_num_threads() > 1;
     let subs_per_block = BLOCK / SUB_BLOCK;
-    let mut subs: Vec<SubBlock<T>> = (0..subs_per_block.min(m.div_ceil(SUB_BLOCK)))
-        .map(|_| SubBlock::new(model))
-        .collect();
+    let subs = scratch.fit(model, subs_per_block.min(m.div_ceil(SUB_BLOCK)));
     let mut loss_sum = T::ZERO;
     let (xs, ys) = (&xs[..m * n_in], &ys[..m * n_out]);
     for (xb, yb) in xs.chunks(BLOCK * n_in).zip(ys.chunks(BLOCK * n_out)) {
-        let pieces = xb
-            .chunks(SUB_BLOCK * n_in)
-            .zip(yb.chunks(SUB_BLOCK * n_out));
         let used_subs = xb.len().div_ceil(SUB_BLOCK * n_in);
         let subs = &mut subs[..used_subs];
+        let piece = |k: usize| {
+            let x = xb.chunks(SUB_BLOCK * n_in).nth(k).unwrap_or(&[]);
+            let y = yb.chunks(SUB_BLOCK * n_out).nth(k).unwrap_or(&[]);
+            (x, y)
+        };
         if parallel {
-            let pieces: Vec<(&[T], &[T])> = pieces.collect();
-            subs.par_iter_mut()
-                .zip(pieces.par_iter())
-                .for_each(|(sb, (x, y))| deltas(net, p, x, y, sb));
+            subs.par_iter_mut().enumerate().for_each(|(k, sb)| {
+                let (x, y) = piece(k);
+                deltas(net, p, x, y, sb);
+            });
         } else {
-            for (sb, (x, y)) in subs.iter_mut().zip(pieces) {
+            for (k, sb) in subs.iter_mut().enumerate() {
+                let (x, y) = piece(k);
                 deltas(net, p, x, y, sb);
             }
         }
@@ -235,6 +298,29 @@ pub fn gradient_into<T: Real + Send + Sync>(
     }
     net.finish(grad, p, m);
     Some(loss_sum / T::from_usize(m) + net.penalty_cost(p, m))
+}
+
+/// This layer's input and error rows of one sub-block (`x`: the sub-block's raw inputs).
+fn layer_rows<'a, T: Real>(
+    model: &ir::Model,
+    l: usize,
+    sb: &'a SubBlock<T>,
+    x: &'a [T],
+) -> (&'a [T], &'a [T]) {
+    let Some(layer) = model.layers.get(l) else {
+        return (&[], &[]);
+    };
+    let (n, o) = (layer.fan_in * sb.used, layer.width * sb.used);
+    let input: Option<&[T]> = match l.checked_sub(1) {
+        None if model.input.standardize => sb.x0.get(..n),
+        None => x.get(..n),
+        Some(below) => sb.a.get(below).and_then(|a| a.get(..n)),
+    };
+    let d = sb.d.get(l).and_then(|d| d.get(..o));
+    match (input, d) {
+        (Some(a), Some(d)) => (a, d),
+        _ => (&[], &[]),
+    }
 }
 
 /// `G += D^T A` and `g_b += sum d` of one block, layer by layer, sub-blocks in sample order.
@@ -253,24 +339,13 @@ fn accumulate<T: Real + Send + Sync>(
             continue;
         }
         // This layer's input and error rows of every sub-block, in sample order.
-        let parts: Vec<(&[T], &[T])> = subs
-            .iter()
-            .zip(xb.chunks(SUB_BLOCK * n_in))
-            .map(|(sb, x)| {
-                let input: &[T] = if l == 0 {
-                    if model.input.standardize {
-                        &sb.x0[..sb.used * n]
-                    } else {
-                        &x[..sb.used * n]
-                    }
-                } else {
-                    &sb.a[l - 1][..sb.used * n]
-                };
-                (input, &sb.d[l][..sb.used * o])
-            })
-            .collect();
+        let parts = || {
+            subs.iter()
+                .zip(xb.chunks(SUB_BLOCK * n_in))
+                .map(|(sb, x)| layer_rows(model, l, sb, x))
+        };
         let rows_of = |first: usize, g_rows: &mut [T]| {
-            for (a, d) in &parts {
+            for (a, d) in parts() {
                 rt::outer_acc_batch_rows(g_rows, d, a, n, (first, o));
             }
         };
@@ -283,7 +358,7 @@ fn accumulate<T: Real + Send + Sync>(
         } else {
             rows_of(0, &mut g.weights);
         }
-        for (_, d) in &parts {
+        for (_, d) in parts() {
             rt::add_acc_batch(&mut g.bias, d);
         }
     }

@@ -537,6 +537,8 @@ pub struct Trainer<'m, T> {
     pub state: OptState<T>,
     /// The optimizer (the spec's unless overridden).
     pub optimizer: Optimizer,
+    /// Buffers of the batch gradient, reused across steps.
+    pub scratch: batch::BatchScratch<T>,
 }
 
 impl<'m, T: Real + Send + Sync> Trainer<'m, T> {
@@ -552,14 +554,21 @@ impl<'m, T: Real + Send + Sync> Trainer<'m, T> {
                 t: 0,
             },
             optimizer: model.train.optimizer,
+            scratch: batch::BatchScratch::new(model),
         }
     }
 
     /// One step over the samples in `xs` / `ys` (row-major): returns J before the update. An
     /// empty batch returns ZERO and changes nothing.
     pub fn step(&mut self, xs: &[T], ys: &[T]) -> T {
-        let Some(cost) = batch::gradient_into(&self.net, &self.params, xs, ys, &mut self.grad)
-        else {
+        let Some(cost) = batch::gradient_into_with(
+            &self.net,
+            &self.params,
+            xs,
+            ys,
+            &mut self.grad,
+            &mut self.scratch,
+        ) else {
             return T::ZERO;
         };
         self.net.update(

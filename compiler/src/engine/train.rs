@@ -326,6 +326,7 @@ pub fn train<T: Real + Send + Sync>(
             let (n_in, n_out) = (model.input.width, model.output().width);
             let mut bx: Vec<T> = Vec::with_capacity(batch_size * n_in);
             let mut by: Vec<T> = Vec::with_capacity(batch_size * n_out);
+            let mut scratch = batch::BatchScratch::new(model);
             let diverged = |epoch| TrainError::Diverged {
                 epoch,
                 rate: Some(rate_of(optimizer)),
@@ -339,7 +340,8 @@ pub fn train<T: Real + Send + Sync>(
                         bx.extend(train.xs.iter().skip(i * n_in).take(n_in));
                         by.extend(train.ys.iter().skip(i * n_out).take(n_out));
                     }
-                    let cost = batch::gradient_into(&net, &p, &bx, &by, &mut grad);
+                    let cost =
+                        batch::gradient_into_with(&net, &p, &bx, &by, &mut grad, &mut scratch);
                     if cost.is_some_and(|c| !c.to_f64().is_finite()) {
                         return Err(diverged(epoch));
                     }
@@ -390,7 +392,7 @@ mod lbfgs {
     struct Problem<'a, 'm, T> {
         net: &'a Net<'m, T>,
         data: &'a Samples<T>,
-        scratch: Mutex<(Params<T>, Params<T>)>,
+        scratch: Mutex<(Params<T>, Params<T>, batch::BatchScratch<T>)>,
         stop: &'a AtomicBool,
     }
 
@@ -400,9 +402,9 @@ mod lbfgs {
                 return Err(Error::msg("stopped early"));
             }
             let mut guard = self.scratch.lock().map_err(|_| Error::msg("poisoned"))?;
-            let (p, g) = &mut *guard;
+            let (p, g, s) = &mut *guard;
             p.set_flat_f64(flat);
-            let cost = batch::gradient_into(self.net, p, &self.data.xs, &self.data.ys, g)
+            let cost = batch::gradient_into_with(self.net, p, &self.data.xs, &self.data.ys, g, s)
                 .map(|c| c.to_f64())
                 .unwrap_or(0.0);
             Ok((cost, g.flat_f64()))
@@ -455,7 +457,7 @@ mod lbfgs {
         let problem = Problem {
             net,
             data,
-            scratch: Mutex::new((template, grad)),
+            scratch: Mutex::new((template, grad, batch::BatchScratch::new(net.model))),
             stop,
         };
         let solver = LBFGS::new(MoreThuenteLineSearch::new(), memory.max(1));
