@@ -847,7 +847,24 @@ fn outer_tile<T: Real, const R: usize, const C: usize>(
     }
 }
 
-/// All column tiles of a group of `R` gradient rows starting at row `j`.
+/// Widest column tile of [`outer_rows`]: its `ROWS x TILE` accumulators must stay in registers.
+/// With 16 lanes per register (AVX-512) 32 columns (eight accumulators in flight, as 16 columns
+/// give 256-bit registers); with 128-bit registers only (x86-64 without AVX) 8 columns, since
+/// `4 x 16` accumulators would take all sixteen registers and spill (measured on N2 in the
+/// `default` build: the batch gradient was slower than the per-sample loop). A speed choice
+/// only: the additions per element are the same for every tiling.
+const TILE: usize = if cfg!(target_feature = "avx512f") {
+    32
+} else if cfg!(any(target_feature = "avx", not(target_arch = "x86_64"))) {
+    16
+} else {
+    8
+};
+
+/// All column tiles of a group of `R` gradient rows starting at row `j`: tiles of [`TILE`]
+/// columns (then one of 16 if at least that many remain), and the rest of the row as one tile of
+/// its exact width (a kernel per width from 1 to 15), so the samples pass once per tile, not once
+/// for each tile of 8, 4 and 1 columns.
 #[inline(always)]
 fn outer_rows<T: Real, const R: usize>(
     rows: &mut [T],
@@ -855,38 +872,18 @@ fn outer_rows<T: Real, const R: usize>(
     xs: &[T],
     (j, n, o): (usize, usize, usize),
 ) {
-    // Rows of at most 16 columns: the whole row is one tile (a kernel per width), so the samples
-    // pass once, not once for each tile of 8, 4 and 1 columns (N1's rows of 6 and 10 columns
-    // took three passes each). A speed choice only: the additions per element are the same.
-    if n <= 16 {
-        by_length_1_to_16!(n, C => outer_tile::<T, R, C>(rows, ds, xs, (j, 0, n, o)), _ => {});
-        return;
-    }
     let mut i = 0;
-    // Tiles of 32 columns where vector registers hold 16 lanes (eight accumulators in flight, as
-    // the 16-column tiles give 256-bit registers); a speed choice only, the additions per element
-    // are the same.
-    if cfg!(target_feature = "avx512f") {
-        while i + 32 <= n {
-            outer_tile::<T, R, 32>(rows, ds, xs, (j, i, n, o));
-            i += 32;
-        }
+    while i + TILE <= n {
+        outer_tile::<T, R, TILE>(rows, ds, xs, (j, i, n, o));
+        i += TILE;
     }
-    while i + 16 <= n {
+    if TILE > 16 && i + 16 <= n {
         outer_tile::<T, R, 16>(rows, ds, xs, (j, i, n, o));
         i += 16;
     }
-    if i + 8 <= n {
-        outer_tile::<T, R, 8>(rows, ds, xs, (j, i, n, o));
-        i += 8;
-    }
-    if i + 4 <= n {
-        outer_tile::<T, R, 4>(rows, ds, xs, (j, i, n, o));
-        i += 4;
-    }
-    while i < n {
-        outer_tile::<T, R, 1>(rows, ds, xs, (j, i, n, o));
-        i += 1;
+    let rest = n - i;
+    if rest > 0 {
+        by_length_1_to_16!(rest, C => outer_tile::<T, R, C>(rows, ds, xs, (j, i, n, o)), _ => {});
     }
 }
 
