@@ -1,27 +1,13 @@
 //! The build API bakes a weights file into the generated module, exact to the bit, and refuses
 //! weights that belong to another model.
 
-use std::path::{Path, PathBuf};
+mod common;
 
-fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("..")
-}
-
-fn scratch(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("sinew-bw-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
-}
-
-fn model(spec: &str) -> sinew::ir::Model {
-    let src = std::fs::read_to_string(root().join(spec)).unwrap();
-    sinew::check_source(&src).model.unwrap()
-}
+use common::*;
 
 #[test]
 fn baked_weights_appear_with_exact_bit_patterns() {
-    let dir = scratch("ok");
+    let dir = scratch("bw", "ok");
     let spec = root().join("samples/valve_gate.sinew");
     let m = model("samples/valve_gate.sinew");
     let w = sinew::workflow::init(&m, Some(42));
@@ -50,7 +36,7 @@ fn baked_weights_appear_with_exact_bit_patterns() {
 
 #[test]
 fn weights_of_another_model_fail_the_build() {
-    let dir = scratch("bad");
+    let dir = scratch("bw", "bad");
     let other = sinew::workflow::init(&model("samples/greenhouse_humidity.sinew"), None);
     let wpath = dir.join("other.json");
     other.save(&wpath).unwrap();

@@ -1,35 +1,9 @@
 //! The `sinew` command end to end: every subcommand's success and failure paths and exit codes
 //! (0 success, 1 errors in a spec or in data/weights that do not fit it, 2 usage or I/O).
 
-use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+mod common;
 
-fn sinew(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_sinew"))
-        .args(args)
-        .current_dir(root())
-        .output()
-        .expect("the sinew binary runs")
-}
-
-fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("..")
-}
-
-fn text(o: &Output) -> String {
-    format!(
-        "{}{}",
-        String::from_utf8_lossy(&o.stdout),
-        String::from_utf8_lossy(&o.stderr)
-    )
-}
-
-fn scratch(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("sinew-cli-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
-}
+use common::*;
 
 fn samples() -> Vec<String> {
     let mut v: Vec<String> = std::fs::read_dir(root().join("samples"))
@@ -122,7 +96,7 @@ fn emit_prints_rust_and_rejects_bad_specs() {
         sinew(&["emit", first.to_str().unwrap()]).status.code(),
         Some(1)
     );
-    let dir = scratch("emit");
+    let dir = scratch("cli", "emit");
     let out = dir.join("deep/pump.rs");
     let o = sinew(&[
         "emit",
@@ -136,7 +110,7 @@ fn emit_prints_rust_and_rejects_bad_specs() {
 
 #[test]
 fn init_train_eval_grad_gradcheck_round_trip() {
-    let dir = scratch("train");
+    let dir = scratch("cli", "train");
     let w0 = dir.join("init.json");
     let w = dir.join("w.json");
     let plot = dir.join("loss.svg");
@@ -214,7 +188,7 @@ fn gradcheck_passes_on_every_sample() {
 
 #[test]
 fn failures_exit_with_their_codes_and_write_nothing() {
-    let dir = scratch("fail");
+    let dir = scratch("cli", "fail");
     let w = dir.join("w.json");
     let ws = w.to_str().unwrap();
     // Weights of another model are refused by fingerprint.

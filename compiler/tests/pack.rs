@@ -1,44 +1,13 @@
 //! `sinew pack`: writes the device weight blob of trained weights, with exit codes 0 (written), 1
 //! (the spec has errors or the weights do not fit it) and 2 (a file cannot be read or written).
 
-use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+mod common;
 
-fn sinew(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_sinew"))
-        .args(args)
-        .current_dir(root())
-        .output()
-        .expect("the sinew binary runs")
-}
-
-fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("..")
-}
-
-fn text(o: &Output) -> String {
-    format!(
-        "{}{}",
-        String::from_utf8_lossy(&o.stdout),
-        String::from_utf8_lossy(&o.stderr)
-    )
-}
-
-fn scratch(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("sinew-pack-cli-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
-}
-
-fn model(spec: &str) -> sinew::ir::Model {
-    let src = std::fs::read_to_string(root().join(spec)).unwrap();
-    sinew::check_source(&src).model.unwrap()
-}
+use common::*;
 
 #[test]
 fn pack_writes_the_blob_into_a_new_folder() {
-    let dir = scratch("ok");
+    let dir = scratch("pack-cli", "ok");
     let weights = dir.join("valve.json");
     let o = sinew(&[
         "init",
@@ -83,7 +52,7 @@ fn pack_writes_the_blob_into_a_new_folder() {
 
 #[test]
 fn weights_of_another_model_exit_1_and_write_nothing() {
-    let dir = scratch("mismatch");
+    let dir = scratch("pack-cli", "mismatch");
     let weights = dir.join("valve.json");
     let o = sinew(&[
         "init",
@@ -109,7 +78,7 @@ fn weights_of_another_model_exit_1_and_write_nothing() {
 
 #[test]
 fn unreadable_and_unwritable_files_exit_2() {
-    let dir = scratch("io");
+    let dir = scratch("pack-cli", "io");
     let o = sinew(&[
         "pack",
         "samples/valve_gate.sinew",
@@ -151,7 +120,7 @@ fn unreadable_and_unwritable_files_exit_2() {
 
 #[test]
 fn a_spec_with_errors_exits_1() {
-    let dir = scratch("spec");
+    let dir = scratch("pack-cli", "spec");
     let spec = dir.join("bad.sinew");
     std::fs::write(&spec, "model bad\ninput x 2\noutput y 1 softmax\n").unwrap();
     let o = sinew(&[
