@@ -4,10 +4,11 @@
 mod common;
 
 use common::*;
+use std::path::{Path, PathBuf};
+use std::process::Output;
 
-#[test]
-fn pack_writes_the_blob_into_a_new_folder() {
-    let dir = scratch("pack-cli", "ok");
+/// Fresh weights of the valve sample in `dir` (by `sinew init`), its path.
+fn init_valve(dir: &Path) -> PathBuf {
     let weights = dir.join("valve.json");
     let o = sinew(&[
         "init",
@@ -16,15 +17,24 @@ fn pack_writes_the_blob_into_a_new_folder() {
         weights.to_str().unwrap(),
     ]);
     assert_eq!(o.status.code(), Some(0), "{}", text(&o));
+    weights
+}
+
+/// `sinew pack SPEC --weights WEIGHTS -o OUT`.
+fn pack(spec: &str, weights: &str, out: &str) -> Output {
+    sinew(&["pack", spec, "--weights", weights, "-o", out])
+}
+
+#[test]
+fn pack_writes_the_blob_into_a_new_folder() {
+    let dir = scratch("pack-cli", "ok");
+    let weights = init_valve(&dir);
     let out = dir.join("nested/deeper/valve.bin");
-    let o = sinew(&[
-        "pack",
+    let o = pack(
         "samples/valve_gate.sinew",
-        "--weights",
         weights.to_str().unwrap(),
-        "-o",
         out.to_str().unwrap(),
-    ]);
+    );
     assert_eq!(o.status.code(), Some(0), "{}", text(&o));
     let m = model("samples/valve_gate.sinew");
     let blob = std::fs::read(&out).unwrap();
@@ -53,23 +63,13 @@ fn pack_writes_the_blob_into_a_new_folder() {
 #[test]
 fn weights_of_another_model_exit_1_and_write_nothing() {
     let dir = scratch("pack-cli", "mismatch");
-    let weights = dir.join("valve.json");
-    let o = sinew(&[
-        "init",
-        "samples/valve_gate.sinew",
-        "-o",
-        weights.to_str().unwrap(),
-    ]);
-    assert_eq!(o.status.code(), Some(0), "{}", text(&o));
+    let weights = init_valve(&dir);
     let out = dir.join("pump.bin");
-    let o = sinew(&[
-        "pack",
+    let o = pack(
         "samples/pump_health.sinew",
-        "--weights",
         weights.to_str().unwrap(),
-        "-o",
         out.to_str().unwrap(),
-    ]);
+    );
     assert_eq!(o.status.code(), Some(1), "{}", text(&o));
     assert!(text(&o).contains("error[F11]"), "{}", text(&o));
     assert!(!out.exists());
@@ -79,41 +79,25 @@ fn weights_of_another_model_exit_1_and_write_nothing() {
 #[test]
 fn unreadable_and_unwritable_files_exit_2() {
     let dir = scratch("pack-cli", "io");
-    let o = sinew(&[
-        "pack",
+    let o = pack(
         "samples/valve_gate.sinew",
-        "--weights",
         dir.join("missing.json").to_str().unwrap(),
-        "-o",
         dir.join("x.bin").to_str().unwrap(),
-    ]);
+    );
     assert_eq!(o.status.code(), Some(2), "{}", text(&o));
-    let weights = dir.join("valve.json");
-    let o = sinew(&[
-        "init",
-        "samples/valve_gate.sinew",
-        "-o",
-        weights.to_str().unwrap(),
-    ]);
-    assert_eq!(o.status.code(), Some(0), "{}", text(&o));
+    let weights = init_valve(&dir);
     // The output's "folder" is a file: it cannot be created.
-    let o = sinew(&[
-        "pack",
+    let o = pack(
         "samples/valve_gate.sinew",
-        "--weights",
         weights.to_str().unwrap(),
-        "-o",
         weights.join("x.bin").to_str().unwrap(),
-    ]);
+    );
     assert_eq!(o.status.code(), Some(2), "{}", text(&o));
-    let o = sinew(&[
-        "pack",
+    let o = pack(
         dir.join("missing.sinew").to_str().unwrap(),
-        "--weights",
         weights.to_str().unwrap(),
-        "-o",
         dir.join("x.bin").to_str().unwrap(),
-    ]);
+    );
     assert_eq!(o.status.code(), Some(2), "{}", text(&o));
     std::fs::remove_dir_all(&dir).unwrap();
 }
@@ -123,14 +107,11 @@ fn a_spec_with_errors_exits_1() {
     let dir = scratch("pack-cli", "spec");
     let spec = dir.join("bad.sinew");
     std::fs::write(&spec, "model bad\ninput x 2\noutput y 1 softmax\n").unwrap();
-    let o = sinew(&[
-        "pack",
+    let o = pack(
         spec.to_str().unwrap(),
-        "--weights",
         "w.json",
-        "-o",
         dir.join("x.bin").to_str().unwrap(),
-    ]);
+    );
     assert_eq!(o.status.code(), Some(1), "{}", text(&o));
     std::fs::remove_dir_all(&dir).unwrap();
 }
