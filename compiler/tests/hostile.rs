@@ -334,35 +334,22 @@ fn wide_model() -> sinew::ir::Model {
     sinew::check_source(WIDE).model.expect("WIDE is valid")
 }
 
+/// The build error of the spec `file` in `dir`, which must be refused (`why` says why).
+fn refused(dir: &Path, file: &str, why: &str) -> String {
+    let err = sinew::Builder::new()
+        .spec(dir.join(file))
+        .out_dir(dir.join("out"))
+        .cargo_metadata(false)
+        .compile()
+        .expect_err(why);
+    format!("{err}")
+}
+
 fn child_task(task: &str, dir: &Path) -> String {
     match task {
-        "huge_spec" => {
-            let err = sinew::Builder::new()
-                .spec(dir.join("huge.sinew"))
-                .out_dir(dir.join("out"))
-                .cargo_metadata(false)
-                .compile()
-                .expect_err("a 100 MB spec is refused");
-            format!("{err}")
-        }
-        "long_word_spec" => {
-            let err = sinew::Builder::new()
-                .spec(dir.join("long_word.sinew"))
-                .out_dir(dir.join("out"))
-                .cargo_metadata(false)
-                .compile()
-                .expect_err("a spec of one long word is refused");
-            format!("{err}")
-        }
-        "enormous_widths" => {
-            let err = sinew::Builder::new()
-                .spec(dir.join("enormous.sinew"))
-                .out_dir(dir.join("out"))
-                .cargo_metadata(false)
-                .compile()
-                .expect_err("enormous widths are refused");
-            format!("{err}")
-        }
+        "huge_spec" => refused(dir, "huge.sinew", "a 100 MB spec is refused"),
+        "long_word_spec" => refused(dir, "long_word.sinew", "a spec of one long word is refused"),
+        "enormous_widths" => refused(dir, "enormous.sinew", "enormous widths are refused"),
         "long_csv_line" => {
             let model = sinew::check_source(WIDE).model.expect("valid");
             let err = sinew::data::read_csv(&dir.join("long_line.csv"), &model)
