@@ -82,8 +82,17 @@ fn lanes_mul_add<T: Real>(acc: &mut [T; LANES], w: &[T; LANES], x: &[T; LANES]) 
 /// `s + (+0) = s` for every `s` other than `-0`, NaN and infinities included.
 #[inline(always)]
 pub(crate) fn padded<T: Real>(tail: &[T]) -> [T; LANES] {
-    // Lane by lane (a copy of a run-time length would become a call to `memcpy`).
-    core::array::from_fn(|k| tail.get(k).copied().unwrap_or(T::ZERO))
+    // Lane by lane over the fixed count (a copy of a run-time length would become a call to
+    // `memcpy`), and without a closure: `array::from_fn`'s closure was left out of line in some
+    // builds, a call per lane in the paired forward pass (N2 batch, v3: 5311 -> 5523 instructions
+    // per sample from an unrelated change elsewhere in the crate).
+    let mut out = [T::ZERO; LANES];
+    for (k, o) in out.iter_mut().enumerate() {
+        if let Some(v) = tail.get(k) {
+            *o = *v;
+        }
+    }
+    out
 }
 
 /// The lane accumulators of one row: `acc_k = sum over i = k (mod LANES) of w_i x_i`, from `ZERO`
@@ -651,8 +660,9 @@ fn affine_batch_with<T: Real, const INLINE: bool, const PAIRS: bool>(
             .take(groups)
         {
             let mut xi = pieces(xg, n);
-            let x: [&[T]; SAMPLES] = core::array::from_fn(|_| xi.next().unwrap_or_default());
-            let xt = x.map(input_tail);
+            // Written out (no `array::from_fn` or `map` closures to be left out of line).
+            let x: [&[T]; SAMPLES] = [xi.next().unwrap_or_default(), xi.next().unwrap_or_default()];
+            let xt = [input_tail(x[0]), input_tail(x[1])];
             let acc = rows4_lanes_x2(r, x, &xt);
             for (z, a) in pieces_mut(zg, o).zip(acc) {
                 let Some(zb) = z.get_mut(j..j + ROWS) else {

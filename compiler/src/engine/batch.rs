@@ -338,14 +338,18 @@ fn accumulate<T: Real + Send + Sync>(
         if n == 0 || o == 0 {
             continue;
         }
-        // This layer's input and error rows of every sub-block, in sample order.
-        let parts = || {
-            subs.iter()
-                .zip(xb.chunks(SUB_BLOCK * n_in))
-                .map(|(sb, x)| layer_rows(model, l, sb, x))
-        };
+        // This layer's input and error rows of every sub-block, in sample order: a fixed array
+        // (an iterator rebuilt inside the row loop cost the N2 and N3 accumulation 10-25 % more
+        // instructions; a `Vec` costs an allocation per layer and block).
+        let mut parts = [(&[][..], &[][..]); BLOCK / SUB_BLOCK];
+        for (part, (sb, x)) in parts
+            .iter_mut()
+            .zip(subs.iter().zip(xb.chunks(SUB_BLOCK * n_in)))
+        {
+            *part = layer_rows(model, l, sb, x);
+        }
         let rows_of = |first: usize, g_rows: &mut [T]| {
-            for (a, d) in parts() {
+            for &(a, d) in parts.iter().take(subs.len()) {
                 rt::outer_acc_batch_rows(g_rows, d, a, n, (first, o));
             }
         };
@@ -358,7 +362,7 @@ fn accumulate<T: Real + Send + Sync>(
         } else {
             rows_of(0, &mut g.weights);
         }
-        for (_, d) in parts() {
+        for &(_, d) in parts.iter().take(subs.len()) {
             rt::add_acc_batch(&mut g.bias, d);
         }
     }
