@@ -67,6 +67,37 @@ fn lane_sum<T: Real, const INLINE: bool>(l: [T; LANES]) -> T {
     }
 }
 
+/// [`lane_fold`] of four rows at once: each `s_j` gets exactly `lane_fold(l[j])`, written as
+/// `h = lo + hi` (the row's two halves added lane by lane) and `s = (h0 + h2) + (h1 + h3)`, the
+/// same additions in the same order, so that the four rows' halves and sums fill vector lanes.
+#[inline(always)]
+fn lane_fold4<T: Real>(l: [[T; LANES]; ROWS]) -> [T; ROWS] {
+    let mut s = [T::ZERO; ROWS];
+    for (sj, lj) in s.iter_mut().zip(l) {
+        let [l0, l1, l2, l3, l4, l5, l6, l7] = lj;
+        let (h0, h1, h2, h3) = (l0 + l4, l1 + l5, l2 + l6, l3 + l7);
+        *sj = (h0 + h2) + (h1 + h3);
+    }
+    s
+}
+
+/// [`lane_fold4`] behind one call (for the four rows of a block of long rows; see
+/// [`lane_sum_call`]).
+#[inline(never)]
+fn lane_sum4_call<T: Real>(l: [[T; LANES]; ROWS]) -> [T; ROWS] {
+    lane_fold4(l)
+}
+
+/// The lane sums of a block of four rows: [`lane_fold4`], inline when `INLINE`.
+#[inline(always)]
+fn lane_sum4<T: Real, const INLINE: bool>(l: [[T; LANES]; ROWS]) -> [T; ROWS] {
+    if INLINE {
+        lane_fold4(l)
+    } else {
+        lane_sum4_call(l)
+    }
+}
+
 /// `acc_k += w_k * x_k` for the `LANES` lanes (one SIMD multiply and add per vector register).
 #[inline(always)]
 fn lanes_mul_add<T: Real>(acc: &mut [T; LANES], w: &[T; LANES], x: &[T; LANES]) {
@@ -302,8 +333,12 @@ fn affine_with<T: Real, const INLINE: bool>(w: &[T], b: &[T], x: &[T], z: &mut [
         let Some(rows) = four_rows(wb, n) else {
             continue;
         };
-        for ((zj, bj), l) in zb.iter_mut().zip(bb).zip(rows4_lanes(rows, x, &xt)) {
-            *zj = lane_sum::<T, INLINE>(l) + *bj;
+        for ((zj, bj), s) in zb
+            .iter_mut()
+            .zip(bb)
+            .zip(lane_sum4::<T, INLINE>(rows4_lanes(rows, x, &xt)))
+        {
+            *zj = s + *bj;
         }
     }
     for ((row, bj), zj) in pieces(w, n).zip(b).zip(z.iter_mut()).skip(blocks * ROWS) {
@@ -409,7 +444,11 @@ fn back_with<T: Real>(w: &[T], d: &[T], out: &mut [T]) {
             continue;
         };
         // Whole chunks of `LANES` columns as fixed arrays (the compiler vectorises those; over
-        // the zip of five slices it kept one column at a time), then the tail.
+        // the zip of five slices it kept one column at a time), then the tail. The four errors
+        // and each chunk of `out` are copied to locals first: once this kernel is inlined into a
+        // larger function (the generated batch gradient) the compiler can no longer tell `out`
+        // from `d`, reloaded every `d_j` after each store and kept the loop scalar.
+        let (d0, d1, d2, d3) = (*d0, *d1, *d2, *d3);
         let (oc, ot) = out.as_chunks_mut::<LANES>();
         let ((c0, t0), (c1, t1), (c2, t2), (c3, t3)) = (
             r0.as_chunks::<LANES>(),
@@ -418,12 +457,14 @@ fn back_with<T: Real>(w: &[T], d: &[T], out: &mut [T]) {
             r3.as_chunks::<LANES>(),
         );
         for ((((o, w0), w1), w2), w3) in oc.iter_mut().zip(c0).zip(c1).zip(c2).zip(c3) {
+            let mut acc = *o;
             for k in 0..LANES {
-                o[k] = (((o[k] + w0[k] * *d0) + w1[k] * *d1) + w2[k] * *d2) + w3[k] * *d3;
+                acc[k] = (((acc[k] + w0[k] * d0) + w1[k] * d1) + w2[k] * d2) + w3[k] * d3;
             }
+            *o = acc;
         }
         for ((((o, w0), w1), w2), w3) in ot.iter_mut().zip(t0).zip(t1).zip(t2).zip(t3) {
-            *o = (((*o + *w0 * *d0) + *w1 * *d1) + *w2 * *d2) + *w3 * *d3;
+            *o = (((*o + *w0 * d0) + *w1 * d1) + *w2 * d2) + *w3 * d3;
         }
     }
     for (row, dj) in pieces(w, n).zip(d).skip(blocks * ROWS) {
@@ -668,8 +709,8 @@ fn affine_batch_with<T: Real, const INLINE: bool, const PAIRS: bool>(
                 let Some(zb) = z.get_mut(j..j + ROWS) else {
                     continue;
                 };
-                for ((zj, bj), l) in zb.iter_mut().zip(bb).zip(a) {
-                    *zj = lane_sum::<T, INLINE>(l) + *bj;
+                for ((zj, bj), s) in zb.iter_mut().zip(bb).zip(lane_sum4::<T, INLINE>(a)) {
+                    *zj = s + *bj;
                 }
             }
         }
@@ -681,8 +722,9 @@ fn affine_batch_with<T: Real, const INLINE: bool, const PAIRS: bool>(
             let Some(zb) = z.get_mut(j..j + ROWS) else {
                 continue;
             };
-            for ((zj, bj), l) in zb.iter_mut().zip(bb).zip(rows4_lanes(r, x, &input_tail(x))) {
-                *zj = lane_sum::<T, INLINE>(l) + *bj;
+            let sums = lane_sum4::<T, INLINE>(rows4_lanes(r, x, &input_tail(x)));
+            for ((zj, bj), s) in zb.iter_mut().zip(bb).zip(sums) {
+                *zj = s + *bj;
             }
         }
     }
