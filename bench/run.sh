@@ -21,7 +21,9 @@ while [ $# -gt 0 ]; do
     case "$1" in
         --builds) builds="$2"; shift 2 ;;
         --filter) filter="$2"; shift 2 ;;
-        --callgrind) callgrind=1; shift; if [ $# -gt 0 ]; then filter="$1"; shift; fi ;;
+        --callgrind) callgrind=1; shift
+            # An optional filter follows, unless the next word is another option.
+            if [ $# -gt 0 ] && [ "${1#--}" = "$1" ]; then filter="$1"; shift; fi ;;
         *) echo "unknown argument $1" >&2; exit 2 ;;
     esac
 done
