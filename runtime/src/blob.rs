@@ -586,7 +586,7 @@ impl<'a, T: BlobScalar> Values<'a, T> {
     pub fn read_into(&mut self, dst: &mut [T]) -> usize {
         let size = T::KIND.bytes();
         let mut n = 0;
-        for (d, chunk) in dst.iter_mut().zip(crate::linalg::pieces(self.rest, size)) {
+        for (d, chunk) in dst.iter_mut().zip(crate::each::pieces(self.rest, size)) {
             *d = T::read_le(chunk);
             n += 1;
         }
@@ -669,7 +669,7 @@ impl<'a, T: BlobScalar> Writer<'a, T> {
         let size = T::KIND.bytes();
         let start = HEADER_BYTES.saturating_add(self.written.saturating_mul(size));
         let room = self.body.get_mut(start..).unwrap_or(&mut []);
-        for (chunk, v) in crate::linalg::pieces_mut(room, size).zip(values) {
+        for (chunk, v) in crate::each::pieces_mut(room, size).zip(values) {
             v.write_le(chunk);
         }
         self.written = self.written.saturating_add(values.len());

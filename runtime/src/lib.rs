@@ -22,6 +22,7 @@
 //! | [`penalty`] | [`penalty::Penalty`] (none, L2, L1: cost term and gradient), [`penalty::finish_bias`] |
 //! | [`optim`] | [`optim::sgd`], [`optim::momentum`], [`optim::adam`] |
 //! | [`rng`] | [`rng::SplitMix64`] with uniform and normal draws; [`rng::fill_uniform`], [`rng::fill_normal`], [`rng::glorot_limit`], [`rng::he_std`] |
+//! | [`each`] | [`each::blocks`]: iteration with no panicking path at any optimisation level (and the crate's own forms of it) |
 //! | [`blob`] | the device weight blob: [`blob::Values`] (checked decoding), [`blob::Writer`], [`blob::crc32`] |
 //!
 //! # Examples
@@ -84,6 +85,7 @@ mod testutil;
 
 pub mod act;
 pub mod blob;
+pub mod each;
 pub mod linalg;
 pub mod loss;
 pub mod math;

@@ -20,6 +20,7 @@
 //! stored row by row: each weight tile is read once per block, and each result equals, bit for
 //! bit, the per-sample kernel applied to the samples in order.
 
+use crate::each::{pieces, pieces_mut};
 use crate::Real;
 
 mod across;
@@ -138,7 +139,7 @@ pub(crate) fn padded<T: Real>(tail: &[T]) -> [T; LANES] {
 fn row_lanes<T: Real>(w: &[T], x: &[T], xt: &[T; LANES]) -> [T; LANES] {
     let mut acc = [T::ZERO; LANES];
     // `as_chunks` rather than `chunks_exact`: its count is a length, not a division whose
-    // divide-by-zero panic survives in size-optimised builds (see [`pieces`]).
+    // divide-by-zero panic survives in size-optimised builds (see [`crate::each`]).
     let (wc, wr) = w.as_chunks::<LANES>();
     for (wk, xk) in wc.iter().zip(x.as_chunks::<LANES>().0) {
         lanes_mul_add(&mut acc, wk, xk);
@@ -242,32 +243,6 @@ fn rows4_lanes_x2<T: Real>(
         lanes_mul_add(&mut a13, &p3, v1);
     }
     [[a00, a01, a02, a03], [a10, a11, a12, a13]]
-}
-
-/// The consecutive pieces of `n` elements of `s` (a shorter tail is left out), as
-/// `s.chunks_exact(n)` gives them, but without its division: `chunks_exact` counts its pieces
-/// with `s.len() / n` and guards that division with a panic for `n = 0`, which stays in the
-/// image when the optimiser does not inline it (as at `opt-level = "z"`). With `n = 0` the pieces
-/// are empty and never end, so callers zip them with a finite sequence or rule `n = 0` out.
-#[inline(always)]
-pub(crate) fn pieces<T>(s: &[T], n: usize) -> impl Iterator<Item = &[T]> {
-    let mut rest = s;
-    core::iter::from_fn(move || {
-        let (head, tail) = rest.split_at_checked(n)?;
-        rest = tail;
-        Some(head)
-    })
-}
-
-/// [`pieces`] of a mutable slice.
-#[inline(always)]
-pub(crate) fn pieces_mut<T>(s: &mut [T], n: usize) -> impl Iterator<Item = &mut [T]> {
-    let mut rest = s;
-    core::iter::from_fn(move || {
-        let (head, tail) = core::mem::take(&mut rest).split_at_mut_checked(n)?;
-        rest = tail;
-        Some(head)
-    })
 }
 
 /// Splits a block of `ROWS * n` weights into its rows (`None` if it is shorter).
@@ -880,7 +855,7 @@ fn outer_tile<T: Real, const R: usize, const C: usize>(
     }
     // Sample by sample as whole rows, so that the checks of the tile's ranges inside a row do
     // not depend on the sample (the compiler takes them out of the loop).
-    for (d_s, x_s) in ds.chunks_exact(o).zip(xs.chunks_exact(n)) {
+    for (d_s, x_s) in pieces(ds, o).zip(pieces(xs, n)) {
         let (Some(dv), Some(xv)) = (d_s.get(j..j + R), x_s.get(i..i + C)) else {
             continue;
         };
@@ -1088,22 +1063,6 @@ mod tests {
     use std::boxed::Box;
     use std::vec;
     use std::vec::Vec;
-
-    #[test]
-    fn pieces_are_the_chunks_of_chunks_exact() {
-        // `pieces` replaces `chunks_exact` (core's documented behaviour is the reference).
-        let v: Vec<u32> = (0..23).collect();
-        for n in 1..=25 {
-            let want: Vec<&[u32]> = v.chunks_exact(n).collect();
-            assert_eq!(pieces(&v, n).collect::<Vec<_>>(), want, "n = {n}");
-            let mut m = v.clone();
-            let got: Vec<Vec<u32>> = pieces_mut(&mut m, n).map(|p| p.to_vec()).collect();
-            assert_eq!(got, want.iter().map(|p| p.to_vec()).collect::<Vec<_>>());
-        }
-        // n = 0: empty pieces without end (callers bound them with a zip).
-        assert!(pieces(&v, 0).take(5).all(|p| p.is_empty()));
-        assert_eq!(pieces(&v, 0).zip(0..3).count(), 3);
-    }
 
     /// Shapes (fan-in n, width o) of the sweep plus large layers of a 784-128-64-10 network.
     fn shapes() -> Vec<(usize, usize)> {

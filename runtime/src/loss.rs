@@ -4,6 +4,7 @@
 //! probability, so they stay finite when a unit saturates. All sums start at `ZERO` and add in
 //! increasing index. Slices of different lengths are paired by `zip`: the shorter one decides.
 
+use crate::each::{map, pieces, pieces_mut, transpose, zip_with};
 use crate::Real;
 
 /// Softplus `ln(1 + e^z)`, computed stably as `max(z, 0) + ln_1p(e^-|z|)`.
@@ -260,10 +261,9 @@ pub fn softmax_cross_entropy_batch<T: Real>(
         as_.as_chunks_mut::<K>().0,
         losses,
     ), _ => 0);
-    let rows = zs
-        .chunks_exact(o)
-        .zip(ys.chunks_exact(o))
-        .zip(as_.chunks_exact_mut(o))
+    let rows = pieces(zs, o)
+        .zip(pieces(ys, o))
+        .zip(pieces_mut(as_, o))
         .zip(losses.iter_mut())
         .skip(done);
     for (((z, y), a), loss) in rows {
@@ -304,8 +304,8 @@ fn softmax_cross_entropy_block<T: Real, const O: usize>(
     ys: &[[T; O]; BLOCK],
     as_: &mut [[T; O]; BLOCK],
 ) -> Across<T> {
-    let zt: [Across<T>; O] = core::array::from_fn(|j| core::array::from_fn(|s| zs[s][j]));
-    let yt: [Across<T>; O] = core::array::from_fn(|j| core::array::from_fn(|s| ys[s][j]));
+    let zt: [Across<T>; O] = transpose(zs, T::ZERO);
+    let yt: [Across<T>; O] = transpose(ys, T::ZERO);
     let mut at = [[T::ZERO; BLOCK]; O];
     let loss = softmax_cross_entropy_across(&zt, &yt, &mut at);
     for (s, a) in as_.iter_mut().enumerate() {
@@ -333,29 +333,31 @@ fn softmax_cross_entropy_across<T: Real, const O: usize>(
     };
     let mut m = *first;
     for zj in zt {
-        m = core::array::from_fn(|s| m[s].max(zj[s]));
+        m = zip_with(m, zj, T::max);
     }
     for (aj, zj) in at.iter_mut().zip(zt) {
-        *aj = core::array::from_fn(|s| (zj[s] - m[s]).exp());
+        *aj = map(zip_with(*zj, &m, |z, mx| z - mx), T::exp);
     }
     let mut sum = [T::ZERO; BLOCK];
     for aj in at.iter() {
-        sum = core::array::from_fn(|s| sum[s] + aj[s]);
+        sum = zip_with(sum, aj, |x, y| x + y);
     }
     // As `log_sum_exp`: an infinite or NaN maximum is the result itself.
-    let lse: Across<T> = core::array::from_fn(|s| {
-        if m[s] * T::ZERO != T::ZERO {
-            m[s]
+    let lse: Across<T> = zip_with(m, &sum, |mx, sm| {
+        if mx * T::ZERO != T::ZERO {
+            mx
         } else {
-            m[s] + sum[s].ln()
+            mx + sm.ln()
         }
     });
     for aj in at.iter_mut() {
-        *aj = core::array::from_fn(|s| aj[s] / sum[s]);
+        *aj = zip_with(*aj, &sum, |a, sm| a / sm);
     }
     let mut loss = [T::ZERO; BLOCK];
     for (zj, yj) in zt.iter().zip(yt) {
-        loss = core::array::from_fn(|s| loss[s] + yj[s] * (lse[s] - zj[s]));
+        // loss_s + y_s * (lse_s - z_s), in that order.
+        let terms = zip_with(*yj, &zip_with(lse, zj, |l, z| l - z), |y, d| y * d);
+        loss = zip_with(loss, &terms, |a, b| a + b);
     }
     loss
 }

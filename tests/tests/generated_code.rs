@@ -241,7 +241,8 @@ fn generated_files_use_no_heap_std_unsafe_or_panics_and_never_loop_over_layers()
         ] {
             assert!(!text.contains(bad), "{}: contains `{bad}`", f.display());
         }
-        // Every loop runs over samples (`xs`, a batch block `xb`), the classes, or the buffer of
+        // Every loop runs over samples (`xs`, the batch's `sample_blocks`, a block `xb`), the
+        // classes, or the buffer of
         // one layer (`a_*`, `z_*`, `d_*`, the standardized input `x0`): never over layers.
         for l in text
             .lines()
@@ -253,8 +254,10 @@ fn generated_files_use_no_heap_std_unsafe_or_panics_and_never_loop_over_layers()
                 .chars()
                 .take_while(|c| c.is_alphanumeric() || *c == '_')
                 .collect();
-            let ok = matches!(head.as_str(), "xs" | "xb" | "x0" | "Class")
-                || ["a_", "z_", "d_"].iter().any(|p| head.starts_with(p));
+            let ok = matches!(
+                head.as_str(),
+                "xs" | "sample_blocks" | "xb" | "x0" | "Class"
+            ) || ["a_", "z_", "d_"].iter().any(|p| head.starts_with(p));
             assert!(ok, "{}: loop `{l}`", f.display());
         }
         assert!(!text.contains("while ") && !text.contains("loop {"));

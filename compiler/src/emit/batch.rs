@@ -227,7 +227,8 @@ pub(super) fn items(cx: &Ctx) -> TokenStream {
             ) -> Scalar {
                 let BatchScratch { #(#names),* } = scratch;
                 let mut sum = ZERO;
-                for (xb, yb) in xs.chunks(BatchScratch::BLOCK).zip(ys.chunks(BatchScratch::BLOCK)) {
+                let sample_blocks = rt::each::blocks(xs, BatchScratch::BLOCK).zip(rt::each::blocks(ys, BatchScratch::BLOCK));
+                for (xb, yb) in sample_blocks {
                     let m = xb.len().min(yb.len());
                     let (Some(xb), Some(yb), #(#somes),*) = (xb.get(..m), yb.get(..m), #(#gets),*) else {
                         break;

@@ -13,6 +13,7 @@
 //! [`affine`]: super::affine
 
 use super::LANES;
+use crate::each::{blocks, pieces, pieces_mut, transpose, zip_with};
 use crate::Real;
 
 /// Samples per block: one per lane of a 256-bit register of `f32`.
@@ -32,7 +33,7 @@ fn mul_add<T: Real>(acc: &mut Across<T>, w: T, x: &Across<T>) {
 /// `a_s + b_s` for every sample.
 #[inline(always)]
 fn add<T: Real>(a: Across<T>, b: Across<T>) -> Across<T> {
-    core::array::from_fn(|s| a[s] + b[s])
+    zip_with(a, &b, |x, y| x + y)
 }
 
 /// The lane fold `((l0 + l4) + (l2 + l6)) + ((l1 + l5) + (l3 + l7))` of every sample, leaving out
@@ -40,30 +41,27 @@ fn add<T: Real>(a: Across<T>, b: Across<T>) -> Across<T> {
 /// choices vanish.
 #[inline(always)]
 fn fold<T: Real>(l: [Across<T>; LANES], used: usize) -> Across<T> {
-    let mut v: [Option<Across<T>>; LANES] = core::array::from_fn(|k| (k < used).then_some(l[k]));
-    let mut width = LANES;
-    while width > 1 {
-        width /= 2;
-        for k in 0..width {
-            v[k] = match (v[k], v[k + width]) {
-                (Some(a), Some(b)) => Some(add(a, b)),
-                (a, None) => a,
-                (None, b) => b,
-            };
-        }
-    }
-    v[0].unwrap_or([T::ZERO; BLOCK])
+    let [l0, l1, l2, l3, l4, l5, l6, l7] = l;
+    let lane = |k: usize, v: Across<T>| (k < used).then_some(v);
+    let pair = |a: Option<Across<T>>, b: Option<Across<T>>| match (a, b) {
+        (Some(a), Some(b)) => Some(add(a, b)),
+        (a, None) => a,
+        (None, b) => b,
+    };
+    let left = pair(
+        pair(lane(0, l0), lane(4, l4)),
+        pair(lane(2, l2), lane(6, l6)),
+    );
+    let right = pair(
+        pair(lane(1, l1), lane(5, l5)),
+        pair(lane(3, l3), lane(7, l7)),
+    );
+    pair(left, right).unwrap_or([T::ZERO; BLOCK])
 }
 
 /// Output rows per pass of the slice forms (the transposed block of `CHUNK` outputs lives on
 /// the stack).
 const CHUNK: usize = 16;
-
-/// `xs` transposed: `xt[i][s] = xs[s][i]`.
-#[inline(always)]
-fn transpose<T: Real, const I: usize>(xs: &[[T; I]; BLOCK]) -> [Across<T>; I] {
-    core::array::from_fn(|i| core::array::from_fn(|s| xs[s][i]))
-}
 
 /// `zs[s][j] = zt[j][s]` for the block's samples, `o <= W <= CHUNK` outputs each (`zs` holds
 /// `BLOCK * o` values, sample by sample).
@@ -74,7 +72,12 @@ fn transpose<T: Real, const I: usize>(xs: &[[T; I]; BLOCK]) -> [Across<T>; I] {
 #[inline(always)]
 fn rows_out<T: Real, const W: usize>(zt: &[Across<T>; CHUNK], zs: &mut [T], o: usize) {
     for s in 0..BLOCK {
-        let row: [T; W] = core::array::from_fn(|j| zt.get(j).map_or(T::ZERO, |v| v[s]));
+        let mut row = [T::ZERO; W];
+        for (r, v) in row.iter_mut().zip(zt) {
+            if let Some(v) = v.get(s) {
+                *r = *v;
+            }
+        }
         let Some(z) = zs.get_mut(s * o..) else { return };
         if let Some(z) = z.first_chunk_mut::<W>() {
             *z = row;
@@ -96,10 +99,18 @@ fn rows_in<T: Real, const W: usize>(ds: &[T], o: usize, dt: &mut [Across<T>; CHU
         let d = ds.get(s * o..).unwrap_or_default();
         let row: [T; W] = match d.first_chunk::<W>() {
             Some(r) => *r,
-            None => core::array::from_fn(|j| d.get(j).copied().unwrap_or(T::ZERO)),
+            None => {
+                let mut r = [T::ZERO; W];
+                for (rj, v) in r.iter_mut().zip(d) {
+                    *rj = *v;
+                }
+                r
+            }
         };
         for (dj, v) in dt.iter_mut().zip(row) {
-            dj[s] = v;
+            if let Some(slot) = dj.get_mut(s) {
+                *slot = v;
+            }
         }
     }
 }
@@ -118,7 +129,7 @@ pub(super) fn affine_block<T: Real, const I: usize>(
     zs: &mut [T],
     o: usize,
 ) {
-    let xt = transpose(xs);
+    let xt = transpose(xs, T::ZERO);
     let mut zt = [[T::ZERO; BLOCK]; CHUNK];
     if o <= CHUNK && w.len() == o && b.len() == o {
         // One chunk: the outputs go back as rows of a fixed width (a run-time `o` would make
@@ -131,11 +142,11 @@ pub(super) fn affine_block<T: Real, const I: usize>(
         }
         return;
     }
-    for (c, (wc, bc)) in w.chunks(CHUNK).zip(b.chunks(CHUNK)).enumerate() {
+    for (c, (wc, bc)) in blocks(w, CHUNK).zip(blocks(b, CHUNK)).enumerate() {
         let zc = zt.get_mut(..wc.len().min(bc.len())).unwrap_or_default();
         affine_across(wc, bc, &xt, zc);
         let j0 = c * CHUNK;
-        for (s, z) in super::pieces_mut(zs, o).enumerate().take(BLOCK) {
+        for (s, z) in pieces_mut(zs, o).enumerate().take(BLOCK) {
             let Some(z) = z.get_mut(j0..) else { continue };
             for (zj, v) in z.iter_mut().zip(zc.iter()) {
                 if let Some(v) = v.get(s) {
@@ -161,7 +172,9 @@ fn affine_across<T: Real, const I: usize>(
     for ((row, bj), zj) in w.iter().zip(b).zip(zt.iter_mut()) {
         let mut lanes = [[T::ZERO; BLOCK]; LANES];
         for (i, (wi, xi)) in row.iter().zip(xt).enumerate() {
-            mul_add(&mut lanes[i % LANES], *wi, xi);
+            if let Some(lane) = lanes.get_mut(i % LANES) {
+                mul_add(lane, *wi, xi);
+            }
         }
         let sum = fold(lanes, I);
         for (z, v) in zj.iter_mut().zip(sum) {
@@ -195,9 +208,9 @@ pub(super) fn back_block<T: Real, const I: usize>(
         }
         back_across(w, dt.get(..o).unwrap_or_default(), &mut ot);
     } else {
-        for (c, wc) in w.chunks(CHUNK).enumerate() {
+        for (c, wc) in blocks(w, CHUNK).enumerate() {
             let j0 = c * CHUNK;
-            for (s, d) in super::pieces(ds, o).enumerate().take(BLOCK) {
+            for (s, d) in pieces(ds, o).enumerate().take(BLOCK) {
                 for (dj, v) in dt.iter_mut().zip(d.get(j0..).unwrap_or_default()) {
                     if let Some(slot) = dj.get_mut(s) {
                         *slot = *v;
@@ -247,7 +260,7 @@ pub(super) fn affine_blocks<T: Real, const I: usize>(
     let o = b.len();
     let xb = xs.as_chunks::<BLOCK>().0;
     let mut done = 0;
-    for (x, z) in xb.iter().zip(super::pieces_mut(zs, BLOCK * o)) {
+    for (x, z) in xb.iter().zip(pieces_mut(zs, BLOCK * o)) {
         affine_block(w, b, x, z, o);
         done += BLOCK;
     }
@@ -265,7 +278,7 @@ pub(super) fn back_blocks<T: Real, const I: usize>(
 ) -> usize {
     let ob = outs.as_chunks_mut::<BLOCK>().0;
     let mut done = 0;
-    for (d, out) in super::pieces(ds, BLOCK * o).zip(ob.iter_mut()) {
+    for (d, out) in pieces(ds, BLOCK * o).zip(ob.iter_mut()) {
         back_block(w, d, o, out);
         done += BLOCK;
     }

@@ -1,0 +1,384 @@
+// Every public function of sinew-runtime as an exported symbol, for `tests/tests/panic_free.rs`.
+//
+// The test copies this file into a `no_std` library crate (beside the generated modules), builds
+// it for each device target at opt-level 2, 3, s and z, and follows every call out of each
+// exported symbol in the object files: none may reach `core::panicking`. Each generic kernel is
+// exported once for `f32` and once for `f64` (`kernels!` below), the const-generic array forms
+// for three shapes: one input and one output, a short row (5 inputs, 3 outputs: the across-samples
+// and inline-fold paths) and a long one (20 inputs, 17 outputs: the chunked paths).
+//
+// `#[export_name]` is `#[no_mangle]` under a name built from the scalar: the symbol is global and
+// always compiled. Methods are called in the `Type::method(..)` form, so that the test's
+// completeness check (every `pub fn` of `runtime/src` named here as `Owner::name`) can find them.
+
+use sinew_runtime as rt;
+use sinew_runtime::act::Activation;
+use sinew_runtime::blob::{BlobError, Values, Writer};
+use sinew_runtime::penalty::Penalty;
+use sinew_runtime::rng::SplitMix64;
+
+/// The const-generic array forms for one shape `(I inputs, O outputs)`.
+macro_rules! shaped {
+    ($t:ty, $tag:literal, $i:literal, $o:literal) => {
+        const _: () = {
+            type T = $t;
+            #[export_name = concat!("sinew_k_", $tag, "_affine_n_", $i, "x", $o)]
+            fn affine_n(w: &[[T; $i]; $o], b: &[T; $o], x: &[T; $i], z: &mut [T; $o]) {
+                rt::linalg::affine_n(w, b, x, z)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_back_n_", $i, "x", $o)]
+            fn back_n(w: &[[T; $i]; $o], d: &[T; $o], out: &mut [T; $i]) {
+                rt::linalg::back_n(w, d, out)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_outer_acc_n_", $i, "x", $o)]
+            fn outer_acc_n(g: &mut [[T; $i]; $o], d: &[T; $o], a: &[T; $i]) {
+                rt::linalg::outer_acc_n(g, d, a)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_standardize_n_", $i)]
+            fn standardize_n(x: &[T; $i], mean: &[T; $i], std: &[T; $i], out: &mut [T; $i]) {
+                rt::linalg::standardize_n(x, mean, std, out)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_affine_batch_n_", $i, "x", $o)]
+            fn affine_batch_n(w: &[[T; $i]; $o], b: &[T; $o], xs: &[[T; $i]], zs: &mut [[T; $o]]) {
+                rt::linalg::affine_batch_n(w, b, xs, zs)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_back_batch_n_", $i, "x", $o)]
+            fn back_batch_n(w: &[[T; $i]; $o], ds: &[[T; $o]], outs: &mut [[T; $i]]) {
+                rt::linalg::back_batch_n(w, ds, outs)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_outer_acc_batch_n_", $i, "x", $o)]
+            fn outer_acc_batch_n(g: &mut [[T; $i]; $o], ds: &[[T; $o]], xs: &[[T; $i]]) {
+                rt::linalg::outer_acc_batch_n(g, ds, xs)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_softmax_cross_entropy_batch_n_", $o)]
+            fn softmax_cross_entropy_batch_n(
+                zs: &[[T; $o]],
+                ys: &[[T; $o]],
+                as_: &mut [[T; $o]],
+                sum: T,
+            ) -> T {
+                rt::loss::softmax_cross_entropy_batch_n(zs, ys, as_, sum)
+            }
+        };
+    };
+}
+
+/// Every generic kernel for the scalar `$t`, exported as `sinew_k_<$tag>_<name>`.
+macro_rules! kernels {
+    ($t:ty, $tag:literal) => {
+        shaped!($t, $tag, 1, 1);
+        shaped!($t, $tag, 5, 3);
+        shaped!($t, $tag, 20, 17);
+        const _: () = {
+            type T = $t;
+
+            // act
+            #[export_name = concat!("sinew_k_", $tag, "_identity")]
+            fn identity(v: &mut [T]) {
+                rt::act::identity(v)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_identity_grad")]
+            fn identity_grad(a: &[T], d: &mut [T]) {
+                rt::act::identity_grad(a, d)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_sigmoid")]
+            fn sigmoid(v: &mut [T]) {
+                rt::act::sigmoid(v)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_sigmoid_grad")]
+            fn sigmoid_grad(a: &[T], d: &mut [T]) {
+                rt::act::sigmoid_grad(a, d)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_tanh")]
+            fn tanh(v: &mut [T]) {
+                rt::act::tanh(v)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_tanh_grad")]
+            fn tanh_grad(a: &[T], d: &mut [T]) {
+                rt::act::tanh_grad(a, d)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_relu")]
+            fn relu(v: &mut [T]) {
+                rt::act::relu(v)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_relu_grad")]
+            fn relu_grad(a: &[T], d: &mut [T]) {
+                rt::act::relu_grad(a, d)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_leaky_relu")]
+            fn leaky_relu(v: &mut [T], alpha: T) {
+                rt::act::leaky_relu(v, alpha)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_leaky_relu_grad")]
+            fn leaky_relu_grad(a: &[T], d: &mut [T], alpha: T) {
+                rt::act::leaky_relu_grad(a, d, alpha)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_softmax")]
+            fn softmax(v: &mut [T]) {
+                rt::act::softmax(v)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_softmax_grad")]
+            fn softmax_grad(a: &[T], d: &mut [T]) {
+                rt::act::softmax_grad(a, d)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_activation_forward")]
+            fn activation_forward(g: &Activation<T>, v: &mut [T]) {
+                Activation::forward(g, v)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_activation_backward")]
+            fn activation_backward(g: &Activation<T>, a: &[T], d: &mut [T]) {
+                Activation::backward(g, a, d)
+            }
+
+            // linalg, slice forms
+            #[export_name = concat!("sinew_k_", $tag, "_affine")]
+            fn affine(w: &[T], b: &[T], x: &[T], z: &mut [T]) {
+                rt::linalg::affine(w, b, x, z)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_back")]
+            fn back(w: &[T], d: &[T], out: &mut [T]) {
+                rt::linalg::back(w, d, out)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_outer_acc")]
+            fn outer_acc(g: &mut [T], d: &[T], a: &[T]) {
+                rt::linalg::outer_acc(g, d, a)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_add_acc")]
+            fn add_acc(g: &mut [T], d: &[T]) {
+                rt::linalg::add_acc(g, d)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_standardize")]
+            fn standardize(x: &[T], mean: &[T], std: &[T], out: &mut [T]) {
+                rt::linalg::standardize(x, mean, std, out)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_affine_batch")]
+            fn affine_batch(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize) {
+                rt::linalg::affine_batch(w, b, xs, zs, n)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_back_batch")]
+            fn back_batch(w: &[T], ds: &[T], outs: &mut [T], n: usize) {
+                rt::linalg::back_batch(w, ds, outs, n)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_outer_acc_batch")]
+            fn outer_acc_batch(g: &mut [T], ds: &[T], xs: &[T], n: usize) {
+                rt::linalg::outer_acc_batch(g, ds, xs, n)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_outer_acc_batch_rows")]
+            fn outer_acc_batch_rows(
+                g: &mut [T],
+                ds: &[T],
+                xs: &[T],
+                n: usize,
+                rows: (usize, usize),
+            ) {
+                rt::linalg::outer_acc_batch_rows(g, ds, xs, n, rows)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_add_acc_batch")]
+            fn add_acc_batch(g: &mut [T], ds: &[T]) {
+                rt::linalg::add_acc_batch(g, ds)
+            }
+
+            // loss
+            #[export_name = concat!("sinew_k_", $tag, "_softplus")]
+            fn softplus(z: T) -> T {
+                rt::loss::softplus(z)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_log_sum_exp")]
+            fn log_sum_exp(z: &[T]) -> T {
+                rt::loss::log_sum_exp(z)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_logistic_cross_entropy")]
+            fn logistic_cross_entropy(z: &[T], y: &[T]) -> T {
+                rt::loss::logistic_cross_entropy(z, y)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_softmax_cross_entropy")]
+            fn softmax_cross_entropy(z: &[T], y: &[T]) -> T {
+                rt::loss::softmax_cross_entropy(z, y)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_softmax_with_cross_entropy")]
+            fn softmax_with_cross_entropy(z: &[T], y: &[T], a: &mut [T]) -> T {
+                rt::loss::softmax_with_cross_entropy(z, y, a)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_softmax_cross_entropy_batch")]
+            fn softmax_cross_entropy_batch(
+                zs: &[T],
+                ys: &[T],
+                as_: &mut [T],
+                losses: &mut [T],
+                o: usize,
+            ) {
+                rt::loss::softmax_cross_entropy_batch(zs, ys, as_, losses, o)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_squared_error")]
+            fn squared_error(a: &[T], y: &[T]) -> T {
+                rt::loss::squared_error(a, y)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_output_error")]
+            fn output_error(a: &[T], y: &[T], d: &mut [T]) {
+                rt::loss::output_error(a, y, d)
+            }
+
+            // optim
+            #[export_name = concat!("sinew_k_", $tag, "_sgd")]
+            fn sgd(p: &mut [T], g: &[T], rate: T) {
+                rt::optim::sgd(p, g, rate)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_momentum")]
+            fn momentum(p: &mut [T], g: &[T], v: &mut [T], rate: T, mu: T) {
+                rt::optim::momentum(p, g, v, rate, mu)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_adam")]
+            #[allow(clippy::too_many_arguments)]
+            fn adam(
+                p: &mut [T],
+                g: &[T],
+                m: &mut [T],
+                v: &mut [T],
+                t: u32,
+                rate: T,
+                beta1: T,
+                beta2: T,
+                eps: T,
+            ) {
+                rt::optim::adam(p, g, m, v, t, rate, beta1, beta2, eps)
+            }
+
+            // penalty
+            #[export_name = concat!("sinew_k_", $tag, "_penalty_sum")]
+            fn penalty_sum(p: &Penalty<T>, w: &[T]) -> T {
+                Penalty::sum(p, w)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_penalty_cost")]
+            fn penalty_cost(p: &Penalty<T>, sum: T, m: T) -> T {
+                Penalty::cost(p, sum, m)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_penalty_finish_weights")]
+            fn penalty_finish_weights(p: &Penalty<T>, g: &mut [T], w: &[T], m: T) {
+                Penalty::finish_weights(p, g, w, m)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_finish_bias")]
+            fn finish_bias(g: &mut [T], m: T) {
+                rt::penalty::finish_bias(g, m)
+            }
+
+            // rng
+            #[export_name = concat!("sinew_k_", $tag, "_fill_uniform")]
+            fn fill_uniform(w: &mut [T], limit: f64, rng: &mut SplitMix64) {
+                rt::rng::fill_uniform(w, limit, rng)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_fill_normal")]
+            fn fill_normal(w: &mut [T], std: f64, rng: &mut SplitMix64) {
+                rt::rng::fill_normal(w, std, rng)
+            }
+
+            // real: the scalar's functions
+            #[export_name = concat!("sinew_k_", $tag, "_real")]
+            fn real(x: T, y: T, v: f64, n: usize, k: i32, out: &mut [T; 10]) -> f64 {
+                use rt::Real;
+                *out = [
+                    Real::from_f64(v),
+                    Real::from_usize(n),
+                    Real::exp(x),
+                    Real::ln(x),
+                    Real::ln_1p(x),
+                    Real::tanh(x),
+                    Real::sqrt(x),
+                    Real::abs(x),
+                    Real::powi(x, k),
+                    Real::max(x, y),
+                ];
+                Real::to_f64(x)
+            }
+
+            // blob
+            #[export_name = concat!("sinew_k_", $tag, "_values_open")]
+            fn values_open(
+                bytes: &[u8],
+                fingerprint: u64,
+                count: usize,
+                dst: &mut [T],
+            ) -> Result<usize, BlobError> {
+                let mut v: Values<T> = Values::open(bytes, fingerprint, count)?;
+                let n = Values::read_into(&mut v, dst);
+                Ok(n + Values::remaining(&v))
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_writer")]
+            fn writer(
+                out: &mut [u8],
+                fingerprint: u64,
+                count: usize,
+                values: &[T],
+            ) -> Result<usize, BlobError> {
+                let mut w: Writer<T> = Writer::new(out, fingerprint, count)?;
+                Writer::write(&mut w, values);
+                Writer::finish(w)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_scalar_le")]
+            fn scalar_le(v: T, out: &mut [u8]) -> T {
+                use rt::blob::BlobScalar;
+                BlobScalar::write_le(v, out);
+                <T as BlobScalar>::read_le(out)
+            }
+        };
+    };
+}
+
+kernels!(f32, "f32");
+kernels!(f64, "f64");
+
+// The functions of no scalar: the blob's bytes, sinew's own f32 functions, the generator.
+
+#[no_mangle]
+fn sinew_k_crc32(bytes: &[u8]) -> u32 {
+    rt::blob::crc32(bytes)
+}
+
+#[no_mangle]
+fn sinew_k_crc32_parts(a: &[u8], b: &[u8]) -> u32 {
+    let mut c = rt::blob::Crc32::new();
+    rt::blob::Crc32::update(&mut c, a);
+    rt::blob::Crc32::update(&mut c, b);
+    rt::blob::Crc32::finish(c)
+}
+
+#[no_mangle]
+fn sinew_k_header_parse(bytes: &[u8]) -> Result<rt::blob::Header, BlobError> {
+    rt::blob::Header::parse(bytes)
+}
+
+#[no_mangle]
+fn sinew_k_scalar_kind(code: u8, count: usize) -> (usize, &'static str, u8) {
+    use rt::blob::ScalarKind;
+    match ScalarKind::from_code(code) {
+        Some(k) => (
+            rt::blob::blob_bytes(k, count) + ScalarKind::bytes(k),
+            ScalarKind::name(k),
+            ScalarKind::code(k),
+        ),
+        None => (0, "", 0),
+    }
+}
+
+#[no_mangle]
+fn sinew_k_math(x: f32) -> (f32, f32) {
+    (rt::math::expf(x), rt::math::tanhf(x))
+}
+
+#[no_mangle]
+fn sinew_k_rng(seed: u64, lo: f64, hi: f64, fan_in: usize, fan_out: usize) -> [f64; 6] {
+    let mut r = SplitMix64::new(seed);
+    let u = SplitMix64::next_u64(&mut r) as f64;
+    [
+        u,
+        SplitMix64::next_f64(&mut r),
+        SplitMix64::uniform(&mut r, lo, hi),
+        SplitMix64::normal(&mut r),
+        rt::rng::glorot_limit(fan_in, fan_out),
+        rt::rng::he_std(fan_in),
+    ]
+}
+
+#[no_mangle]
+fn sinew_k_blocks(s: &[u8], n: usize) -> usize {
+    rt::each::blocks(s, n).fold(0, |acc, b| acc ^ b.len())
+}
