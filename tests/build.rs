@@ -17,18 +17,7 @@ use std::path::{Path, PathBuf};
 
 include!("src/baked_values.rs");
 
-/// Models compiled a second time with unrolling (all are below the threshold).
-const UNROLLED: [&str; 5] = [
-    "valve_gate",
-    "relay_pair",
-    "tank_level",
-    "door_sensor",
-    "bearing_wear",
-];
-/// Unrolling threshold for those: every layer of them has fewer weights.
-const UNROLL_BELOW: usize = 64;
-/// Models compiled a third time with baked weights.
-const BAKED: [&str; 2] = ["valve_gate", "light_level"];
+include!("src/variants.rs");
 
 fn specs_in(dir: &Path) -> Result<Vec<PathBuf>, Box<dyn Error>> {
     let mut v = Vec::new();
@@ -52,6 +41,7 @@ fn main() -> Result<(), Box<dyn Error>> {
     println!("cargo:rerun-if-changed={}", samples.display());
     println!("cargo:rerun-if-changed={}", fixtures.display());
     println!("cargo:rerun-if-changed=src/baked_values.rs");
+    println!("cargo:rerun-if-changed=src/variants.rs");
 
     let mut all: Vec<(PathBuf, String)> = Vec::new();
     for p in specs_in(&samples)? {

@@ -12,6 +12,7 @@
 #![deny(missing_docs)]
 
 include!("baked_values.rs");
+include!("variants.rs");
 
 /// Uniform access to one generated model, for tests that run over every model. Each method
 /// forwards to the generated API of the same name (see `build.rs`).

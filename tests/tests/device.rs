@@ -28,6 +28,8 @@
 //! `SINEW_DEVICE_FIGURES=FILE` writes the Markdown table of figures to FILE
 //! (`bash tests/device/run.sh --figures` puts it into the README).
 
+mod toolchain;
+
 use sinew::engine::{Net, Params, Scratch, Trainer};
 use sinew::ir::Model;
 use sinew::report::Report;
@@ -143,31 +145,11 @@ fn quiet_ok(cmd: &mut Command) -> bool {
         .is_ok_and(|s| s.success())
 }
 
-/// The sysroot of `toolchain` has the standard library of `target`.
-fn has_target(toolchain: Option<&str>, target: &str) -> bool {
-    let mut c = Command::new("rustc");
-    if let Some(t) = toolchain {
-        c.arg(format!("+{t}"));
-    }
-    let Ok(out) = c
-        .args(["--print", "target-libdir", "--target", target])
-        .stderr(Stdio::null())
-        .output()
-    else {
-        return false;
-    };
-    let dir = PathBuf::from(String::from_utf8_lossy(&out.stdout).trim());
-    out.status.success()
-        && std::fs::read_dir(dir).is_ok_and(|mut d| {
-            d.any(|e| e.is_ok_and(|e| e.file_name().to_string_lossy().starts_with("libcore-")))
-        })
-}
-
 /// What is missing for the device checks (empty: everything is there).
 fn missing_tools() -> Vec<String> {
     let mut missing = Vec::new();
     for b in &BOARDS {
-        if !has_target(None, b.target) {
+        if !toolchain::has_target(None, b.target) {
             missing.push(format!(
                 "the Rust target {} (`rustup target add {}`)",
                 b.target, b.target
@@ -192,7 +174,7 @@ fn missing_nightly() -> Vec<String> {
         return missing;
     }
     for b in &BOARDS {
-        if !has_target(Some("nightly"), b.target) {
+        if !toolchain::has_target(Some("nightly"), b.target) {
             missing.push(format!(
                 "the nightly target {} (`rustup +nightly target add {}`)",
                 b.target, b.target
@@ -220,31 +202,15 @@ fn build(
         .env("CARGO_TARGET_DIR", target_dir)
         .env("CARGO_TERM_COLOR", "never");
     // Nothing of the outer build may leak into the firmware build.
-    for v in [
-        "RUSTFLAGS",
-        "CARGO_ENCODED_RUSTFLAGS",
-        "CARGO_BUILD_RUSTFLAGS",
-        "CARGO_BUILD_TARGET",
-        "CARGO_MAKEFLAGS",
-        "MAKEFLAGS",
-        "MFLAGS",
-        "OUT_DIR",
-        "RUSTC",
-        "RUSTDOC",
-        "RUSTUP_TOOLCHAIN",
-    ] {
-        c.env_remove(v);
-    }
+    toolchain::isolate(&mut c);
     if let Some(f) = rustflags {
         c.env("RUSTFLAGS", f);
     }
     let (code, _, stderr) = run(&mut c, Duration::from_secs(1800))?;
     if code != Some(0) {
-        let tail: Vec<&str> = stderr.lines().rev().take(40).collect();
-        let tail: Vec<&str> = tail.into_iter().rev().collect();
         return Err(format!(
             "building the firmware for {target} ({profile}) failed:\n{}",
-            tail.join("\n")
+            toolchain::tail(&stderr, 40)
         ));
     }
     Ok(target_dir.join(target).join(profile))

@@ -32,9 +32,12 @@
 //! `SINEW_DEVICE=require` (what `.ci/run` sets after installing them) it fails instead.
 
 use object::{Object, ObjectSection, ObjectSymbol, RelocationTarget, SectionIndex, SymbolKind};
+mod toolchain;
+
 use quote::ToTokens as _;
 use sinew::emit::{BakedParams, EmitOptions};
 use sinew::ir::Model;
+use sinew_tests::{BAKED, UNROLLED, UNROLL_BELOW};
 use std::collections::{BTreeMap, BTreeSet, HashMap};
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
@@ -55,19 +58,6 @@ const CRATE: &str = "sinew_proof";
 /// The exported function of the proof crate that takes the address of every public generated
 /// function.
 const ADDRESSES: &str = "sinew_function_addresses";
-/// Unrolling threshold of the `unrolled` modules.
-const UNROLL_BELOW: usize = 64;
-/// The models generated a second time with unrolling (every layer of them is below the
-/// threshold; the other models' layers would stay rolled).
-const UNROLLED: [&str; 5] = [
-    "valve_gate",
-    "relay_pair",
-    "tank_level",
-    "door_sensor",
-    "bearing_wear",
-];
-/// The models generated a third time with baked weights (a `static`, no other function).
-const BAKED: [&str; 2] = ["valve_gate", "pump_health"];
 
 fn repo() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR"))
@@ -301,22 +291,6 @@ fn write_if_changed(path: &Path, text: &str) {
 // ---------------------------------------------------------------------------------------------
 // Building
 
-/// The sysroot of the toolchain has the standard library of `target`.
-fn has_target(target: &str) -> bool {
-    let Ok(out) = Command::new("rustc")
-        .args(["--print", "target-libdir", "--target", target])
-        .stderr(Stdio::null())
-        .output()
-    else {
-        return false;
-    };
-    let dir = PathBuf::from(String::from_utf8_lossy(&out.stdout).trim());
-    out.status.success()
-        && std::fs::read_dir(dir).is_ok_and(|mut d| {
-            d.any(|e| e.is_ok_and(|e| e.file_name().to_string_lossy().starts_with("libcore-")))
-        })
-}
-
 /// `cargo rustc -p PACKAGE --lib --profile P --target T -- --emit=obj`; returns the object file.
 fn object_of(dir: &Path, package: &str, target: &str, profile: &str) -> Result<PathBuf, String> {
     let mut c = Command::new("cargo");
@@ -329,29 +303,12 @@ fn object_of(dir: &Path, package: &str, target: &str, profile: &str) -> Result<P
         .env("CARGO_TERM_COLOR", "never")
         .stdin(Stdio::null());
     // Nothing of the outer build may leak into this one.
-    for v in [
-        "RUSTFLAGS",
-        "CARGO_ENCODED_RUSTFLAGS",
-        "CARGO_BUILD_RUSTFLAGS",
-        "CARGO_BUILD_TARGET",
-        "CARGO_MAKEFLAGS",
-        "MAKEFLAGS",
-        "MFLAGS",
-        "OUT_DIR",
-        "RUSTC",
-        "RUSTDOC",
-        "RUSTUP_TOOLCHAIN",
-    ] {
-        c.env_remove(v);
-    }
+    toolchain::isolate(&mut c);
     let out = c.output().map_err(|e| format!("cannot run cargo: {e}"))?;
     if !out.status.success() {
-        let err = String::from_utf8_lossy(&out.stderr);
-        let tail: Vec<&str> = err.lines().rev().take(40).collect();
-        let tail: Vec<&str> = tail.into_iter().rev().collect();
         return Err(format!(
             "building {package} for {target} ({profile}) failed:\n{}",
-            tail.join("\n")
+            toolchain::tail(&String::from_utf8_lossy(&out.stderr), 40)
         ));
     }
     // The newest object of the package in deps/ (its file name carries a hash).
@@ -689,7 +646,10 @@ fn prove(dir: &Path, target: &str, profile: &str, level: &str) -> Finding {
 
 #[test]
 fn no_generated_function_or_runtime_kernel_can_panic_on_a_device() {
-    let missing: Vec<&str> = TARGETS.into_iter().filter(|t| !has_target(t)).collect();
+    let missing: Vec<&str> = TARGETS
+        .into_iter()
+        .filter(|t| !toolchain::has_target(None, t))
+        .collect();
     if !missing.is_empty() {
         let text = format!(
             "panic-freedom proof SKIPPED: missing the Rust targets {} (`rustup target add {}`, or \
