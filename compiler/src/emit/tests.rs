@@ -235,8 +235,10 @@ pub(crate) fn loop_is_not_over_layers(line: &str) -> bool {
         .chars()
         .take_while(|c| c.is_alphanumeric() || *c == '_')
         .collect();
-    matches!(head.as_str(), "xs" | "xb" | "x0" | "Class")
-        || ["a_", "z_", "d_"].iter().any(|p| head.starts_with(p))
+    matches!(
+        head.as_str(),
+        "xs" | "sample_blocks" | "xb" | "x0" | "Class"
+    ) || ["a_", "z_", "d_"].iter().any(|p| head.starts_with(p))
 }
 
 #[test]
