@@ -64,7 +64,7 @@ pub fn sigmoid<T: Real>(v: &mut [T]) {
 
 /// Whether the target has a floating-point vector unit, where a padded chunk costs what a short
 /// tail costs. On a scalar FPU (Cortex-M4F, RISC-V without V) the padding would be work thrown
-/// away (N1 inference on the M4F: 2442 -> 2728 instructions), so the tail stays element-wise.
+/// away (`bench/NOTES.md`, `act::VECTOR_UNIT`), so the tail stays element-wise.
 const VECTOR_UNIT: bool = cfg!(any(
     target_feature = "sse2",
     target_feature = "neon",
@@ -225,7 +225,8 @@ pub fn leaky_relu_grad<T: Real>(a: &[T], d: &mut [T], alpha: T) {
 /// Steps: `m = max_k z_k` (fold from the first element with [`Real::max`]); `v_j = e^(z_j - m)`;
 /// `s = sum_j v_j` starting at `ZERO` in increasing `j`; `v_j = v_j / s`. The largest exponent is
 /// 0, so nothing overflows for finite input (entries of `-inf` give 0 as long as one entry is
-/// finite); a `+inf` or NaN entry makes the result NaN. An empty slice is left alone.
+/// finite); a `+inf` or NaN entry makes the result NaN. An empty slice is left alone. The order
+/// is that of [`crate::reference::softmax`]; the exponentials run in chunks of [`LANES`].
 ///
 /// # Examples
 ///
@@ -259,7 +260,7 @@ pub fn softmax<T: Real>(v: &mut [T]) {
 /// `k`), `d_j = a_j (d_j - s)`.
 ///
 /// This is `J^T d` for the full Jacobian `da_j / dz_i = a_j (delta_ij - a_i)` (it is symmetric).
-/// `s` is taken over the zip of `d` and `a`.
+/// `s` is taken over the zip of `d` and `a`. It is [`crate::reference::softmax_grad`] itself.
 ///
 /// # Examples
 ///
@@ -269,13 +270,7 @@ pub fn softmax<T: Real>(v: &mut [T]) {
 /// assert_eq!(d, [0.25, -0.25]);
 /// ```
 pub fn softmax_grad<T: Real>(a: &[T], d: &mut [T]) {
-    let mut s = T::ZERO;
-    for (dk, ak) in d.iter().zip(a) {
-        s += *dk * *ak;
-    }
-    for (dj, aj) in d.iter_mut().zip(a) {
-        *dj = *aj * (*dj - s);
-    }
+    crate::reference::softmax_grad(a, d);
 }
 
 /// An activation chosen at run time (the host engine's form; generated code calls the functions of

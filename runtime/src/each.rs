@@ -86,23 +86,6 @@ pub(crate) fn map<T: Copy, const N: usize>(a: [T; N], f: impl Fn(T) -> T) -> [T;
     out
 }
 
-/// The transpose `t[c][r] = m[r][c]` of an `R x C` array (`fill` only initialises).
-#[inline(always)]
-pub(crate) fn transpose<T: Copy, const R: usize, const C: usize>(
-    m: &[[T; C]; R],
-    fill: T,
-) -> [[T; R]; C] {
-    let mut t = [[fill; R]; C];
-    for (r, row) in m.iter().enumerate() {
-        for (col, v) in t.iter_mut().zip(row) {
-            if let Some(x) = col.get_mut(r) {
-                *x = *v;
-            }
-        }
-    }
-    t
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -131,13 +114,11 @@ mod tests {
     }
 
     #[test]
-    fn element_wise_forms_and_transpose() {
+    fn element_wise_forms() {
         assert_eq!(
             zip_with([1, 2, 3], &[10, 20, 30], |a, b| a + b),
             [11, 22, 33]
         );
         assert_eq!(map([1, 2, 3], |a| a * 2), [2, 4, 6]);
-        let m = [[1, 2, 3], [4, 5, 6]];
-        assert_eq!(transpose(&m, 0), [[1, 4], [2, 5], [3, 6]]);
     }
 }

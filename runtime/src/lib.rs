@@ -6,15 +6,19 @@
 //! calls the slice forms, generated code calls the const-generic array forms, and each array form
 //! flattens and calls the slice form, so both perform the same operations in the same order and
 //! produce the same bits. The accumulation order of every reduction is documented on the kernel
-//! and is part of the contract.
+//! and is part of the contract; [`reference`](mod@reference) holds that contract as plain
+//! loops, one per reduction, and every fast path is tested bit for bit against it. The fold
+//! order of the lane sums of a dot product is written once, in [`linalg::fold_lanes`].
 //!
-//! Slices of mismatched lengths never panic: operands are paired with `zip` (and matrix rows with
-//! `chunks_exact`), so the shortest operand decides and surplus elements are left untouched.
+//! Slices of mismatched lengths never panic: operands are paired with `zip` (and matrix rows cut
+//! into pieces of the row length, as `chunks_exact` would), so the shortest operand decides and
+//! surplus elements are left untouched.
 //!
 //! # Kernels
 //!
 //! | module | kernels |
 //! | --- | --- |
+//! | [`reference`](mod@reference) | the contract: plain-loop kernels ([`reference::affine`], [`reference::back`], ..., [`reference::softmax_cross_entropy_batch`]) whose docs give each formula and order of additions; [`linalg::fold_lanes`], the one fold order of the lane sums |
 //! | [`real`] | [`Real`]: the scalar trait (`f32`, `f64`) over libm |
 //! | [`linalg`] | [`affine`] `z = W x + b`, [`back`] `out = W^T d`, [`outer_acc`] `G += d a^T`, [`add_acc`] `g += d`, [`standardize`] `(x - mean) / std`, each with an `_n` array form where shapes matter; their batch forms over a block of samples ([`affine_batch`], [`back_batch`], [`outer_acc_batch`] and its row-range form [`outer_acc_batch_rows`], [`add_acc_batch`]), bit for bit the per-sample loop (layers of at most 16 inputs or outputs run eight samples side by side, one per SIMD lane) |
 //! | [`act`] | [`act::identity`], [`act::sigmoid`], [`act::tanh`], [`act::relu`], [`act::leaky_relu`], [`act::softmax`] and their `_grad` forms; [`act::Activation`] |
@@ -83,6 +87,8 @@ macro_rules! by_length_1_to_16 {
 #[cfg(test)]
 mod testutil;
 
+mod block;
+
 pub mod act;
 pub mod blob;
 pub mod each;
@@ -92,6 +98,7 @@ pub mod math;
 pub mod optim;
 pub mod penalty;
 pub mod real;
+pub mod reference;
 pub mod rng;
 
 pub use linalg::{

@@ -3,8 +3,16 @@
 //! Cross-entropies take the output layer's pre-activations `z` (the logits), never a rounded
 //! probability, so they stay finite when a unit saturates. All sums start at `ZERO` and add in
 //! increasing index. Slices of different lengths are paired by `zip`: the shorter one decides.
+//!
+//! The plain losses ([`log_sum_exp`], [`logistic_cross_entropy`], [`softmax_cross_entropy`],
+//! [`squared_error`]) are their [`crate::reference`] loops. The fused and batch softmax forms
+//! ([`softmax_with_cross_entropy`], [`softmax_cross_entropy_batch`],
+//! [`softmax_cross_entropy_batch_n`]) are fast paths, tested bit for bit against the reference's
+//! three steps.
 
-use crate::each::{map, pieces, pieces_mut, transpose, zip_with};
+use crate::block::{store_rows, transpose, Across, BLOCK};
+use crate::each::{map, pieces, pieces_mut, zip_with};
+use crate::reference;
 use crate::Real;
 
 /// Softplus `ln(1 + e^z)`, computed stably as `max(z, 0) + ln_1p(e^-|z|)`.
@@ -41,22 +49,7 @@ pub fn softplus<T: Real>(z: T) -> T {
 /// assert_eq!(v, 1000.0 + core::f64::consts::LN_2);
 /// ```
 pub fn log_sum_exp<T: Real>(z: &[T]) -> T {
-    let Some(first) = z.first() else {
-        return T::ZERO;
-    };
-    let mut m = *first;
-    for zj in z {
-        m = m.max(*zj);
-    }
-    // m * 0 is 0 for finite m and NaN for an infinity or NaN.
-    if m * T::ZERO != T::ZERO {
-        return m;
-    }
-    let mut s = T::ZERO;
-    for zj in z {
-        s += (*zj - m).exp();
-    }
-    m + s.ln()
+    reference::log_sum_exp(z)
 }
 
 /// Per-unit logistic cross-entropy from the logits (sigmoid outputs):
@@ -82,11 +75,7 @@ pub fn log_sum_exp<T: Real>(z: &[T]) -> T {
 /// assert_eq!(logistic_cross_entropy(&[800.0_f64], &[0.0]), 800.0);
 /// ```
 pub fn logistic_cross_entropy<T: Real>(z: &[T], y: &[T]) -> T {
-    let mut s = T::ZERO;
-    for (zj, yj) in z.iter().zip(y) {
-        s += (zj.max(T::ZERO) - *yj * *zj) + (-zj.abs()).exp().ln_1p();
-    }
-    s
+    reference::logistic_cross_entropy(z, y)
 }
 
 /// Categorical cross-entropy from the logits (softmax outputs):
@@ -104,12 +93,7 @@ pub fn logistic_cross_entropy<T: Real>(z: &[T], y: &[T]) -> T {
 /// assert_eq!(l, core::f64::consts::LN_2);
 /// ```
 pub fn softmax_cross_entropy<T: Real>(z: &[T], y: &[T]) -> T {
-    let lse = log_sum_exp(z);
-    let mut s = T::ZERO;
-    for (zj, yj) in z.iter().zip(y) {
-        s += *yj * (lse - *zj);
-    }
-    s
+    reference::softmax_cross_entropy(z, y)
 }
 
 /// The softmax outputs and the categorical cross-entropy of one sample together: writes
@@ -171,9 +155,6 @@ pub fn softmax_with_cross_entropy<T: Real>(z: &[T], y: &[T], a: &mut [T]) -> T {
     }
     loss
 }
-
-/// Samples per block of [`softmax_cross_entropy_batch_n`] (one per SIMD lane).
-const BLOCK: usize = 8;
 
 /// [`softmax_with_cross_entropy`] for every sample of a block: `as_[s] = softmax(zs[s])` and the
 /// losses added to `sum` in sample order, over the zip of `zs`, `ys` and `as_`; returns the sum.
@@ -294,9 +275,6 @@ fn softmax_cross_entropy_blocks<T: Real, const O: usize>(
     done
 }
 
-/// Eight values, one per sample of a block.
-type Across<T> = [T; BLOCK];
-
 /// [`softmax_with_cross_entropy`] of [`BLOCK`] samples side by side (`O >= 1`): the losses.
 #[inline(always)]
 fn softmax_cross_entropy_block<T: Real, const O: usize>(
@@ -308,20 +286,14 @@ fn softmax_cross_entropy_block<T: Real, const O: usize>(
     let yt: [Across<T>; O] = transpose(ys, T::ZERO);
     let mut at = [[T::ZERO; BLOCK]; O];
     let loss = softmax_cross_entropy_across(&zt, &yt, &mut at);
-    for (s, a) in as_.iter_mut().enumerate() {
-        for (aj, v) in a.iter_mut().zip(&at) {
-            if let Some(v) = v.get(s) {
-                *aj = *v;
-            }
-        }
-    }
+    store_rows(&at, as_);
     loss
 }
 
 /// The arithmetic of [`softmax_cross_entropy_block`] on the transposed block (`zt[j][s]`).
 ///
-/// Not inlined, on purpose: inlined with the transpositions the compiler keeps the block in
-/// scalar code; on its own each step runs on the eight samples in one SIMD instruction.
+/// Not inlined, on purpose: on its own each step runs on the eight samples in one SIMD
+/// instruction (`bench/NOTES.md`, `loss::softmax_cross_entropy_across`).
 #[inline(never)]
 fn softmax_cross_entropy_across<T: Real, const O: usize>(
     zt: &[Across<T>; O],
@@ -375,12 +347,7 @@ fn softmax_cross_entropy_across<T: Real, const O: usize>(
 /// assert_eq!(squared_error(&[1.0_f32, 3.0], &[0.0, 1.0]), 2.5);
 /// ```
 pub fn squared_error<T: Real>(a: &[T], y: &[T]) -> T {
-    let mut s = T::ZERO;
-    for (aj, yj) in a.iter().zip(y) {
-        let e = *aj - *yj;
-        s += e * e;
-    }
-    s * T::HALF
+    reference::squared_error(a, y)
 }
 
 /// Output error `d_j = a_j - y_j`, over the zip of the three slices.
@@ -439,12 +406,11 @@ mod tests {
             let ys: Vec<[T; O]> = (0..m)
                 .map(|_| core::array::from_fn(|_| T::from_f64(rng.uniform(0.0, 1.0))))
                 .collect();
-            // The three steps the generated code ran before, and the engine's order of the sum.
+            // The reference's three steps, and the engine's order of the sum.
             let mut want_a = zs.clone();
             let mut want_sum = T::from_f64(0.25);
             for (a, (z, y)) in want_a.iter_mut().zip(zs.iter().zip(&ys)) {
-                crate::act::softmax(a);
-                want_sum += softmax_cross_entropy(z, y);
+                want_sum += reference::softmax_with_cross_entropy(z, y, a);
             }
             let mut a = std::vec![[T::ZERO; O]; m];
             let sum = softmax_cross_entropy_batch_n(&zs, &ys, &mut a, T::from_f64(0.25));
@@ -498,6 +464,50 @@ mod tests {
         );
         let mut empty: [f64; 0] = [];
         assert_eq!(softmax_with_cross_entropy(&[], &[], &mut empty), 0.0);
+    }
+
+    /// The slice forms against the reference: widths 0..=40, batches around the block edges,
+    /// outputs longer or shorter than the logits, special logits.
+    fn slice_forms_equal_the_reference<T: Real>() {
+        let mut rng = SplitMix64::new(17);
+        for o in 0..=40 {
+            for m in [0, 1, 2, 7, 8, 9, 15, 16, 17, 25] {
+                let zs: Vec<T> = (0..m * o).map(|_| logit(&mut rng)).collect();
+                let ys: Vec<T> = (0..m * o)
+                    .map(|_| T::from_f64(rng.uniform(0.0, 1.0)))
+                    .collect();
+                let (mut a, mut want_a) = (std::vec![T::ONE; m * o], std::vec![T::ONE; m * o]);
+                let (mut l, mut want_l) = (std::vec![T::ONE; m], std::vec![T::ONE; m]);
+                softmax_cross_entropy_batch(&zs, &ys, &mut a, &mut l, o);
+                reference::softmax_cross_entropy_batch(&zs, &ys, &mut want_a, &mut want_l, o);
+                assert_eq!(same_bits(&a), same_bits(&want_a), "{o} x {m}");
+                assert_eq!(same_bits(&l), same_bits(&want_l), "{o} x {m}");
+            }
+            let z: Vec<T> = (0..o).map(|_| logit(&mut rng)).collect();
+            let y: Vec<T> = (0..o).map(|_| T::from_f64(rng.uniform(0.0, 1.0))).collect();
+            for len in [o.saturating_sub(1), o, o + 1] {
+                let (mut a, mut want) = (std::vec![T::HALF; len], std::vec![T::HALF; len]);
+                let l = softmax_with_cross_entropy(&z, &y, &mut a);
+                let wl = reference::softmax_with_cross_entropy(&z, &y, &mut want);
+                assert_eq!(same_bits(&a), same_bits(&want), "{o} into {len}");
+                assert_eq!(same_bits(&[l]), same_bits(&[wl]), "{o} into {len}");
+            }
+            let mut v = z.clone();
+            crate::act::softmax(&mut v);
+            let mut want = z.clone();
+            reference::softmax(&mut want);
+            assert_eq!(same_bits(&v), same_bits(&want), "softmax {o}");
+        }
+    }
+
+    #[test]
+    fn slice_forms_equal_the_reference_f32() {
+        slice_forms_equal_the_reference::<f32>();
+    }
+
+    #[test]
+    fn slice_forms_equal_the_reference_f64() {
+        slice_forms_equal_the_reference::<f64>();
     }
 
     #[test]

@@ -1,26 +1,21 @@
-//! Short rows, vectorised across samples: the affine map of a block of [`BLOCK`] samples with
-//! one SIMD lane per sample.
+//! Short rows, vectorised across samples: the affine map (and the transposed product) of a block
+//! of [`BLOCK`] samples with one SIMD lane per sample.
 //!
 //! A row of 6 to 16 inputs fills at most two chunks of the eight lane sums of [`affine`], so per
 //! sample the vector unit mostly adds padding and folds lanes horizontally. Here the block is
-//! transposed (input `i` of the eight samples side by side) and every operation of the per-sample
-//! order is done for eight samples at once: each sample sees exactly the additions and
-//! multiplications of [`affine`], in the same order, so the bits are the same. The fold is the
-//! one of [`affine`]'s lane sum with the lanes that receive no product left out, as the emitter's
+//! transposed (input `i` of the eight samples side by side, [`crate::block`]) and every operation
+//! of the per-sample order is done for eight samples at once: each sample sees exactly the
+//! additions and multiplications of [`affine`], in the same order, so the bits are the same. The
+//! fold is [`fold_lanes`] with the lanes that receive no product left out, as the emitter's
 //! unrolled code does (such a lane is `+0`, and adding `+0` to a lane sum, which is never `-0`,
 //! changes nothing).
 //!
 //! [`affine`]: super::affine
 
-use super::LANES;
-use crate::each::{blocks, pieces, pieces_mut, transpose, zip_with};
+use super::{fold_lanes, LANES};
+use crate::block::{store_rows, transpose, Across, BLOCK};
+use crate::each::{blocks, pieces, pieces_mut, zip_with};
 use crate::Real;
-
-/// Samples per block: one per lane of a 256-bit register of `f32`.
-pub(super) const BLOCK: usize = 8;
-
-/// Eight values, one per sample of a block.
-type Across<T> = [T; BLOCK];
 
 /// `acc_s += w * x_s` for every sample.
 #[inline(always)]
@@ -36,27 +31,29 @@ fn add<T: Real>(a: Across<T>, b: Across<T>) -> Across<T> {
     zip_with(a, &b, |x, y| x + y)
 }
 
-/// The lane fold `((l0 + l4) + (l2 + l6)) + ((l1 + l5) + (l3 + l7))` of every sample, leaving out
-/// the lanes from `used` on (they hold `+0`). `used` is a constant where this is inlined, so the
-/// choices vanish.
+/// [`fold_lanes`] of every sample, leaving out the lanes from `used` on (they hold `+0`): a pair
+/// with one lane left out is that lane. `used` is a constant where this is inlined, so the choices
+/// vanish.
 #[inline(always)]
 fn fold<T: Real>(l: [Across<T>; LANES], used: usize) -> Across<T> {
     let [l0, l1, l2, l3, l4, l5, l6, l7] = l;
     let lane = |k: usize, v: Across<T>| (k < used).then_some(v);
+    let lanes = [
+        lane(0, l0),
+        lane(1, l1),
+        lane(2, l2),
+        lane(3, l3),
+        lane(4, l4),
+        lane(5, l5),
+        lane(6, l6),
+        lane(7, l7),
+    ];
     let pair = |a: Option<Across<T>>, b: Option<Across<T>>| match (a, b) {
         (Some(a), Some(b)) => Some(add(a, b)),
         (a, None) => a,
         (None, b) => b,
     };
-    let left = pair(
-        pair(lane(0, l0), lane(4, l4)),
-        pair(lane(2, l2), lane(6, l6)),
-    );
-    let right = pair(
-        pair(lane(1, l1), lane(5, l5)),
-        pair(lane(3, l3), lane(7, l7)),
-    );
-    pair(left, right).unwrap_or([T::ZERO; BLOCK])
+    fold_lanes(lanes, pair).unwrap_or([T::ZERO; BLOCK])
 }
 
 /// Output rows per pass of the slice forms (the transposed block of `CHUNK` outputs lives on
@@ -159,9 +156,8 @@ pub(super) fn affine_block<T: Real, const I: usize>(
 
 /// The arithmetic of [`affine_block`] on the transposed block: `zt[j][s]` from `xt[i][s]`.
 ///
-/// Not inlined, on purpose: inlined together with the transpositions, the compiler turns the
-/// whole block into scalar code (one product per instruction, measured); on its own the row
-/// loop runs every operation on the eight samples in one SIMD instruction.
+/// Not inlined, on purpose: on its own the row loop runs every operation on the eight samples in
+/// one SIMD instruction (`bench/NOTES.md`, `linalg::affine_across`).
 #[inline(never)]
 fn affine_across<T: Real, const I: usize>(
     w: &[[T; I]],
@@ -220,21 +216,14 @@ pub(super) fn back_block<T: Real, const I: usize>(
             back_across(wc, dt.get(..wc.len()).unwrap_or_default(), &mut ot);
         }
     }
-    for (s, out) in outs.iter_mut().enumerate() {
-        for (oi, v) in out.iter_mut().zip(&ot) {
-            if let Some(v) = v.get(s) {
-                *oi = *v;
-            }
-        }
-    }
+    store_rows(&ot, outs);
 }
 
 /// The arithmetic of [`back_block`] on the transposed block (not inlined, as [`affine_across`]):
 /// adds the rows of `w` in order to each `ot[i]`.
 ///
-/// One output at a time, its sum in a register (the form of [`affine_across`]): with the rows of
-/// `W` in the outer loop instead, the AVX-512 build kept two outputs per 512-bit register and
-/// shuffled them on every product (N1 batch gradient 44 against 26 us in the `x86-64-v3` build).
+/// One output at a time, its sum in a register (the form of [`affine_across`]; `bench/NOTES.md`,
+/// `linalg::back_across`).
 #[inline(never)]
 fn back_across<T: Real, const I: usize>(w: &[[T; I]], dt: &[Across<T>], ot: &mut [Across<T>; I]) {
     for (i, o) in ot.iter_mut().enumerate() {
