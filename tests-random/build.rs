@@ -1,7 +1,8 @@
 //! Generates [`NETWORKS`] random valid specs from one seeded SplitMix64 (sinew-runtime's), then
 //! compiles every one of them through the public build API into this crate, exactly as a user's
 //! `build.rs` would, and writes `OUT_DIR/index.rs` (included by `src/lib.rs`): each model as
-//! `sinew_tests_random::<model>`, an `impl Net` for its `Params`, and `for_each_net`.
+//! `sinew_tests_random::<model>`, an `impl sinew_harness::Net` for its `Params` (the glue of
+//! `sinew_harness::glue`), and `for_each_net`.
 //!
 //! What is drawn, per network (see [`spec`]):
 //!
@@ -20,8 +21,7 @@
 //! One network in five is compiled with unrolled kernels (`unroll_below(48)`, which unrolls its
 //! layers of fewer than 48 weights), the rest with the default rolled kernels.
 
-use sinew::emit::ident::{Names, MEAN_FIELD, STD_FIELD};
-use sinew::ir::Model;
+use sinew_harness::glue::{for_each, include_generated, net_impl, SpecFile};
 use sinew_runtime::rng::SplitMix64;
 use std::error::Error;
 use std::fmt::Write as _;
@@ -221,7 +221,8 @@ fn main() -> Result<(), Box<dyn Error>> {
         }
         let path = spec_dir.join(format!("net_{i:03}.sinew"));
         sinew::fsutil::write_if_changed(&path, text.as_bytes())?;
-        let (list, folder) = if i % 5 == 4 {
+        let unrolled_here = i % 5 == 4;
+        let (list, folder) = if unrolled_here {
             (&mut unrolled, "unrolled")
         } else {
             (&mut rolled, "rolled")
@@ -230,12 +231,13 @@ fn main() -> Result<(), Box<dyn Error>> {
         let Some(model) = checked.model else {
             return Err(format!("network {i} has no model").into());
         };
-        let _ = writeln!(
-            index,
-            "include!(concat!(env!(\"OUT_DIR\"), \"/{folder}/{}.rs\"));",
-            model.name
-        );
-        index.push_str(&glue(&model, i % 5 == 4));
+        let spec_file = format!("specs/{}.sinew", model.name);
+        index.push_str(&include_generated(folder, &model.name));
+        index.push_str(&net_impl(
+            &model,
+            SpecFile::InOutDir(&spec_file),
+            unrolled_here,
+        ));
     }
     // Exactly what a user's build.rs does (the specs are generated, so no rerun lines for them).
     sinew::Builder::new()
@@ -250,70 +252,16 @@ fn main() -> Result<(), Box<dyn Error>> {
         .cargo_metadata(false)
         .compile()?;
 
-    index.push_str("/// Runs `v` over every random network, in order.\n");
-    index.push_str("pub fn for_each_net(v: &mut impl crate::Visit) {\n");
-    for i in 0..NETWORKS {
-        let _ = writeln!(index, "    v.visit::<net_{i:03}::Params>();");
-    }
-    index.push_str("}\n");
+    let names: Vec<String> = (0..NETWORKS).map(|i| format!("net_{i:03}")).collect();
+    index.push_str(&for_each(
+        "Runs `v` over every random network, in order.",
+        "for_each_net",
+        names.iter().map(String::as_str),
+    ));
     let _ = writeln!(
         index,
         "/// How many random networks this crate holds.\npub const NETWORKS: usize = {NETWORKS};"
     );
     sinew::fsutil::write_if_changed(&out_dir.join("index.rs"), index.as_bytes())?;
     Ok(())
-}
-
-/// `impl crate::Net for <model>::Params`, forwarding to the generated API; field names come
-/// from `sinew::emit::ident`, the code that names the generated fields.
-fn glue(model: &Model, unrolled: bool) -> String {
-    let names = Names::of(model);
-    let mut each_mut = String::new();
-    let mut each = String::new();
-    let mut each_grad = String::new();
-    for l in &names.layers {
-        let (w, b) = (&l.weights, &l.bias);
-        let _ = write!(
-            each_mut,
-            "f(self.{w}.as_flattened_mut()); f(&mut self.{b}); "
-        );
-        let _ = write!(each, "f(self.{w}.as_flattened()); f(&self.{b}); ");
-        let _ = write!(each_grad, "f(g.{w}.as_flattened()); f(&g.{b}); ");
-    }
-    let scaling = if model.input.standardize {
-        format!("f(&mut self.{MEAN_FIELD}, &mut self.{STD_FIELD});")
-    } else {
-        "let _ = f;".to_string()
-    };
-    let name = &model.name;
-    format!(
-        r#"
-impl crate::Net for {name}::Params {{
-    type Scalar = {name}::Scalar;
-    type Gradients = {name}::Gradients;
-    type X = [{name}::Scalar; {name}::INPUTS];
-    type Y = [{name}::Scalar; {name}::OUTPUTS];
-    type Trainer = {name}::Trainer;
-    const NAME: &'static str = "{name}";
-    const SPEC: &'static str = include_str!(concat!(env!("OUT_DIR"), "/specs/{name}.sinew"));
-    const UNROLLED: bool = {unrolled};
-    fn seeded(seed: u64) -> Self {{ {name}::Params::init(seed) }}
-    fn grad_zero() -> Self::Gradients {{ {name}::Gradients::zeroed() }}
-    fn x_zero() -> Self::X {{ [0.0; {name}::INPUTS] }}
-    fn y_zero() -> Self::Y {{ [0.0; {name}::OUTPUTS] }}
-    fn arrays_mut(&mut self, f: &mut dyn FnMut(&mut [Self::Scalar])) {{ {each_mut}}}
-    fn arrays(&self, f: &mut dyn FnMut(&[Self::Scalar])) {{ {each}}}
-    fn grad_arrays(g: &Self::Gradients, f: &mut dyn FnMut(&[Self::Scalar])) {{ {each_grad}}}
-    fn scaling_mut(&mut self, f: &mut crate::ScalingFn<'_, Self::Scalar>) {{ {scaling} }}
-    fn forward(&self, x: &Self::X) -> Self::Y {{ self.predict(x) }}
-    fn sample_loss(&self, x: &Self::X, y: &Self::Y) -> Self::Scalar {{ self.loss(x, y) }}
-    fn sample_backprop(&self, x: &Self::X, y: &Self::Y, g: &mut Self::Gradients) -> Self::Scalar {{ self.backprop(x, y, g) }}
-    fn finish(&self, g: &mut Self::Gradients, m: usize) {{ g.finish(self, m) }}
-    fn batch_cost(&self, xs: &[Self::X], ys: &[Self::Y]) -> Self::Scalar {{ self.cost(xs, ys) }}
-    fn trainer(params: Self) -> Self::Trainer {{ {name}::Trainer::new(params) }}
-    fn trainer_step(t: &mut Self::Trainer, xs: &[Self::X], ys: &[Self::Y]) -> Self::Scalar {{ t.step(xs, ys) }}
-    fn trainer_params(t: &Self::Trainer) -> &Self {{ &t.params }}
-}}
-"#
-    )
 }

@@ -4,13 +4,13 @@
 //! - every model as `sinew_tests::<model>` (from `OUT_DIR/<model>.rs`);
 //! - the small models again with element-level unrolling as `sinew_tests::unrolled::<model>`;
 //! - two models with baked weights (through `sinew::emit::generate`) as `sinew_tests::baked::<model>`;
-//! - for each of them an `impl Net` (test glue over the generated API, field names taken from
-//!   `sinew::emit::ident`, the same code that names the generated fields) and visitor functions
-//!   that run a generic test over every model.
+//! - for each of them an `impl sinew_harness::Net` (the glue of `sinew_harness::glue`) and
+//!   visitor functions that run a generic test over every model.
 
-use sinew::emit::ident::Names;
 use sinew::emit::{BakedParams, EmitOptions};
 use sinew::ir::Model;
+use sinew_harness::files::specs_in;
+use sinew_harness::glue::{for_each, include_generated, net_impl, SpecFile};
 use std::error::Error;
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
@@ -18,18 +18,6 @@ use std::path::{Path, PathBuf};
 include!("src/baked_values.rs");
 
 include!("src/variants.rs");
-
-fn specs_in(dir: &Path) -> Result<Vec<PathBuf>, Box<dyn Error>> {
-    let mut v = Vec::new();
-    for entry in std::fs::read_dir(dir)? {
-        let p = entry?.path();
-        if p.extension().is_some_and(|e| e == "sinew") {
-            v.push(p);
-        }
-    }
-    v.sort();
-    Ok(v)
-}
 
 fn main() -> Result<(), Box<dyn Error>> {
     let manifest = PathBuf::from(std::env::var("CARGO_MANIFEST_DIR")?);
@@ -63,12 +51,8 @@ fn main() -> Result<(), Box<dyn Error>> {
     let mut models = Vec::new();
     for (path, rel) in &all {
         let model = model_of(path)?;
-        let _ = writeln!(
-            index,
-            "include!(concat!(env!(\"OUT_DIR\"), \"/{}.rs\"));",
-            model.name
-        );
-        index.push_str(&glue(&model, rel));
+        index.push_str(&include_generated("", &model.name));
+        index.push_str(&net_impl(&model, SpecFile::InManifestDir(rel), false));
         models.push((model, rel.clone()));
     }
 
@@ -95,12 +79,8 @@ fn main() -> Result<(), Box<dyn Error>> {
         "/// The small models again, with every matrix kernel unrolled.\npub mod unrolled {\n",
     );
     for (m, rel) in &unrolled {
-        let _ = writeln!(
-            index,
-            "include!(concat!(env!(\"OUT_DIR\"), \"/unrolled/{}.rs\"));",
-            m.name
-        );
-        index.push_str(&glue(m, rel));
+        index.push_str(&include_generated("unrolled", &m.name));
+        index.push_str(&net_impl(m, SpecFile::InManifestDir(rel), true));
     }
     index.push_str("}\n");
 
@@ -121,20 +101,17 @@ fn main() -> Result<(), Box<dyn Error>> {
             &baked_dir.join(format!("{}.rs", m.name)),
             code.as_bytes(),
         )?;
-        let _ = writeln!(
-            index,
-            "include!(concat!(env!(\"OUT_DIR\"), \"/baked/{}.rs\"));",
-            m.name
-        );
-        index.push_str(&glue(m, rel));
+        index.push_str(&include_generated("baked", &m.name));
+        index.push_str(&net_impl(m, SpecFile::InManifestDir(rel), false));
     }
     index.push_str("}\n");
 
-    index.push_str("/// Runs `v` over every model (samples and fixtures).\npub fn for_each_model(v: &mut impl crate::Visit) {\n");
-    for (m, _) in &models {
-        let _ = writeln!(index, "    v.visit::<{}::Params>();", m.name);
-    }
-    index.push_str("}\n/// Runs `v` over every (rolled, unrolled) pair of the same model.\npub fn for_each_unrolled_pair(v: &mut impl crate::VisitPair) {\n");
+    index.push_str(&for_each(
+        "Runs `v` over every model (samples and fixtures).",
+        "for_each_model",
+        models.iter().map(|(m, _)| m.name.as_str()),
+    ));
+    index.push_str("/// Runs `v` over every (rolled, unrolled) pair of the same model.\npub fn for_each_unrolled_pair(v: &mut impl ::sinew_harness::VisitPair) {\n");
     for (m, _) in &unrolled {
         let _ = writeln!(
             index,
@@ -179,72 +156,4 @@ fn baked_params(m: &Model) -> BakedParams {
         mean: m.input.standardize.then(|| scaling(baked_mean)),
         std: m.input.standardize.then(|| scaling(baked_std)),
     }
-}
-
-/// `impl crate::Net for <model>::Params`, placed beside the model's module.
-fn glue(m: &Model, spec_rel: &str) -> String {
-    let names = Names::of(m);
-    let md = &m.name;
-    let mut each_mut = String::new();
-    let mut each = String::new();
-    let mut each_grad = String::new();
-    for l in &names.layers {
-        let _ = write!(
-            each_mut,
-            "f(self.{}.as_flattened_mut()); f(&mut self.{});",
-            l.weights, l.bias
-        );
-        let _ = write!(
-            each,
-            "f(self.{}.as_flattened()); f(&self.{});",
-            l.weights, l.bias
-        );
-        let _ = write!(
-            each_grad,
-            "f(g.{}.as_flattened()); f(&g.{});",
-            l.weights, l.bias
-        );
-    }
-    let scaling = if m.input.standardize {
-        format!(
-            "f(&mut self.{}, &mut self.{});",
-            sinew::emit::ident::MEAN_FIELD,
-            sinew::emit::ident::STD_FIELD
-        )
-    } else {
-        "let _ = f;".to_string()
-    };
-    format!(
-        r#"
-impl crate::Net for {md}::Params {{
-    type Scalar = {md}::Scalar;
-    type Gradients = {md}::Gradients;
-    type X = [{md}::Scalar; {md}::INPUTS];
-    type Y = [{md}::Scalar; {md}::OUTPUTS];
-    const NAME: &'static str = "{name}";
-    const SPEC: &'static str = include_str!(concat!(env!("CARGO_MANIFEST_DIR"), "/{spec_rel}"));
-    const FINGERPRINT: u64 = {md}::FINGERPRINT;
-    fn zero() -> Self {{ {md}::Params::zeroed() }}
-    fn seeded(seed: u64) -> Self {{ {md}::Params::init(seed) }}
-    fn grad_zero() -> Self::Gradients {{ {md}::Gradients::zeroed() }}
-    fn x_zero() -> Self::X {{ [0.0; {md}::INPUTS] }}
-    fn y_zero() -> Self::Y {{ [0.0; {md}::OUTPUTS] }}
-    fn arrays_mut(&mut self, f: &mut dyn FnMut(&mut [Self::Scalar])) {{ {each_mut} }}
-    fn arrays(&self, f: &mut dyn FnMut(&[Self::Scalar])) {{ {each} }}
-    fn grad_arrays(g: &Self::Gradients, f: &mut dyn FnMut(&[Self::Scalar])) {{ {each_grad} }}
-    fn scaling_mut(&mut self, f: &mut crate::ScalingFn<'_, Self::Scalar>) {{ {scaling} }}
-    fn forward(&self, x: &Self::X) -> Self::Y {{ self.predict(x) }}
-    fn sample_loss(&self, x: &Self::X, y: &Self::Y) -> Self::Scalar {{ self.loss(x, y) }}
-    fn sample_backprop(&self, x: &Self::X, y: &Self::Y, g: &mut Self::Gradients) -> Self::Scalar {{ self.backprop(x, y, g) }}
-    fn finish(&self, g: &mut Self::Gradients, m: usize) {{ g.finish(self, m) }}
-    fn batch_cost(&self, xs: &[Self::X], ys: &[Self::Y]) -> Self::Scalar {{ self.cost(xs, ys) }}
-    fn penalty(&self, m: usize) -> Self::Scalar {{ self.penalty_cost(m) }}
-    type Trainer = {md}::Trainer;
-    fn trainer(params: Self) -> Self::Trainer {{ {md}::Trainer::new(params) }}
-    fn trainer_step(t: &mut Self::Trainer, xs: &[Self::X], ys: &[Self::Y]) -> Self::Scalar {{ t.step(xs, ys) }}
-    fn trainer_params(t: &Self::Trainer) -> &Self {{ &t.params }}
-}}
-"#,
-        name = m.name
-    )
 }

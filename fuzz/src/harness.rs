@@ -55,7 +55,7 @@ fn valid_model(model: &Model) {
     if model.parameters() > EMIT_LIMIT {
         return;
     }
-    let baked = sinew::workflow::baked(&sinew::workflow::init(model, None));
+    let baked = sinew::workflow::init(model, None).baked();
     for (unroll_below, weights) in [(0, None), (64, None), (0, Some(baked))] {
         let options = EmitOptions {
             spec_name: "fuzz.sinew".to_string(),

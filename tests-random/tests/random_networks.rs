@@ -24,9 +24,13 @@
 
 use sinew::engine::{self, gradcheck, Scratch};
 use sinew::ir::{Activation, Loss, Model, Optimizer, Penalty, Scalar};
+use sinew_harness::host::{
+    backprop_gradient, bits, engine_params, flat, flat_grad, generic_params_with, model_of, rows,
+    set_flat,
+};
+use sinew_harness::{Net, Visit};
 use sinew_runtime::rng::SplitMix64;
 use sinew_runtime::Real;
-use sinew_tests_random::{Net, Visit};
 use std::collections::BTreeSet;
 
 const SAMPLES: usize = 4;
@@ -37,60 +41,10 @@ const KINK_MARGIN: f64 = 1e-3;
 /// Parameters checked per layer on the generated f64 code (the engine check takes 12).
 const GENERATED_PER_LAYER: usize = 6;
 
-fn model_of<M: Net>() -> Model {
-    let checked = sinew::check_source(M::SPEC);
-    assert!(
-        !checked.has_errors(),
-        "{}: {:?}",
-        M::NAME,
-        checked.diagnostics
-    );
-    checked.model.expect("a model without errors")
-}
-
-fn flat<M: Net>(p: &M) -> Vec<f64> {
-    let mut v = Vec::new();
-    p.arrays(&mut |a| v.extend(a.iter().map(|&x| x.into())));
-    v
-}
-
-fn set_flat<M: Net>(p: &mut M, values: &[f64]) {
-    let mut it = values.iter().copied();
-    p.arrays_mut(&mut |a| {
-        for x in a.iter_mut() {
-            if let Some(v) = it.next() {
-                *x = M::Scalar::from_f64(v);
-            }
-        }
-    });
-}
-
-fn bits<S: Copy + Into<f64>>(v: &[S]) -> Vec<u64> {
-    v.iter().map(|&s| s.into().to_bits()).collect()
-}
-
-/// The spec's init, then every bias and the scaling set to non-trivial values.
+/// The spec's init, then every bias and the scaling set to non-trivial values, drawn from a
+/// SplitMix64 seeded with `seed ^ 0xb1a5`.
 fn generic_params<M: Net>(seed: u64) -> M {
-    let mut p = M::seeded(seed);
-    let mut rng = SplitMix64::new(seed ^ 0xb1a5);
-    let mut k = 0;
-    p.arrays_mut(&mut |a| {
-        if k % 2 == 1 {
-            for b in a.iter_mut() {
-                *b = M::Scalar::from_f64(rng.uniform(-0.5, 0.5));
-            }
-        }
-        k += 1;
-    });
-    p.scaling_mut(&mut |mean, std| {
-        for m in mean.iter_mut() {
-            *m = M::Scalar::from_f64(rng.uniform(-1.0, 1.0));
-        }
-        for s in std.iter_mut() {
-            *s = M::Scalar::from_f64(rng.uniform(0.5, 2.0));
-        }
-    });
-    p
+    generic_params_with(seed, &mut SplitMix64::new(seed ^ 0xb1a5))
 }
 
 /// Inputs uniform on [-2, 2]; targets a distribution (softmax + cross-entropy), in [0, 1]
@@ -121,35 +75,9 @@ fn data<M: Net>(model: &Model, seed: u64) -> (Vec<M::X>, Vec<M::Y>) {
     (xs, ys)
 }
 
-fn rows<S: Copy + Into<f64>, A: AsRef<[S]>>(v: &[A]) -> Vec<f64> {
-    v.iter()
-        .flat_map(|a| a.as_ref().iter().map(|&s| s.into()))
-        .collect()
-}
-
-/// The engine's parameters holding the generated parameters' values, in scalar `T`.
-fn engine_params<M: Net, T: Real>(model: &Model, p: &mut M) -> engine::Params<T> {
-    let values = flat(p);
-    let mut layers = Vec::new();
-    let mut at = 0;
-    for l in &model.layers {
-        let n = l.width * l.fan_in;
-        layers.push((
-            values[at..at + n].to_vec(),
-            values[at + n..at + n + l.width].to_vec(),
-        ));
-        at += n + l.width;
-    }
-    let (mut mean, mut std) = (Vec::new(), Vec::new());
-    p.scaling_mut(&mut |m, s| {
-        mean.extend(m.iter().map(|&v| Into::<f64>::into(v)));
-        std.extend(s.iter().map(|&v| Into::<f64>::into(v)));
-    });
-    let scaling = model
-        .input
-        .standardize
-        .then_some((mean.as_slice(), std.as_slice()));
-    engine::Params::from_f64(&layers, scaling)
+/// The values of the samples, one after the other, as f64.
+fn concat_rows<S: Copy + Into<f64>, A: AsRef<[S]>>(v: &[A]) -> Vec<f64> {
+    rows(v).concat()
 }
 
 /// The smallest `|z|` met at a relu or leaky_relu unit over the samples (f64 forward pass with
@@ -266,16 +194,14 @@ fn bitwise<M: Net, T: Real + Send + Sync + Into<f64>>(model: &Model) {
     }
     p.finish(&mut g, xs.len());
     net.finish(&mut eg, &ep, xs.len());
-    let mut generated = Vec::new();
-    M::grad_arrays(&g, &mut |a| generated.extend(a.iter().map(|&v| v.into())));
     assert_eq!(
-        bits(&generated),
+        bits(&flat_grad::<M>(&g)),
         bits(&eg.flat_f64()),
         "{}: gradient",
         M::NAME
     );
-    let fx: Vec<T> = rows(&xs).into_iter().map(T::from_f64).collect();
-    let fy: Vec<T> = rows(&ys).into_iter().map(T::from_f64).collect();
+    let fx: Vec<T> = concat_rows(&xs).into_iter().map(T::from_f64).collect();
+    let fy: Vec<T> = concat_rows(&ys).into_iter().map(T::from_f64).collect();
     assert_eq!(
         bits(&[p.batch_cost(&xs, &ys)]),
         bits(&[net.cost(&ep, &fx, &fy)]),
@@ -305,7 +231,7 @@ impl EndToEnd {
         let mut found = None;
         for attempt in 0..500 {
             let (xs, ys) = data::<M>(model, 1000 + attempt);
-            if min_kink(model, &ep, &rows(&xs)) > KINK_MARGIN {
+            if min_kink(model, &ep, &concat_rows(&xs)) > KINK_MARGIN {
                 found = Some((xs, ys));
                 break;
             }
@@ -313,7 +239,7 @@ impl EndToEnd {
         let Some((xs, ys)) = found else {
             panic!("{}: no data away from the relu kinks", M::NAME);
         };
-        let (fx, fy) = (rows(&xs), rows(&ys));
+        let (fx, fy) = (concat_rows(&xs), concat_rows(&ys));
         let opts = gradcheck::CheckOptions {
             step: STEP,
             rtol: RTOL,
@@ -348,13 +274,7 @@ impl EndToEnd {
 /// The same check on the generated f64 code itself: its `backprop` + `finish` against central
 /// differences of its `cost`, for [`GENERATED_PER_LAYER`] drawn parameters of every layer.
 fn generated_gradient_check<M: Net>(model: &Model, p: &mut M, xs: &[M::X], ys: &[M::Y]) {
-    let mut g = M::grad_zero();
-    for (x, y) in xs.iter().zip(ys) {
-        p.sample_backprop(x, y, &mut g);
-    }
-    p.finish(&mut g, xs.len());
-    let mut analytic = Vec::new();
-    M::grad_arrays(&g, &mut |a| analytic.extend(a.iter().map(|&v| v.into())));
+    let analytic = backprop_gradient(p, xs, ys);
     let w0 = flat(p);
     let mut rng = SplitMix64::new(37);
     let mut at = 0;

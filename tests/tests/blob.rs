@@ -3,16 +3,15 @@
 //! over-long blobs, and blobs of other models. The checksum is checked against `crc32fast`, a
 //! general-purpose CRC-32 library, and the published check value of CRC-32/IEEE 802.3.
 
-mod common;
-
 use sinew::ir::Model;
 use sinew::pack;
+use sinew_harness::{host, Net};
 use sinew_runtime::blob::{offset, BlobError, ScalarKind};
-use sinew_tests::{pump_health as ph, valve_gate as vg, Net};
+use sinew_tests::{pump_health as ph, valve_gate as vg};
 
 /// Weights for `model` holding the values of a generated `Params`, through the generic view.
 fn weights_of<M: Net>(model: &Model, p: &mut M) -> sinew::weights::Weights {
-    let flat = common::flat(p);
+    let flat = host::flat(p);
     let mut layers = Vec::new();
     let mut k = 0;
     for l in &model.layers {
@@ -22,14 +21,14 @@ fn weights_of<M: Net>(model: &Model, p: &mut M) -> sinew::weights::Weights {
         k += l.width;
         layers.push((w, b));
     }
-    let (mean, std) = common::scaling(p);
+    let (mean, std) = host::scaling(p);
     let scaling = model.input.standardize.then_some((mean, std));
     sinew::weights::Weights::from_params(model, layers, scaling, None)
 }
 
 fn pump() -> (Model, ph::Params, Vec<u8>) {
-    let model = common::model_of::<ph::Params>();
-    let p: ph::Params = common::generic_params(11);
+    let model = host::model_of::<ph::Params>();
+    let p: ph::Params = host::generic_params(11);
     let mut buf = vec![0u8; ph::Params::BLOB_BYTES];
     let n = p.to_blob(&mut buf).expect("the buffer is large enough");
     assert_eq!(n, buf.len());
@@ -37,8 +36,8 @@ fn pump() -> (Model, ph::Params, Vec<u8>) {
 }
 
 fn valve() -> (Model, vg::Params, Vec<u8>) {
-    let model = common::model_of::<vg::Params>();
-    let p: vg::Params = common::generic_params(5);
+    let model = host::model_of::<vg::Params>();
+    let p: vg::Params = host::generic_params(5);
     let mut buf = vec![0u8; vg::Params::BLOB_BYTES];
     p.to_blob(&mut buf).expect("the buffer is large enough");
     (model, p, buf)
@@ -167,7 +166,7 @@ fn every_bit_flip<P: PartialEq + Clone + std::fmt::Debug>(
 #[test]
 fn every_single_bit_flip_is_refused_by_the_check_that_guards_it() {
     let (_, _, blob) = valve();
-    let start: vg::Params = common::generic_params(99);
+    let start: vg::Params = host::generic_params(99);
     let n = every_bit_flip(&blob, &start, |p, b| p.load_blob(b));
     assert_eq!(n, 8 * (24 + 13 * 8));
 

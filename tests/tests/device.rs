@@ -28,11 +28,10 @@
 //! `SINEW_DEVICE_FIGURES=FILE` writes the Markdown table of figures to FILE
 //! (`bash tests/device/run.sh --figures` puts it into the README).
 
-mod toolchain;
-
 use sinew::engine::{Net, Params, Scratch, Trainer};
 use sinew::ir::Model;
 use sinew::report::Report;
+use sinew_harness::toolchain;
 use std::collections::BTreeMap;
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};

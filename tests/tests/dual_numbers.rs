@@ -1,16 +1,14 @@
 //! An independent gradient oracle: forward-mode dual numbers from the crates.io `num-dual` crate
-//! (version 0.11) through a forward pass written in `common::reference_cost` from the layer list
-//! of the IR and the values of the generated `Params`, evaluating the same cost J. Its exact
-//! derivative must agree with the generated backprop (+ finish) to 1e-10 relative in f64, for
-//! every f64 model.
+//! (version 0.11) through a forward pass written in `sinew_harness::host::reference_cost` from
+//! the layer list of the IR and the values of the generated `Params`, evaluating the same cost J.
+//! Its exact derivative must agree with the generated backprop (+ finish) to 1e-10 relative in
+//! f64, for every f64 model.
 //!
 //! Relative error, per parameter: `|a - b| / max(|a| + |b|, 1e-8)`.
 
-mod common;
-
-use common::*;
-use num_dual::{Dual64, DualNum};
-use sinew_tests::{Net, Visit};
+use num_dual::DualNum;
+use sinew_harness::host::*;
+use sinew_harness::{Net, Visit};
 
 const TOLERANCE: f64 = 1e-10;
 const FLOOR: f64 = 1e-8;
@@ -43,17 +41,7 @@ impl Visit for DualOracle {
 
         let mut worst = 0.0f64;
         for (k, &a) in analytic.iter().enumerate() {
-            let seeded: Vec<Dual64> = w
-                .iter()
-                .enumerate()
-                .map(|(i, &v)| {
-                    if i == k {
-                        Dual64::new(v, 1.0)
-                    } else {
-                        Dual64::from_re(v)
-                    }
-                })
-                .collect();
+            let seeded = dual_seeded(&w, k);
             let (jd, _) = reference_cost(&model, &seeded, &mean, &std, &xr, &yr);
             let exact = jd.eps;
             assert!(rel_err(jd.re(), j, FLOOR) < 1e-14);

@@ -4,36 +4,12 @@
 //! check is on our own two back ends, the independent references are in `gradient_check.rs`,
 //! `dual_numbers.rs` and `worked_example.rs`).
 
-mod common;
-
-use common::*;
 use sinew::engine::{self, Scratch};
-use sinew_tests::{Net, Visit};
+use sinew_harness::host::*;
+use sinew_harness::{Net, Visit};
 
 /// Models above this size are exercised in `large_model.rs` through the in-place APIs only.
 const MAX_PARAMETERS: usize = 20_000;
-
-fn engine_params<M: Net>(model: &sinew::ir::Model, p: &mut M) -> engine::Params<M::Scalar> {
-    let flat = flat(p);
-    let mut layers = Vec::new();
-    let mut at = 0;
-    for l in &model.layers {
-        let w = flat[at..at + l.width * l.fan_in].to_vec();
-        let b = flat[at + l.width * l.fan_in..at + l.parameters()].to_vec();
-        at += l.parameters();
-        layers.push((w, b));
-    }
-    let (mean, std) = scaling(p);
-    let scaling = model
-        .input
-        .standardize
-        .then_some((mean.as_slice(), std.as_slice()));
-    engine::Params::from_f64(&layers, scaling)
-}
-
-fn bits<S: Copy + Into<f64>>(v: &[S]) -> Vec<u64> {
-    v.iter().map(|&s| s.into().to_bits()).collect()
-}
 
 struct SameAsEngine {
     models: Vec<&'static str>,
@@ -54,7 +30,7 @@ impl Visit for SameAsEngine {
 #[inline(never)]
 fn same_as_engine<M: Net>(model: &sinew::ir::Model) {
     let mut p = generic_params::<M>(61);
-    let ep = engine_params(model, &mut p);
+    let ep = engine_params::<M, M::Scalar>(model, &mut p);
     let net = engine::Net::new(model);
     let mut s = Scratch::new(model);
     let (xs, ys) = data::<M>(model, 9, 62);

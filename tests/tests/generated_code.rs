@@ -2,10 +2,8 @@
 //! byte-identical to what `build.rs` wrote, a builder that leaves unchanged files alone, unrolled
 //! kernels that give the same bits as the runtime's, and baked weights with exact bit patterns.
 
-mod common;
-
 use sinew::emit::{generate, EmitOptions};
-use sinew_tests::{Net, VisitPair};
+use sinew_harness::{host, Net, VisitPair};
 use std::path::{Path, PathBuf};
 
 fn generate_file(path: &Path, unroll_below: usize) -> String {
@@ -125,11 +123,11 @@ struct SameBits {
 impl VisitPair for SameBits {
     fn visit<A: Net, B: Net<Scalar = A::Scalar, X = A::X, Y = A::Y>>(&mut self) {
         assert_eq!(A::NAME, B::NAME);
-        let model = common::model_of::<A>();
-        let a = common::generic_params::<A>(5);
+        let model = host::model_of::<A>();
+        let a = host::generic_params::<A>(5);
         let mut b = B::zero();
-        common::set_flat(&mut b, &common::flat(&a));
-        let (xs, ys) = common::data::<A>(&model, 7, 9);
+        host::set_flat(&mut b, &host::flat(&a));
+        let (xs, ys) = host::data::<A>(&model, 7, 9);
         let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
         for (x, y) in xs.iter().zip(&ys) {
             let (pa, pb) = (a.forward(x), b.forward(x));
@@ -137,8 +135,8 @@ impl VisitPair for SameBits {
             assert!(a.sample_loss(x, y) == b.sample_loss(x, y));
         }
         assert!(a.batch_cost(&xs, &ys) == b.batch_cost(&xs, &ys));
-        let ga = common::backprop_gradient::<A>(&a, &xs, &ys);
-        let gb = common::backprop_gradient::<B>(&b, &xs, &ys);
+        let ga = host::backprop_gradient::<A>(&a, &xs, &ys);
+        let gb = host::backprop_gradient::<B>(&b, &xs, &ys);
         assert_eq!(bits(&ga), bits(&gb), "{}: gradients differ", A::NAME);
         self.pairs += 1;
     }

@@ -12,10 +12,8 @@
 //! 1e-8 floor.) A mutation check below shows that this criterion rejects a penalty gradient that
 //! is off by a factor of two.
 
-mod common;
-
-use common::*;
-use sinew_tests::{Net, Visit};
+use sinew_harness::host::*;
+use sinew_harness::{Net, Visit};
 
 const STEP: f64 = 1e-5;
 const TOLERANCE: f64 = 1e-7;

@@ -3,13 +3,11 @@
 //! `static` built by the generated `const fn`, so no copy of it ever passes through a stack.
 //!
 //! Gradient reference: a few entries of the generated f32 backprop against exact derivatives from
-//! `num-dual` forward-mode dual numbers over the same parameters in f64 (`common::reference_cost`),
-//! to 1e-3 relative (f32 arithmetic over sums of up to 784 terms).
+//! `num-dual` forward-mode dual numbers over the same parameters in f64
+//! (`sinew_harness::host::reference_cost`), to 1e-3 relative (f32 arithmetic over sums of up to
+//! 784 terms).
 
-mod common;
-
-use common::*;
-use num_dual::Dual64;
+use sinew_harness::host::*;
 use sinew_runtime::rng::SplitMix64;
 use sinew_tests::dial_digits as dd;
 use std::sync::Mutex;
@@ -92,17 +90,7 @@ fn large_model_through_the_in_place_apis() {
         dd::PARAMETERS - 1,             // the last output bias
     ];
     for &k in &picks {
-        let seeded: Vec<Dual64> = values
-            .iter()
-            .enumerate()
-            .map(|(i, &v)| {
-                if i == k {
-                    Dual64::new(v, 1.0)
-                } else {
-                    Dual64::from_re(v)
-                }
-            })
-            .collect();
+        let seeded = dual_seeded(&values, k);
         let (j, _) = reference_cost(&model, &seeded, &[], &[], &xr, &yr);
         let r = rel_err(grads[k], j.eps, 1e-6);
         assert!(

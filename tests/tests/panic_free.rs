@@ -32,11 +32,12 @@
 //! `SINEW_DEVICE=require` (what `.ci/run` sets after installing them) it fails instead.
 
 use object::{Object, ObjectSection, ObjectSymbol, RelocationTarget, SectionIndex, SymbolKind};
-mod toolchain;
 
 use quote::ToTokens as _;
 use sinew::emit::{BakedParams, EmitOptions};
 use sinew::ir::Model;
+use sinew_harness::files::specs_in;
+use sinew_harness::toolchain;
 use sinew_tests::{BAKED, UNROLLED, UNROLL_BELOW};
 use std::collections::{BTreeMap, BTreeSet, HashMap};
 use std::fmt::Write as _;
@@ -77,14 +78,9 @@ struct Module {
     source: String,
 }
 
-fn specs_in(dir: &Path) -> Vec<PathBuf> {
-    let mut v: Vec<PathBuf> = std::fs::read_dir(dir)
-        .unwrap_or_else(|e| panic!("{}: {e}", dir.display()))
-        .map(|e| e.expect("a folder entry").path())
-        .filter(|p| p.extension().is_some_and(|e| e == "sinew"))
-        .collect();
-    v.sort();
-    v
+/// The spec files of `dir` (`sinew_harness::files::specs_in`); panics naming the folder.
+fn spec_files(dir: &Path) -> Vec<PathBuf> {
+    specs_in(dir).unwrap_or_else(|e| panic!("{}: {e}", dir.display()))
 }
 
 fn checked(text: &str, what: &str) -> Model {
@@ -130,8 +126,8 @@ fn generate(model: &Model, spec_name: &str, unroll_below: usize, weights: bool) 
 /// The spec texts of the random networks, in order, and whether each is unrolled.
 fn random_specs() -> Vec<(String, bool)> {
     struct Collect(Vec<(String, bool)>);
-    impl sinew_tests_random::Visit for Collect {
-        fn visit<M: sinew_tests_random::Net>(&mut self) {
+    impl sinew_harness::Visit for Collect {
+        fn visit<M: sinew_harness::Net>(&mut self) {
             self.0.push((M::SPEC.to_string(), M::UNROLLED));
         }
     }
@@ -142,8 +138,8 @@ fn random_specs() -> Vec<(String, bool)> {
 
 fn modules() -> Vec<Module> {
     let root = repo();
-    let mut specs = specs_in(&root.join("samples"));
-    specs.extend(specs_in(&root.join("tests/fixtures")));
+    let mut specs = spec_files(&root.join("samples"));
+    specs.extend(spec_files(&root.join("tests/fixtures")));
     let mut out = Vec::new();
     for path in &specs {
         let text = std::fs::read_to_string(path).expect("a spec file");

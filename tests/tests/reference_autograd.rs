@@ -46,14 +46,12 @@
 //!   sinew rounds to exactly 0) from failing on their relative error. A wrong formula (a missing
 //!   `1/m`, a wrong derivative) changes entries by orders of magnitude more than either bound.
 
-mod common;
-
-use common::{backprop_gradient, is_f64, model_of, set_flat};
 use serde_json::Value;
 use sinew::engine::{batch, Net, Params, Scratch};
 use sinew::ir::{Activation, Loss, Model, Penalty};
+use sinew_harness::host::{backprop_gradient, is_f64, model_of, set_flat};
+use sinew_harness::Visit;
 use sinew_runtime::Real;
-use sinew_tests::Visit;
 use std::collections::BTreeSet;
 use std::path::PathBuf;
 
@@ -471,7 +469,7 @@ struct Generated<'a> {
     not_bitwise: Vec<String>,
 }
 
-fn to_array<M: sinew_tests::Net, A: Copy + AsMut<[M::Scalar]>>(zero: A, v: &[f64]) -> A {
+fn to_array<M: sinew_harness::Net, A: Copy + AsMut<[M::Scalar]>>(zero: A, v: &[f64]) -> A {
     let mut a = zero;
     for (s, &x) in a.as_mut().iter_mut().zip(v) {
         *s = M::Scalar::from_f64(x);
@@ -492,7 +490,7 @@ fn same_shape(a: &Model, b: &Model) -> bool {
 }
 
 impl Visit for Generated<'_> {
-    fn visit<M: sinew_tests::Net>(&mut self) {
+    fn visit<M: sinew_harness::Net>(&mut self) {
         let Some(g) = self
             .goldens
             .iter()

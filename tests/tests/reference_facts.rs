@@ -296,11 +296,11 @@ fn the_worked_backprop_example_through_the_engine() {
     let (x, y) = ([0.05, 0.10], [0.01, 0.99]);
     let net = Net::<f64>::new(&m);
     let mut s = Scratch::new(&m);
-    net.forward(&p, &x, &mut s, false);
-    close_to_published("out_h1", s.a[0][0], 0.593269992, 9);
-    close_to_published("out_h2", s.a[0][1], 0.596884378, 9);
-    close_to_published("out_o1", s.a[1][0], 0.75136507, 8);
-    close_to_published("out_o2", s.a[1][1], 0.772928465, 9);
+    net.forward(&p, &x, &mut s);
+    close_to_published("out_h1", s.activations(0)[0], 0.593269992, 9);
+    close_to_published("out_h2", s.activations(0)[1], 0.596884378, 9);
+    close_to_published("out_o1", s.activations(1)[0], 0.75136507, 8);
+    close_to_published("out_o2", s.activations(1)[1], 0.772928465, 9);
 
     let (cost, g) = gradient(&m, &p, &x, &y);
     close_to_published("E_total", cost, 0.298371109, 9);

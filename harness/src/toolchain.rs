@@ -1,8 +1,11 @@
-//! What the device tests (`device.rs`, `panic_free.rs`) ask of the machine's Rust toolchain, and
-//! the clean environment of the cargo builds they start.
+//! What the device tests (`tests/tests/device.rs`, `tests/tests/panic_free.rs`) ask of the
+//! machine's Rust toolchain, and the clean environment of the cargo builds they start.
 
+use std::format;
 use std::path::PathBuf;
 use std::process::{Command, Stdio};
+use std::string::String;
+use std::vec::Vec;
 
 /// The sysroot of `toolchain` (the default one with `None`) has the standard library of
 /// `target`.

@@ -1,15 +1,16 @@
-//! Helpers shared by the integration tests: the IR of a generated model, deterministic test
-//! data, flat views of parameters and gradients, and an independent forward pass generic over
-//! `num_dual` numbers (written here from the IR and the formulas of DESIGN.md, not from the
-//! emitter or the runtime).
+//! Helpers of the integration tests of both test crates, over any [`Net`]: the IR of a
+//! generated model, its values as `f64` in model order (the order of [`Net::arrays`]), parameters
+//! at a generic point, test data, the generated gradient of a batch, the engine's parameters
+//! holding the same values, and an independent forward pass generic over `num_dual` numbers
+//! (written from the IR and the formulas of DESIGN.md, not from the emitter or the runtime).
 
-#![allow(dead_code)]
-
-use num_dual::DualNum;
+use crate::Net;
+use num_dual::{Dual64, DualNum};
+use sinew::engine;
 use sinew::ir::{Activation, Loss, Model, Penalty, Scalar};
 use sinew_runtime::rng::SplitMix64;
 use sinew_runtime::Real;
-use sinew_tests::Net;
+use std::vec::Vec;
 
 /// The checked IR of model `M`, from its spec text.
 pub fn model_of<M: Net>() -> Model {
@@ -64,11 +65,17 @@ pub fn scaling<M: Net>(p: &mut M) -> (Vec<f64>, Vec<f64>) {
     (mean, std)
 }
 
-/// Parameters at a generic point: the spec's init with `seed`, then every bias and (with
-/// `standardize`) the scaling set to random non-trivial values, so no term is tested at zero.
+/// Parameters at a generic point: [`generic_params_with`] drawing from SplitMix64 seeded with
+/// `seed ^ 0x5eed`.
 pub fn generic_params<M: Net>(seed: u64) -> M {
+    generic_params_with(seed, &mut SplitMix64::new(seed ^ 0x5eed))
+}
+
+/// Parameters at a generic point: the spec's init with `seed`, then every bias (uniform on
+/// [-0.5, 0.5]) and, with `standardize`, the mean (uniform on [-1, 1]) and std (uniform on
+/// [0.5, 2]) drawn from `rng` in model order, so no term is tested at zero.
+pub fn generic_params_with<M: Net>(seed: u64, rng: &mut SplitMix64) -> M {
     let mut p = M::seeded(seed);
-    let mut rng = SplitMix64::new(seed ^ 0x5eed);
     let mut k = 0;
     p.arrays_mut(&mut |a| {
         if k % 2 == 1 {
@@ -128,10 +135,32 @@ pub fn data<M: Net>(model: &Model, m: usize, seed: u64) -> (Vec<M::X>, Vec<M::Y>
     (xs, ys)
 }
 
+/// The bits of each value as `f64` (an `f32` widens exactly), for bit-for-bit comparisons.
+pub fn bits<S: Copy + Into<f64>>(v: &[S]) -> Vec<u64> {
+    v.iter().map(|&s| s.into().to_bits()).collect()
+}
+
 /// Converts samples to f64 vectors.
 pub fn rows<S: Copy + Into<f64>, A: AsRef<[S]>>(v: &[A]) -> Vec<Vec<f64>> {
     v.iter()
         .map(|a| a.as_ref().iter().map(|&s| s.into()).collect())
+        .collect()
+}
+
+/// `values` as forward-mode dual numbers that differentiate with respect to entry `k`: entry `k`
+/// is `values[k] + 1 eps`, every other entry a constant (`eps` part 0). Through
+/// [`reference_cost`], the `eps` part of J is then the exact `dJ/dvalues[k]`.
+pub fn dual_seeded(values: &[f64], k: usize) -> Vec<Dual64> {
+    values
+        .iter()
+        .enumerate()
+        .map(|(i, &v)| {
+            if i == k {
+                Dual64::new(v, 1.0)
+            } else {
+                Dual64::from_re(v)
+            }
+        })
         .collect()
 }
 
@@ -296,4 +325,26 @@ pub fn backprop_gradient<M: Net>(p: &M, xs: &[M::X], ys: &[M::Y]) -> Vec<f64> {
     }
     p.finish(&mut g, xs.len());
     flat_grad::<M>(&g)
+}
+
+/// The engine's parameters holding the values of `p`, converted to scalar `T`: per layer the
+/// weights and biases of [`flat`], and with `standardize` the mean and std of [`scaling`].
+pub fn engine_params<M: Net, T: Real>(model: &Model, p: &mut M) -> engine::Params<T> {
+    let values = flat(p);
+    let mut layers = Vec::new();
+    let mut at = 0;
+    for l in &model.layers {
+        let n = l.width * l.fan_in;
+        layers.push((
+            values[at..at + n].to_vec(),
+            values[at + n..at + n + l.width].to_vec(),
+        ));
+        at += n + l.width;
+    }
+    let (mean, std) = scaling(p);
+    let scaling = model
+        .input
+        .standardize
+        .then_some((mean.as_slice(), std.as_slice()));
+    engine::Params::from_f64(&layers, scaling)
 }
