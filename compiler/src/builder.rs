@@ -27,6 +27,7 @@
 use crate::diag::{self, Severity};
 use crate::emit::{self, EmitOptions};
 use crate::fsutil;
+use crate::weights::Weights;
 use std::fmt;
 use std::io::Write;
 use std::path::{Component, Path, PathBuf};
@@ -297,20 +298,19 @@ impl Builder {
                 second: path.clone(),
             });
         }
-        let weights =
-            match &entry.weights {
-                Some(w) => Some(crate::workflow::load_weights(&model, w).map_err(|e| {
-                    BuildError::Weights {
-                        spec: path.clone(),
-                        message: e.to_string(),
-                    }
-                })?),
-                None => None,
-            };
+        let weights = match &entry.weights {
+            Some(w) => Some(
+                Weights::load_checked(w, &model).map_err(|e| BuildError::Weights {
+                    spec: path.clone(),
+                    message: e.to_string(),
+                })?,
+            ),
+            None => None,
+        };
         let options = EmitOptions {
             spec_name: spec_display_name(path),
             unroll_below: self.unroll_below,
-            weights: weights.as_ref().map(crate::workflow::baked),
+            weights: weights.as_ref().map(Weights::baked),
         };
         let code = emit::generate(&model, &options);
         let out = out_dir.join(file_name);

@@ -68,7 +68,9 @@
 //! assert_eq!(err.to_string(), "gate.csv:2: error[D06]: cell `x` in column 2 (`b`) is not a number");
 //! ```
 
+use crate::code::Code;
 use crate::ir::Model;
+use crate::text::quote;
 use sinew_runtime::rng::SplitMix64;
 use std::cell::RefCell;
 use std::fmt;
@@ -130,7 +132,7 @@ impl Dataset {
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct DataError {
     /// Stable code (`D01`...; see the [module documentation](self)).
-    pub code: &'static str,
+    pub code: Code,
     /// The file's name as given.
     pub file: String,
     /// 1-based line where the problem is, when it has one.
@@ -142,7 +144,7 @@ pub struct DataError {
 }
 
 impl DataError {
-    fn new(code: &'static str, file: &str, line: Option<u64>, message: impl Into<String>) -> Self {
+    fn new(code: Code, file: &str, line: Option<u64>, message: impl Into<String>) -> Self {
         DataError {
             code,
             file: file.to_string(),
@@ -182,7 +184,7 @@ pub fn read_csv(path: &Path, model: &Model) -> Result<Dataset, DataError> {
     let name = path.display().to_string();
     let file = File::open(path).map_err(|e| {
         DataError::new(
-            "D01",
+            Code::D01,
             &name,
             None,
             format!("cannot read the data file: {e}"),
@@ -324,24 +326,24 @@ fn read_from<R: Read>(
         let line = Some(w.next_line());
         match e.kind() {
             csv::ErrorKind::Io(_) if w.tripped => DataError::new(
-                "D11",
+                Code::D11,
                 name,
                 line,
                 format!("the record starting here is longer than {limit} bytes"),
             )
             .help("a record this long usually means a quote (\") that is never closed"),
             csv::ErrorKind::Io(io) => DataError::new(
-                "D01",
+                Code::D01,
                 name,
                 line,
                 format!("cannot read the data file: {io}"),
             ),
             csv::ErrorKind::Utf8 { .. } => {
-                DataError::new("D12", name, line, "this line is not valid UTF-8 text")
+                DataError::new(Code::D12, name, line, "this line is not valid UTF-8 text")
                     .help("save the file as UTF-8 (plain ASCII is fine)")
             }
             _ => DataError::new(
-                "D12",
+                Code::D12,
                 name,
                 line,
                 format!("cannot read this record as CSV: {e}"),
@@ -359,7 +361,8 @@ fn read_from<R: Read>(
 
     let Some(header_line) = next(&mut rec)? else {
         return Err(
-            DataError::new("D02", name, None, "the data file is empty").help(header_help(model))
+            DataError::new(Code::D02, name, None, "the data file is empty")
+                .help(header_help(model)),
         );
     };
     let mut header: Vec<String> = rec.iter().map(str::to_string).collect();
@@ -380,7 +383,7 @@ fn read_from<R: Read>(
         Layout::Outputs
     } else if last_is_label {
         return Err(DataError::new(
-            "D10",
+            Code::D10,
             name,
             Some(header_line),
             format!(
@@ -413,7 +416,7 @@ fn read_from<R: Read>(
         };
         let found = header.len();
         let mut e = DataError::new(
-            "D04",
+            Code::D04,
             name,
             Some(header_line),
             format!(
@@ -462,7 +465,7 @@ fn read_from<R: Read>(
         if rec.len() != width {
             let found = rec.len();
             return Err(DataError::new(
-                "D05",
+                Code::D05,
                 name,
                 Some(line),
                 format!(
@@ -491,7 +494,7 @@ fn read_from<R: Read>(
                     })?;
                     if classifier && !(0.0..=1.0).contains(&v) {
                         return Err(DataError::new(
-                            "D13",
+                            Code::D13,
                             name,
                             Some(line),
                             format!("target {} in {} is outside [0, 1]", quote(cell), column(j)),
@@ -524,7 +527,7 @@ fn read_from<R: Read>(
     }
     if ds.is_empty() {
         return Err(DataError::new(
-            "D03",
+            Code::D03,
             name,
             Some(header_line),
             "the data file has a header but no samples",
@@ -592,17 +595,6 @@ fn plural<'a>(n: usize, one: &'a str, many: &'a str) -> &'a str {
     }
 }
 
-/// A cell in backticks, shortened when long.
-fn quote(cell: &str) -> String {
-    const MAX: usize = 40;
-    if cell.chars().count() > MAX {
-        let head: String = cell.chars().take(MAX).collect();
-        format!("`{head}...`")
-    } else {
-        format!("`{cell}`")
-    }
-}
-
 /// Parses a cell; `column` names it, and is called only to report an error.
 fn number(
     name: &str,
@@ -619,20 +611,20 @@ fn number(
     let column = column();
     if cell.is_empty() {
         return Err(
-            DataError::new("D06", name, Some(line), format!("{column} is empty"))
+            DataError::new(Code::D06, name, Some(line), format!("{column} is empty"))
                 .help("every cell needs a value; sinew does not fill in missing values"),
         );
     }
     match parsed {
         Ok(_) => Err(DataError::new(
-            "D07",
+            Code::D07,
             name,
             Some(line),
             format!("cell {} in {column} is not a finite number", quote(cell)),
         )
         .help("NaN and infinity cannot be trained on: repair or remove this line")),
         Err(_) => Err(DataError::new(
-            "D06",
+            Code::D06,
             name,
             Some(line),
             format!("cell {} in {column} is not a number", quote(cell)),
@@ -670,7 +662,7 @@ fn label(
     let range = format!("0 to {}", n_classes - 1);
     if index.is_some() {
         let e = DataError::new(
-            "D09",
+            Code::D09,
             name,
             Some(line),
             format!(
@@ -693,7 +685,7 @@ fn label(
     let e = match &model.classes {
         Some(classes) => {
             let mut e = DataError::new(
-                "D08",
+                Code::D08,
                 name,
                 Some(line),
                 format!("unknown class {} in {column}; the classes are {}", quote(cell), classes.join(", ")),
@@ -710,7 +702,7 @@ fn label(
             e
         }
         None => DataError::new(
-            "D08",
+            Code::D08,
             name,
             Some(line),
             format!("label {} in {column} is not a class index, and the spec names no classes", quote(cell)),

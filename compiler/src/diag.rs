@@ -18,7 +18,7 @@ pub enum Severity {
 }
 
 /// A stable diagnostic code such as `S0201`; the list with examples is in `grammar/REFERENCE.md`.
-pub type Code = &'static str;
+pub use crate::code::Code;
 
 /// A labelled span.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -107,10 +107,10 @@ impl Diagnostic {
 ///
 /// # Examples
 /// ```
-/// use sinew::diag::{render, Diagnostic};
+/// use sinew::diag::{render, Code, Diagnostic};
 /// use sinew::span::Span;
 /// let src = "model demo\nlayer h 4 sigmod\n";
-/// let d = Diagnostic::error("S0102", "unknown activation `sigmod`", Span::new(21, 27))
+/// let d = Diagnostic::error(Code::S0102, "unknown activation `sigmod`", Span::new(21, 27))
 ///     .label("not an activation")
 ///     .with_help("did you mean `sigmoid`?");
 /// let text = render("demo.sinew", src, &[d], false);
@@ -151,7 +151,7 @@ pub fn render(file_name: &str, src: &str, diags: &[Diagnostic], color: bool) -> 
         );
         let notes = d.help.iter().map(|h| format!("help: {h}")).collect();
         let diagnostic = cs::Diagnostic::new(severity)
-            .with_code(d.code)
+            .with_code(d.code.as_str())
             .with_message(d.message.clone())
             .with_labels(labels)
             .with_notes(notes);

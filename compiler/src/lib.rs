@@ -12,19 +12,29 @@
 #![deny(missing_docs)]
 
 pub mod check;
+pub mod code;
+#[cfg(feature = "train")]
+pub mod commands;
+#[cfg(feature = "train")]
 pub mod data;
 pub mod diag;
+#[cfg(feature = "train")]
 pub mod engine;
 pub mod fsutil;
 pub mod ir;
 pub mod pack;
+pub mod plan;
 #[cfg(feature = "cli")]
 pub mod plot;
 pub mod report;
 pub mod span;
+#[cfg(feature = "train")]
 pub mod summary;
 pub mod syntax;
+pub mod text;
 pub mod weights;
+pub mod words;
+#[cfg(feature = "train")]
 pub mod workflow;
 pub use check::{check_source, Checked};
 pub mod builder;

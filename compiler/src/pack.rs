@@ -164,6 +164,19 @@ pub fn decode(model: &Model, bytes: &[u8]) -> Result<Vec<f64>, BlobError> {
     }
 }
 
+impl PackError {
+    /// The exit status of `sinew pack` failing with this error: [`ExitStatus::Spec`] for
+    /// weights that do not fit the spec or too many values, [`ExitStatus::Usage`] for I/O.
+    pub fn exit_status(&self) -> crate::code::ExitStatus {
+        match self {
+            PackError::Io { .. } => crate::code::ExitStatus::Usage,
+            PackError::Weights(_) | PackError::TooManyValues { .. } => {
+                crate::code::ExitStatus::Spec
+            }
+        }
+    }
+}
+
 /// Writes `bytes` to `path` atomically ([`fsutil::write_atomic`]), creating its folder first.
 pub fn write(path: &Path, bytes: &[u8]) -> Result<(), PackError> {
     if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
@@ -201,6 +214,7 @@ mod tests {
     }
 
     #[test]
+    #[cfg(feature = "train")]
     fn encode_then_decode_gives_the_values_back() {
         for spec in [F32_STD, F64] {
             let m = model(spec);
@@ -224,6 +238,7 @@ mod tests {
     }
 
     #[test]
+    #[cfg(feature = "train")]
     fn weights_of_another_shape_are_refused() {
         let w = crate::workflow::init(&model(F64), None);
         match encode(&model(F32_STD), &w) {

@@ -2,8 +2,9 @@
 //! and the cost report only.
 
 use crate::diag::Diagnostic;
-use crate::ir::{Activation, Model, Optimizer, Penalty};
+use crate::ir::{Activation, Model};
 use crate::report::{human_bytes, Report};
+use crate::words;
 use serde::Serialize;
 use std::fmt::Write;
 
@@ -121,23 +122,8 @@ pub fn table(model: &Model) -> String {
     if let Some(c) = &model.classes {
         let _ = writeln!(s, "  classes: {}", c.join(", "));
     }
-    let penalty = match model.penalty {
-        Penalty::None => "none".to_string(),
-        Penalty::L2(l) => format!("l2 {l}"),
-        Penalty::L1(l) => format!("l1 {l}"),
-    };
-    let optimizer = match model.train.optimizer {
-        Optimizer::Sgd {
-            rate,
-            momentum: 0.0,
-        } => format!("sgd rate {rate}"),
-        Optimizer::Sgd { rate, momentum } => format!("sgd rate {rate} momentum {momentum}"),
-        Optimizer::Adam {
-            rate, beta1, beta2, ..
-        } => {
-            format!("adam rate {rate} beta1 {beta1} beta2 {beta2}")
-        }
-    };
+    let penalty = words::penalty_spec(model.penalty);
+    let optimizer = words::optimizer_spec(model.train.optimizer);
     let _ = writeln!(
         s,
         "  loss {}, penalty {penalty}, train {optimizer} batch {} epochs {}",
@@ -254,23 +240,21 @@ pub fn evaluation(model: &Model, e: &crate::engine::eval::Evaluation) -> String 
     s
 }
 
-/// The `sinew gradcheck` report and whether every layer passed.
+/// The `sinew gradcheck` report of `outcome`, checked with relative tolerance `threshold` and
+/// absolute tolerance `atol`: one line per layer, then the verdict.
 pub fn gradcheck(
     model: &Model,
-    checks: &[crate::engine::gradcheck::LayerCheck],
+    outcome: &crate::workflow::GradcheckOutcome,
     threshold: f64,
     atol: f64,
-) -> (String, bool) {
+) -> String {
     let mut s = String::new();
-    let mut ok = true;
     let _ = writeln!(
         s,
         "{}: backprop against central differences (f64)",
         model.name
     );
-    for c in checks {
-        let pass = c.failures == 0;
-        ok &= pass;
+    for c in &outcome.layers {
         let _ = writeln!(
             s,
             "  {:<16} {:>6}/{:<6} worst relative error {:.3e} at {}, worst absolute {:.3e}  {}",
@@ -280,7 +264,7 @@ pub fn gradcheck(
             c.worst_relative_error,
             c.worst_at,
             c.worst_absolute_error,
-            if pass {
+            if c.passed() {
                 "ok".to_string()
             } else {
                 format!("FAIL ({} outside tolerance)", c.failures)
@@ -290,7 +274,35 @@ pub fn gradcheck(
     let _ = writeln!(
         s,
         "{} (|backprop - difference| <= {atol:.0e} + {threshold:.0e} * max magnitude)",
-        if ok { "passed" } else { "failed" }
+        outcome.verdict.word()
     );
-    (s, ok)
+    s
+}
+
+/// The `sinew grad` report without `--json`: the batch cost, then per layer the largest
+/// magnitude and the Euclidean norm of `dJ/dW` and of `dJ/db`.
+pub fn gradient(model: &Model, g: &crate::workflow::Gradient) -> String {
+    let mut s = String::new();
+    let _ = writeln!(
+        s,
+        "{}: {} samples, cost {:.6}",
+        model.name, g.samples, g.cost
+    );
+    let stats = |v: &mut dyn Iterator<Item = f64>| {
+        v.fold((0.0f64, 0.0f64), |(max, sq), x| {
+            (max.max(x.abs()), sq + x * x)
+        })
+    };
+    for l in &g.layers {
+        let (wmax, wsq) = stats(&mut l.weights.iter().flatten().copied());
+        let (bmax, bsq) = stats(&mut l.bias.iter().copied());
+        let _ = writeln!(
+            s,
+            "  {:<16} dJ/dW max {wmax:.3e} norm {:.3e}   dJ/db max {bmax:.3e} norm {:.3e}",
+            l.name,
+            wsq.sqrt(),
+            bsq.sqrt()
+        );
+    }
+    s
 }

@@ -75,6 +75,7 @@
 //! | `F11` | the scalar type differs from the spec |
 //! | `F12` | standardization statistics are missing, unexpected, of the wrong length, or invalid |
 
+use crate::code::Code;
 use crate::fsutil;
 use crate::ir::{fnv1a64, Model, Scalar};
 use serde::Deserialize;
@@ -174,7 +175,7 @@ pub struct Weights {
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct WeightsError {
     /// Stable code (`F01`...; see the [module documentation](self)).
-    pub code: &'static str,
+    pub code: Code,
     /// The file's name as given.
     pub file: String,
     /// Line and column (1-based) in the file, when the problem has a place.
@@ -186,7 +187,7 @@ pub struct WeightsError {
 }
 
 impl WeightsError {
-    fn new(code: &'static str, file: &str, message: impl Into<String>) -> Self {
+    fn new(code: Code, file: &str, message: impl Into<String>) -> Self {
         WeightsError {
             code,
             file: file.to_string(),
@@ -380,7 +381,7 @@ impl Weights {
         let start = text.trim_start();
         if !start.is_empty() && !start.starts_with('{') {
             return Err(WeightsError::new(
-                "F05",
+                Code::F05,
                 name,
                 "not a sinew weights file: it does not start with `{`",
             ));
@@ -390,14 +391,14 @@ impl Weights {
             Some(serde_json::Value::String(f)) if f == FORMAT => {}
             Some(other) => {
                 return Err(WeightsError::new(
-                    "F05",
+                    Code::F05,
                     name,
                     format!("not a sinew weights file: `format` is {other}, expected \"{FORMAT}\""),
                 ))
             }
             None => {
                 return Err(WeightsError::new(
-                    "F05",
+                    Code::F05,
                     name,
                     "not a sinew weights file: it has no `format` field",
                 )
@@ -411,11 +412,11 @@ impl Weights {
             Some(other) => {
                 let message =
                     format!("unsupported version {other}, this sinew reads version {VERSION}");
-                return Err(WeightsError::new("F05", name, message));
+                return Err(WeightsError::new(Code::F05, name, message));
             }
             None => {
                 return Err(WeightsError::new(
-                    "F05",
+                    Code::F05,
                     name,
                     "the weights file has no `version` field",
                 ))
@@ -424,7 +425,7 @@ impl Weights {
         let file: FileForm = serde_json::from_str(text).map_err(|e| json_error(name, &e))?;
         let fingerprint = parse_fingerprint(&file.fingerprint).ok_or_else(|| {
             WeightsError::new(
-                "F05",
+                Code::F05,
                 name,
                 format!("fingerprint `{}` is not 16 hex digits", file.fingerprint),
             )
@@ -470,11 +471,15 @@ impl Weights {
     pub fn load(path: &Path) -> Result<Weights, WeightsError> {
         let name = path.display().to_string();
         let bytes = fs::read(path).map_err(|e| {
-            WeightsError::new("F01", &name, format!("cannot read the weights file: {e}"))
+            WeightsError::new(
+                Code::F01,
+                &name,
+                format!("cannot read the weights file: {e}"),
+            )
         })?;
         let text = String::from_utf8(bytes).map_err(|e| {
             WeightsError::new(
-                "F02",
+                Code::F02,
                 &name,
                 format!(
                     "not valid JSON: the file is not UTF-8 text (invalid byte at offset {})",
@@ -495,6 +500,16 @@ impl Weights {
         Ok(w)
     }
 
+    /// The parameters in the form the emitter bakes into `TRAINED`: per layer the row-major
+    /// weights and the biases ([`Weights::layers_flat`]), and the standardization statistics.
+    pub fn baked(&self) -> crate::emit::BakedParams {
+        crate::emit::BakedParams {
+            layers: self.layers_flat(),
+            mean: self.standardization.as_ref().map(|s| s.mean.clone()),
+            std: self.standardization.as_ref().map(|s| s.std.clone()),
+        }
+    }
+
     /// Writes [`Weights::to_json`] to `path` atomically ([`fsutil::write_atomic`]): the text goes
     /// to a temporary file in the same directory, which is flushed to disk and then renamed over
     /// `path`. On any failure the temporary file is removed and an existing file at `path` is
@@ -506,7 +521,11 @@ impl Weights {
         let name = path.display().to_string();
         self.check_values(&name)?;
         fsutil::write_atomic(path, self.to_json().as_bytes()).map_err(|e| {
-            WeightsError::new("F01", &name, format!("cannot write the weights file: {e}"))
+            WeightsError::new(
+                Code::F01,
+                &name,
+                format!("cannot write the weights file: {e}"),
+            )
         })
     }
 
@@ -522,7 +541,7 @@ impl Weights {
         let err = |code, message: String| WeightsError::new(code, "", message);
         if self.scalar != model.scalar {
             return Err(err(
-                "F11",
+                Code::F11,
                 format!(
                     "the file holds {} values, the spec declares `scalar {}`",
                     self.scalar.rust_name(),
@@ -533,7 +552,7 @@ impl Weights {
         if self.layers.len() != model.layers.len() {
             let names: Vec<&str> = model.layers.iter().map(|l| l.name.as_str()).collect();
             return Err(err(
-                "F08",
+                Code::F08,
                 format!(
                     "the file has {} layers, the spec declares {} ({})",
                     self.layers.len(),
@@ -545,7 +564,7 @@ impl Weights {
         for (i, (fl, ml)) in self.layers.iter().zip(&model.layers).enumerate() {
             if fl.name != ml.name {
                 return Err(err(
-                    "F09",
+                    Code::F09,
                     format!(
                         "layer {} is named `{}` in the file, the spec names it `{}`",
                         i + 1,
@@ -556,7 +575,7 @@ impl Weights {
             }
             if fl.weights.len() != ml.width {
                 return Err(err(
-                    "F10",
+                    Code::F10,
                     format!(
                         "layer `{}` has {} rows (units) in the file, the spec declares {}",
                         ml.name,
@@ -568,7 +587,7 @@ impl Weights {
             for (j, row) in fl.weights.iter().enumerate() {
                 if row.len() != ml.fan_in {
                     return Err(err(
-                        "F10",
+                        Code::F10,
                         format!(
                             "layer `{}` row {} has {} columns (units feeding it) in the file, the spec declares {}",
                             ml.name,
@@ -581,7 +600,7 @@ impl Weights {
             }
             if fl.bias.len() != ml.width {
                 return Err(err(
-                    "F10",
+                    Code::F10,
                     format!(
                         "layer `{}` has {} biases in the file, the spec declares {} (one per unit)",
                         ml.name,
@@ -594,7 +613,7 @@ impl Weights {
         match (&self.standardization, model.input.standardize) {
             (None, true) => {
                 return Err(err(
-                    "F12",
+                    Code::F12,
                     format!(
                         "the file has no standardization statistics, but input `{}` is declared `standardize`",
                         model.input.name
@@ -604,7 +623,7 @@ impl Weights {
             }
             (Some(_), false) => {
                 return Err(err(
-                    "F12",
+                    Code::F12,
                     format!(
                         "the file has standardization statistics, but input `{}` is not declared `standardize`",
                         model.input.name
@@ -615,7 +634,7 @@ impl Weights {
                 for (what, v) in [("mean", &st.mean), ("std", &st.std)] {
                     if v.len() != model.input.width {
                         return Err(err(
-                            "F12",
+                            Code::F12,
                             format!(
                                 "standardization `{what}` has {} values in the file, input `{}` has {} features",
                                 v.len(),
@@ -631,7 +650,7 @@ impl Weights {
         let expected = model.fingerprint();
         if self.fingerprint != expected {
             return Err(err(
-                "F07",
+                Code::F07,
                 format!(
                     "fingerprint {:016x} in the file does not match the spec's {expected:016x}",
                     self.fingerprint
@@ -656,7 +675,7 @@ impl Weights {
             *v = f64::from(r);
         });
         match bad {
-            Some(message) => Err(WeightsError::new("F06", name, message)),
+            Some(message) => Err(WeightsError::new(Code::F06, name, message)),
             None => Ok(()),
         }
     }
@@ -667,7 +686,7 @@ impl Weights {
             if v.is_finite() {
                 Ok(())
             } else {
-                Err(WeightsError::new("F06", name, format!("{place} is {v}, not a finite number"))
+                Err(WeightsError::new(Code::F06, name, format!("{place} is {v}, not a finite number"))
                     .help("JSON has no NaN or infinity; a diverged training run produces such values: retrain with a smaller rate"))
             }
         };
@@ -692,7 +711,7 @@ impl Weights {
                 finite(format!("standardization std {}", j + 1), v)?;
                 if v <= 0.0 {
                     return Err(WeightsError::new(
-                        "F12",
+                        Code::F12,
                         name,
                         format!(
                             "standardization std {} is {}, it must be > 0",
@@ -816,7 +835,7 @@ fn json_error(name: &str, e: &serde_json::Error) -> WeightsError {
     let what = full.strip_suffix(&suffix).unwrap_or(&full).to_string();
     let (code, message, help) = match e.classify() {
         serde_json::error::Category::Eof => (
-            "F03",
+            Code::F03,
             format!("the file ends early ({what}): it is truncated"),
             Some(
                 "the file was cut short, perhaps by an interrupted copy; write it again"
@@ -824,20 +843,22 @@ fn json_error(name: &str, e: &serde_json::Error) -> WeightsError {
             ),
         ),
         serde_json::error::Category::Syntax if what == "number out of range" => (
-            "F06",
+            Code::F06,
             "a number is too large for an f64 (it would be infinite)".to_string(),
             None,
         ),
-        serde_json::error::Category::Syntax => ("F02", format!("not valid JSON: {what}"), None),
-        serde_json::error::Category::Io => {
-            ("F01", format!("cannot read the weights file: {what}"), None)
-        }
+        serde_json::error::Category::Syntax => (Code::F02, format!("not valid JSON: {what}"), None),
+        serde_json::error::Category::Io => (
+            Code::F01,
+            format!("cannot read the weights file: {what}"),
+            None,
+        ),
         serde_json::error::Category::Data => {
             let help = what.starts_with("invalid type: null").then(|| {
                 "JSON has no NaN or infinity: a `null` where a number belongs stands for a non-finite value".to_string()
             });
             (
-                "F04",
+                Code::F04,
                 format!("not a weights file of version {VERSION}: {what}"),
                 help,
             )

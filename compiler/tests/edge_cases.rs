@@ -369,7 +369,11 @@ fn a_zero_penalty_is_exactly_no_penalty() {
     for pen in ["l2 0", "l1 0", "l2 0.0", "l1 0e5"] {
         let src = format!("{base}penalty {pen}\n");
         let checked = sinew::check_source(&src);
-        let codes: Vec<&str> = checked.diagnostics.iter().map(|d| d.code).collect();
+        let codes: Vec<&str> = checked
+            .diagnostics
+            .iter()
+            .map(|d| d.code.as_str())
+            .collect();
         assert_eq!(codes, ["W0104"], "{pen}");
         let m = checked.model.expect("a warning keeps the model");
         assert_eq!(grad(&m), reference, "{pen}");

@@ -138,7 +138,11 @@ fn hostile_names_are_rejected_in_every_place() {
                 checked.model.is_none(),
                 "{name:?} as {place}: accepted:\n{src}"
             );
-            let codes: Vec<&str> = checked.diagnostics.iter().map(|d| d.code).collect();
+            let codes: Vec<&str> = checked
+                .diagnostics
+                .iter()
+                .map(|d| d.code.as_str())
+                .collect();
             assert!(
                 codes.contains(&code),
                 "{name:?} as {place}: expected {code}, got {codes:?}"
@@ -482,7 +486,11 @@ fn enormous_widths_are_refused_before_any_allocation() {
     .unwrap();
     let checked =
         sinew::check_source(&std::fs::read_to_string(dir.join("enormous.sinew")).unwrap());
-    let codes: Vec<&str> = checked.diagnostics.iter().map(|d| d.code).collect();
+    let codes: Vec<&str> = checked
+        .diagnostics
+        .iter()
+        .map(|d| d.code.as_str())
+        .collect();
     assert_eq!(codes, ["S0402"]);
     let o = run_child("enormous_widths", &dir, "");
     assert!(
@@ -499,7 +507,7 @@ fn enormous_widths_are_refused_before_any_allocation() {
     let codes: Vec<&str> = sinew::check_source(no_c)
         .diagnostics
         .iter()
-        .map(|d| d.code)
+        .map(|d| d.code.as_str())
         .collect();
     assert_eq!(codes, ["S0403"]);
     let o = run_child("enormous_widths", &dir, "");

@@ -7,7 +7,7 @@
 //! figures appear in the message.
 
 use super::Parts;
-use crate::diag::Diagnostic;
+use crate::diag::{Code, Diagnostic};
 use crate::ir::{Budget, Model};
 use crate::report::{human_bytes, Report};
 use crate::syntax::ast::{Size, Unit};
@@ -26,7 +26,7 @@ fn bytes(size: &Size, what: &str, diags: &mut Vec<Diagnostic>) -> Option<u64> {
     if v.is_none() {
         diags.push(
             Diagnostic::error(
-                "S0703",
+                Code::S0703,
                 format!(
                     "{what} budget `{} {}` is above the limit of {} bytes",
                     size.amount.node.chars().take(40).collect::<String>(),
@@ -94,7 +94,7 @@ pub(crate) fn check(model: &Model, parts: &Parts<'_>, diags: &mut Vec<Diagnostic
     if let (Some(limit), Some(size)) = (model.budget.flash, b.flash) {
         if report.flash_bytes > limit {
             let mut d = Diagnostic::error(
-                "S0701",
+                Code::S0701,
                 format!(
                     "the model needs {} of flash, more than the budget of {}",
                     figure(report.flash_bytes),
@@ -139,7 +139,7 @@ pub(crate) fn check(model: &Model, parts: &Parts<'_>, diags: &mut Vec<Diagnostic
     if let (Some(limit), Some(size)) = (model.budget.ram, b.ram) {
         if report.ram_inference_bytes > limit {
             let mut d = Diagnostic::error(
-                "S0702",
+                Code::S0702,
                 format!(
                     "the model needs {} of RAM for inference, more than the budget of {}",
                     figure(report.ram_inference_bytes),
@@ -189,6 +189,7 @@ pub(crate) fn check(model: &Model, parts: &Parts<'_>, diags: &mut Vec<Diagnostic
 mod tests {
     use super::{enough, figure};
     use crate::check_source;
+    use crate::diag::Code;
 
     #[test]
     fn figures_and_smallest_sufficient_budget() {
@@ -209,7 +210,7 @@ mod tests {
                  layer hidden2 8 tanh\noutput state 3 softmax\nloss cross_entropy\n{budget}\n"
             )
         };
-        let codes = |b: &str| -> Vec<&str> {
+        let codes = |b: &str| -> Vec<Code> {
             check_source(&spec(b))
                 .diagnostics
                 .iter()

@@ -3,7 +3,7 @@
 
 use super::shapes::Widths;
 use super::Parts;
-use crate::diag::Diagnostic;
+use crate::diag::{Code, Diagnostic};
 use crate::syntax::ast::*;
 
 /// Sigmoid hidden layers in a row beyond this count draw a warning.
@@ -26,7 +26,7 @@ pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnost
         if layer.activation.node == ActivationKind::Softmax {
             diags.push(
                 Diagnostic::error(
-                    "S0501",
+                    Code::S0501,
                     format!("hidden layer `{}` uses softmax", layer.name.node),
                     layer.activation.span,
                 )
@@ -50,7 +50,7 @@ pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnost
             if n == SIGMOID_RUN + 1 {
                 diags.push(
                     Diagnostic::warning(
-                        "W0102",
+                        Code::W0102,
                         format!("more than {SIGMOID_RUN} sigmoid hidden layers in a row"),
                         layer.activation.span,
                     )
@@ -77,7 +77,7 @@ pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnost
     if is_softmax && out_width == Some(1) {
         diags.push(
             Diagnostic::error(
-                "S0502",
+                Code::S0502,
                 format!("softmax output `{}` has 1 unit", out.name.node),
                 out.width.span,
             )
@@ -95,7 +95,7 @@ pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnost
         match loss.node {
             LossKind::CrossEntropy if !is_sigmoid && !is_softmax => diags.push(
                 Diagnostic::error(
-                    "S0503",
+                    Code::S0503,
                     format!(
                         "cross_entropy needs a sigmoid or softmax output, but output `{}` uses {}",
                         out.name.node,
@@ -104,20 +104,27 @@ pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnost
                     loss.span,
                 )
                 .label("cross_entropy")
-                .with_secondary(out.activation.span, format!("output `{}` uses this", out.name.node))
+                .with_secondary(
+                    out.activation.span,
+                    format!("output `{}` uses this", out.name.node),
+                )
                 .with_help(
                     "use `softmax` for one class out of several, `sigmoid` for independent yes/no \
                      outputs, or `loss squared_error` to predict values",
                 ),
             ),
             LossKind::SquaredError if is_softmax => diags.push(
-                Diagnostic::warning("W0101", "squared_error with a softmax output", loss.span)
-                    .label("squared_error")
-                    .with_secondary(out.activation.span, "softmax output")
-                    .with_help(
-                        "squared_error through softmax learns slowly when the output is confidently \
+                Diagnostic::warning(
+                    Code::W0101,
+                    "squared_error with a softmax output",
+                    loss.span,
+                )
+                .label("squared_error")
+                .with_secondary(out.activation.span, "softmax output")
+                .with_help(
+                    "squared_error through softmax learns slowly when the output is confidently \
                          wrong; `loss cross_entropy` is the usual choice for classes",
-                    ),
+                ),
             ),
             _ => {}
         }
@@ -129,7 +136,7 @@ pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnost
     if let Some(loss) = loss.filter(|l| l.node == LossKind::SquaredError) {
         diags.push(
             Diagnostic::error(
-                "S0505",
+                Code::S0505,
                 format!(
                     "output `{}` lists classes, but the loss is squared_error",
                     out.name.node
@@ -172,7 +179,7 @@ pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnost
         };
         diags.push(
             Diagnostic::error(
-                "S0504",
+                Code::S0504,
                 format!("expected {expected} class names, found {found}"),
                 classes.span,
             )
@@ -189,8 +196,9 @@ pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnost
 #[cfg(test)]
 mod tests {
     use crate::check_source;
+    use crate::diag::Code;
 
-    fn codes(output: &str, loss: &str) -> Vec<&'static str> {
+    fn codes(output: &str, loss: &str) -> Vec<Code> {
         let src = format!("model m\ninput x 4\n{output}\nloss {loss}\n");
         check_source(&src)
             .diagnostics
@@ -210,7 +218,7 @@ mod tests {
         for act in ["identity", "tanh", "relu", "leaky_relu 0.1"] {
             assert_eq!(
                 codes(&format!("output y 3 {act}"), "cross_entropy"),
-                ["S0503"],
+                [Code::S0503],
                 "{act}"
             );
             assert!(
@@ -235,7 +243,7 @@ mod tests {
         bad("output y 3 softmax classes a, b");
         assert_eq!(
             codes("output y 2 identity classes a, b", "squared_error"),
-            ["S0505"]
+            [Code::S0505]
         );
     }
 }

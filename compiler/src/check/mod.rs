@@ -18,7 +18,7 @@ pub mod compat;
 pub mod names;
 pub mod shapes;
 
-use crate::diag::Diagnostic;
+use crate::diag::{Code, Diagnostic};
 use crate::ir;
 use crate::span::{Span, Spanned};
 use crate::syntax::ast::*;
@@ -92,9 +92,9 @@ fn cap(mut diags: Vec<Diagnostic>) -> Vec<Diagnostic> {
         n => format!("{n} more problems are not shown"),
     };
     let note = if rest.iter().any(Diagnostic::is_error) {
-        Diagnostic::error("S0100", message, at)
+        Diagnostic::error(Code::S0100, message, at)
     } else {
-        Diagnostic::warning("S0100", message, at)
+        Diagnostic::warning(Code::S0100, message, at)
     };
     diags.push(
         note.label("the next one is here")
@@ -214,7 +214,7 @@ fn sections<'a>(spec: &'a Spec, diags: &mut Vec<Diagnostic>) -> Parts<'a> {
             if let Some(&(_, prev)) = first.iter().find(|(s, _)| *s == section) {
                 diags.push(
                     Diagnostic::error(
-                        "S0205",
+                        Code::S0205,
                         format!("the spec has a second `{kw}` line"),
                         stmt.keyword,
                     )
@@ -230,7 +230,7 @@ fn sections<'a>(spec: &'a Spec, diags: &mut Vec<Diagnostic>) -> Parts<'a> {
             Some((later, at)) if section < later => {
                 diags.push(
                     Diagnostic::error(
-                        "S0206",
+                        Code::S0206,
                         format!("the `{kw}` line comes after the `{}` line", later.keyword()),
                         stmt.keyword,
                     )
@@ -297,16 +297,16 @@ fn sections<'a>(spec: &'a Spec, diags: &mut Vec<Diagnostic>) -> Parts<'a> {
     let first_statement = spec.statements.first().map(|s| s.keyword);
     let anchor = model_at.or(first_statement).unwrap_or_default();
     let missing = [
-        (Section::Model, "S0201", "add `model NAME` as the first line, e.g. `model pump_health`"),
-        (Section::Input, "S0202", "add `input NAME WIDTH` after the `model` line, e.g. `input features 6`"),
+        (Section::Model, Code::S0201, "add `model NAME` as the first line, e.g. `model pump_health`"),
+        (Section::Input, Code::S0202, "add `input NAME WIDTH` after the `model` line, e.g. `input features 6`"),
         (
             Section::Output,
-            "S0203",
+            Code::S0203,
             "add `output NAME WIDTH ACTIVATION` after the last `layer` line, e.g. `output state 3 softmax`",
         ),
         (
             Section::Loss,
-            "S0204",
+            Code::S0204,
             "add `loss cross_entropy` (for classes) or `loss squared_error` (for values) after the \
              `output` line",
         ),
@@ -396,7 +396,7 @@ fn build(
 mod tests {
     use super::*;
 
-    fn codes(src: &str) -> Vec<&'static str> {
+    fn codes(src: &str) -> Vec<Code> {
         check_source(src)
             .diagnostics
             .iter()
@@ -428,7 +428,7 @@ mod tests {
         assert_eq!(codes(&OK.replace("model m", "modle m")), ["S0101"]);
         assert_eq!(
             codes(&OK.replace("loss cross_entropy", "loss cross_entrpy")),
-            ["S0103"]
+            [Code::S0103]
         );
     }
 

@@ -3,10 +3,10 @@
 //! in the generated Rust code. Layer names (and the input's) are unique, and so are class names.
 
 use super::Parts;
-use crate::diag::Diagnostic;
+use crate::diag::{Code, Diagnostic};
 use crate::span::Span;
 use crate::syntax::ast::Name;
-use crate::syntax::quote;
+use crate::text::quote;
 use std::collections::HashMap;
 
 /// Rust's strict and reserved keywords in every edition up to 2024, including `self`, `Self`,
@@ -66,7 +66,7 @@ pub(crate) fn check_name(name: &Name, what: &str, diags: &mut Vec<Diagnostic>) -
     if let Some(rest) = s.strip_prefix("r#") {
         diags.push(
             Diagnostic::error(
-                "S0304",
+                Code::S0304,
                 format!("{what} {} is a raw identifier", quote(s)),
                 name.span,
             )
@@ -80,7 +80,7 @@ pub(crate) fn check_name(name: &Name, what: &str, diags: &mut Vec<Diagnostic>) -
     if let Some((i, c)) = s.char_indices().find(|(_, c)| !c.is_ascii()) {
         let at = Span::new(name.span.start + i, name.span.start + i + c.len_utf8());
         let mut d = Diagnostic::error(
-            "S0303",
+            Code::S0303,
             format!(
                 "{what} {} contains the non-ASCII character `{c}` (U+{:04X})",
                 quote(s),
@@ -107,7 +107,7 @@ pub(crate) fn check_name(name: &Name, what: &str, diags: &mut Vec<Diagnostic>) -
         };
         diags.push(
             Diagnostic::error(
-                "S0301",
+                Code::S0301,
                 format!("{what} {} is not a lower_snake name", quote(s)),
                 name.span,
             )
@@ -119,7 +119,7 @@ pub(crate) fn check_name(name: &Name, what: &str, diags: &mut Vec<Diagnostic>) -
     if RUST_KEYWORDS.contains(&s) {
         diags.push(
             Diagnostic::error(
-                "S0302",
+                Code::S0302,
                 format!("{what} `{s}` is a Rust keyword"),
                 name.span,
             )
@@ -157,7 +157,7 @@ pub(crate) fn check(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) {
         match seen.get(name.node.as_str()) {
             Some(&(first, whose)) => diags.push(
                 Diagnostic::error(
-                    "S0305",
+                    Code::S0305,
                     format!("the name `{}` is used twice", name.node),
                     name.span,
                 )
@@ -183,7 +183,7 @@ pub(crate) fn check(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) {
                     *reported = true;
                     diags.push(
                         Diagnostic::error(
-                            "S0306",
+                            Code::S0306,
                             format!("class `{}` is listed twice", name.node),
                             name.span,
                         )
@@ -205,7 +205,7 @@ mod tests {
     use super::*;
     use crate::span::Spanned;
 
-    fn codes(s: &str) -> Vec<&'static str> {
+    fn codes(s: &str) -> Vec<Code> {
         let mut d = Vec::new();
         check_name(
             &Spanned::new(s.to_string(), Span::new(0, s.len())),

@@ -7,10 +7,10 @@
 //! 128-bit arithmetic.
 
 use super::Parts;
-use crate::diag::Diagnostic;
+use crate::diag::{Code, Diagnostic};
 use crate::ir::{self, defaults};
 use crate::syntax::ast::*;
-use crate::syntax::quote;
+use crate::text::quote;
 
 /// The largest width of the input or a layer.
 pub const MAX_WIDTH: u64 = 65535;
@@ -52,7 +52,7 @@ fn width(w: &Integer, whose: &str, diags: &mut Vec<Diagnostic>) -> Option<usize>
     match whole(w) {
         Some(0) => {
             diags.push(
-                Diagnostic::error("S0401", format!("{whose} has width 0"), w.span)
+                Diagnostic::error(Code::S0401, format!("{whose} has width 0"), w.span)
                     .label("0 units")
                     .with_help("a width is at least 1"),
             );
@@ -62,7 +62,7 @@ fn width(w: &Integer, whose: &str, diags: &mut Vec<Diagnostic>) -> Option<usize>
         _ => {
             diags.push(
                 Diagnostic::error(
-                    "S0402",
+                    Code::S0402,
                     format!(
                         "{whose} has width {}, above the limit of {MAX_WIDTH}",
                         quote(&w.node)
@@ -113,7 +113,7 @@ pub(crate) fn widths(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Widths {
         if let (true, Some((p, d))) = (complete && total > MAX_PARAMETERS, largest) {
             diags.push(
                 Diagnostic::error(
-                    "S0403",
+                    Code::S0403,
                     format!(
                         "the model has {total} parameters, above the limit of {MAX_PARAMETERS} (16 Mi)"
                     ),
@@ -152,7 +152,7 @@ pub(crate) fn activations(
                 } else {
                     diags.push(
                         Diagnostic::error(
-                            "S0605",
+                            Code::S0605,
                             format!("leaky_relu slope {} is outside [0, 1)", quote(&alpha.node)),
                             alpha.span,
                         )
@@ -179,7 +179,7 @@ pub(crate) struct Settings {
 
 /// How to report a number outside its range.
 struct Range<'a> {
-    code: &'static str,
+    code: Code,
     /// What the number is, e.g. "learning rate".
     what: &'a str,
     /// The fact when it is finite but out of range, e.g. "is outside [0, 1)".
@@ -220,7 +220,7 @@ fn count(n: &Integer, what: &str, least: &str, diags: &mut Vec<Diagnostic>) -> O
     match whole(n) {
         Some(0) => {
             diags.push(
-                Diagnostic::error("S0607", format!("{what} is 0"), n.span)
+                Diagnostic::error(Code::S0607, format!("{what} is 0"), n.span)
                     .label("must be at least 1")
                     .with_help(format!("use at least {least}")),
             );
@@ -230,7 +230,7 @@ fn count(n: &Integer, what: &str, least: &str, diags: &mut Vec<Diagnostic>) -> O
         _ => {
             diags.push(
                 Diagnostic::error(
-                    "S0608",
+                    Code::S0608,
                     format!(
                         "{what} {} is above the limit of {}",
                         quote(&n.node),
@@ -254,7 +254,7 @@ pub(crate) fn settings(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Settin
         Some(PenaltyKind::L2 { lambda } | PenaltyKind::L1 { lambda }) => {
             let l2 = matches!(parts.penalty.map(|p| &p.node), Some(PenaltyKind::L2 { .. }));
             let range = Range {
-                code: "S0601",
+                code: Code::S0601,
                 what: "penalty strength",
                 fact: "is negative",
                 label: "must be 0 or more",
@@ -264,7 +264,7 @@ pub(crate) fn settings(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Settin
             if v == Some(0.0) {
                 diags.push(
                     Diagnostic::warning(
-                        "W0104",
+                        Code::W0104,
                         "a penalty of strength 0 has no effect",
                         lambda.span,
                     )
@@ -290,7 +290,7 @@ pub(crate) fn settings(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Settin
                 InitKind::He => Some(ir::Init::He),
                 InitKind::Uniform { eps } => {
                     let range = Range {
-                        code: "S0606",
+                        code: Code::S0606,
                         what: "uniform half-width",
                         fact: "is not above 0",
                         label: "must be above 0",
@@ -307,7 +307,7 @@ pub(crate) fn settings(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Settin
                     if v.is_none() {
                         diags.push(
                             Diagnostic::error(
-                                "S0609",
+                                Code::S0609,
                                 format!(
                                     "seed {} is above the limit of {}",
                                     quote(&s.node),
@@ -331,7 +331,7 @@ pub(crate) fn settings(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Settin
         Some(t) => {
             let rate_check = |rate: &Number, diags: &mut Vec<Diagnostic>| {
                 let range = Range {
-                    code: "S0602",
+                    code: Code::S0602,
                     what: "learning rate",
                     fact: "is not above 0",
                     label: "must be above 0",
@@ -346,7 +346,7 @@ pub(crate) fn settings(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Settin
                         None => Some(defaults::MOMENTUM),
                         Some(m) => {
                             let range = Range {
-                                code: "S0603",
+                                code: Code::S0603,
                                 what: "momentum",
                                 fact: "is outside [0, 1)",
                                 label: "not in [0, 1)",
@@ -368,7 +368,7 @@ pub(crate) fn settings(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Settin
                             None => Some(default),
                             Some(b) => {
                                 let range = Range {
-                                    code: "S0604",
+                                    code: Code::S0604,
                                     what: name,
                                     fact: "is outside (0, 1)",
                                     label: "not in (0, 1)",
@@ -410,7 +410,7 @@ pub(crate) fn settings(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Settin
                     if let Some(v) = v.filter(|&v| u64::from(v) > LARGE_BATCH) {
                         diags.push(
                             Diagnostic::warning(
-                                "W0103",
+                                Code::W0103,
                                 format!("batch size {v} is larger than {LARGE_BATCH}"),
                                 b.span,
                             )
@@ -449,8 +449,9 @@ pub(crate) fn settings(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Settin
 #[cfg(test)]
 mod tests {
     use crate::check_source;
+    use crate::diag::Code;
 
-    fn codes(src: &str) -> Vec<&'static str> {
+    fn codes(src: &str) -> Vec<Code> {
         check_source(src)
             .diagnostics
             .iter()
@@ -504,7 +505,7 @@ mod tests {
         assert!(with("train adam rate 0.1 beta1 0.5 beta2 0.5").is_empty());
         assert_eq!(
             with("train adam rate 0.1 beta1 0 beta2 1"),
-            ["S0604", "S0604"]
+            [Code::S0604, Code::S0604]
         );
         assert_eq!(with("penalty l1 1e400"), ["S0601"]);
         assert_eq!(with("init uniform -1"), ["S0606"]);

@@ -27,8 +27,10 @@ mod forward;
 mod optim;
 mod params;
 mod pretty;
+mod steps;
 
-use crate::ir::{Activation, Init, Layer, Loss, Model, Optimizer, Penalty, Scalar};
+use crate::ir::{Activation, Init, Layer, Model, Optimizer, Penalty, Scalar};
+use crate::plan::{Head, Plan};
 use ident::{LayerNames, Names};
 use proc_macro2::{Ident, Literal, Span, TokenStream};
 use quote::quote;
@@ -174,7 +176,7 @@ pub fn generate(model: &Model, options: &EmitOptions) -> String {
     let structs = params::structs(&cx);
     let classes = classes::items(&cx);
     let params_impl = params::impl_params(&cx);
-    let gradients_impl = backward::impl_gradients(&cx);
+    let gradients_impl = params::impl_gradients(&cx);
     let batch = batch::items(&cx);
     let trainer = optim::items(&cx);
     let blob = blob::items(&cx);
@@ -272,7 +274,7 @@ fn module_doc(model: &Model, spec_name: &str) -> Vec<String> {
     d.push(String::new());
     d.push(format!(
         "Loss: {}. Penalty: {}. Init: {}, seed {}. Trainer: {}, batch {}, {} epochs. {} parameters.",
-        loss_words(model),
+        Head::of(model).words(),
         penalty_words(model.penalty),
         init_words(model.init),
         model.seed,
@@ -291,26 +293,8 @@ fn activation_words(a: Activation) -> String {
     }
 }
 
-fn loss_words(model: &Model) -> &'static str {
-    match (model.loss, model.output().activation) {
-        (Loss::CrossEntropy, Activation::Softmax) => "categorical cross-entropy, from the logits",
-        (Loss::CrossEntropy, _) => "per-unit logistic cross-entropy, from the logits",
-        (Loss::SquaredError, _) => "squared error, 1/2 sum (a - y)^2",
-    }
-}
-
 fn penalty_words(p: Penalty) -> String {
-    match p {
-        Penalty::None => "none".to_string(),
-        Penalty::L2(l) => format!(
-            "L2, lambda {}, `(lambda / 2m) sum W^2` (weights only)",
-            num(l)
-        ),
-        Penalty::L1(l) => format!(
-            "L1, lambda {}, `(lambda / m) sum |W|` (weights only)",
-            num(l)
-        ),
-    }
+    crate::words::penalty_prose(p)
 }
 
 fn init_words(i: Init) -> String {
@@ -322,34 +306,13 @@ fn init_words(i: Init) -> String {
 }
 
 fn optimizer_words(o: Optimizer) -> String {
-    match o {
-        Optimizer::Sgd {
-            rate,
-            momentum: 0.0,
-        } => format!("SGD, rate {}", num(rate)),
-        Optimizer::Sgd { rate, momentum } => {
-            format!("SGD, rate {}, momentum {}", num(rate), num(momentum))
-        }
-        Optimizer::Adam {
-            rate,
-            beta1,
-            beta2,
-            epsilon,
-        } => {
-            format!(
-                "Adam, rate {}, beta1 {}, beta2 {}, epsilon {}",
-                num(rate),
-                num(beta1),
-                num(beta2),
-                num(epsilon)
-            )
-        }
-    }
+    crate::words::optimizer_prose(o)
 }
 
 /// What every fragment needs: the model, its names and the options.
 pub(crate) struct Ctx<'a> {
     pub model: &'a Model,
+    pub plan: Plan,
     pub names: Names,
     pub unroll_below: usize,
     pub spec_name: String,
@@ -359,6 +322,7 @@ impl<'a> Ctx<'a> {
     fn new(model: &'a Model, options: &EmitOptions) -> Self {
         Ctx {
             model,
+            plan: Plan::new(model),
             names: Names::of(model),
             unroll_below: options.unroll_below,
             spec_name: spec_file_name(&options.spec_name),
@@ -397,9 +361,12 @@ impl<'a> Ctx<'a> {
         }
     }
 
-    /// True when layer `i`'s matrix kernels are unrolled.
-    pub fn unrolled(&self, layer: &Layer) -> bool {
-        self.unroll_below > 0 && layer.width * layer.fan_in < self.unroll_below
+    /// True when the matrix kernels of layer `i` are unrolled.
+    pub fn unrolled_at(&self, i: usize) -> bool {
+        self.model
+            .layers
+            .get(i)
+            .is_some_and(|l| self.unroll_below > 0 && l.width * l.fan_in < self.unroll_below)
     }
 
     /// The scalar type's name as a token (`f32` / `f64`).

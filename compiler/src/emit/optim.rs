@@ -1,54 +1,16 @@
 //! The on-device trainer: parameters, gradient accumulators and optimizer state in fixed arrays.
 
 use super::{ident, usize_lit, Ctx};
-use crate::ir::Optimizer;
+use crate::plan::{ParamArray, Update};
 use proc_macro2::{Ident, TokenStream};
 use quote::quote;
 
-/// The optimizer as the trainer runs it.
-enum Kind {
-    Sgd {
-        rate: f64,
-    },
-    Momentum {
-        rate: f64,
-        mu: f64,
-    },
-    Adam {
-        rate: f64,
-        beta1: f64,
-        beta2: f64,
-        eps: f64,
-    },
-}
-
-fn kind(o: Optimizer) -> Kind {
-    match o {
-        Optimizer::Sgd {
-            rate,
-            momentum: 0.0,
-        } => Kind::Sgd { rate },
-        Optimizer::Sgd { rate, momentum } => Kind::Momentum { rate, mu: momentum },
-        Optimizer::Adam {
-            rate,
-            beta1,
-            beta2,
-            epsilon,
-        } => Kind::Adam {
-            rate,
-            beta1,
-            beta2,
-            eps: epsilon,
-        },
-    }
-}
-
 /// `pub struct Trainer` and its `impl`.
 pub(super) fn items(cx: &Ctx) -> TokenStream {
-    let k = kind(cx.model.train.optimizer);
+    let k = cx.plan.update;
     let lit = |v: f64| cx.scalar_lit(v);
     let (state_fields, state_zeroed, state_clear, consts, doc) = match k {
-        Kind::Sgd { rate } => {
+        Update::Sgd { rate } => {
             let r = lit(rate);
             (
                 quote!(),
@@ -61,7 +23,7 @@ pub(super) fn items(cx: &Ctx) -> TokenStream {
                 " plain gradient descent, `w -= rate g`",
             )
         }
-        Kind::Momentum { rate, mu } => {
+        Update::Momentum { rate, mu } => {
             let (r, mu) = (lit(rate), lit(mu));
             (
                 quote! {
@@ -79,7 +41,7 @@ pub(super) fn items(cx: &Ctx) -> TokenStream {
                 " gradient descent with classical momentum, `v = mu v - rate g; w += v`",
             )
         }
-        Kind::Adam {
+        Update::Adam {
             rate,
             beta1,
             beta2,
@@ -109,12 +71,15 @@ pub(super) fn items(cx: &Ctx) -> TokenStream {
             )
         }
     };
-    let updates = cx.names.layers.iter().flat_map(|n| {
-        let weights = update(&k, &Field::Matrix(ident(&n.weights)));
-        let bias = update(&k, &Field::Vector(ident(&n.bias)));
-        [weights, bias]
+    // Every parameter array in the plan's order: per layer its weights, then its bias.
+    let updates = cx.plan.params.iter().filter_map(|&a| {
+        let field = match a {
+            ParamArray::Weights(l) => Field::Matrix(ident(&cx.names.layers.get(l)?.weights)),
+            ParamArray::Bias(l) => Field::Vector(ident(&cx.names.layers.get(l)?.bias)),
+        };
+        Some(update(&k, &field))
     });
-    let adam_t = if matches!(k, Kind::Adam { .. }) {
+    let adam_t = if matches!(k, Update::Adam { .. }) {
         quote!(let t = self.steps;)
     } else {
         quote!()
@@ -210,16 +175,16 @@ fn access(owner: TokenStream, field: &Field, mutable: bool) -> TokenStream {
 }
 
 /// One optimizer call over one parameter array, in place.
-fn update(k: &Kind, field: &Field) -> TokenStream {
+fn update(k: &Update, field: &Field) -> TokenStream {
     let p = access(quote!(self.params), field, true);
     let g = access(quote!(self.grad), field, false);
     match k {
-        Kind::Sgd { .. } => quote!(rt::optim::sgd(#p, #g, Self::RATE);),
-        Kind::Momentum { .. } => {
+        Update::Sgd { .. } => quote!(rt::optim::sgd(#p, #g, Self::RATE);),
+        Update::Momentum { .. } => {
             let v = access(quote!(self.velocity), field, true);
             quote!(rt::optim::momentum(#p, #g, #v, Self::RATE, Self::MOMENTUM);)
         }
-        Kind::Adam { .. } => {
+        Update::Adam { .. } => {
             let m = access(quote!(self.m), field, true);
             let v = access(quote!(self.v), field, true);
             quote! {

@@ -317,3 +317,49 @@ pub(super) fn trained(cx: &Ctx, w: &BakedParams) -> TokenStream {
         pub static TRAINED: Params = Params { #(#fields)* };
     }
 }
+
+/// `impl Gradients`: `zeroed`, `clear`, `finish`.
+pub(super) fn impl_gradients(cx: &Ctx) -> TokenStream {
+    let zeroed = zeroed_body(cx, false);
+    let clears = cx.names.layers.iter().map(|n| {
+        let w = ident(&n.weights);
+        let b = ident(&n.bias);
+        quote! {
+            self.#w.as_flattened_mut().fill(ZERO);
+            self.#b.fill(ZERO);
+        }
+    });
+    let finishes = cx.names.layers.iter().map(|n| {
+        let w = ident(&n.weights);
+        let b = ident(&n.bias);
+        quote! {
+            penalty.finish_weights(self.#w.as_flattened_mut(), params.#w.as_flattened(), m);
+            rt::penalty::finish_bias(&mut self.#b, m);
+        }
+    });
+    quote! {
+        impl Gradients {
+            /// Every accumulator zero. A `const fn`, so a `static` can hold it.
+            pub const fn zeroed() -> Self {
+                #zeroed
+            }
+
+            /// Sets every accumulator to zero, in place.
+            pub fn clear(&mut self) {
+                #(#clears)*
+            }
+
+            /// Turns the sums of [`Params::backprop`] over a batch of `m` samples into the
+            /// gradient of the cost J: `dJ/dW = sum / m` plus the penalty's derivative (weights
+            /// only), `dJ/db = sum / m`. Does nothing for `m = 0`.
+            pub fn finish(&mut self, params: &Params, m: usize) {
+                if m == 0 {
+                    return;
+                }
+                let m = <Scalar as rt::Real>::from_usize(m);
+                let penalty = Params::PENALTY;
+                #(#finishes)*
+            }
+        }
+    }
+}

@@ -13,8 +13,9 @@
 //! accumulation; neither split changes any operation, so the result does not depend on the thread
 //! count.
 
-use super::{Net, Params, Scratch};
-use crate::ir::{self, Loss};
+use super::{activation, sample_loss, Net, Operands, Params, Scratch};
+use crate::ir;
+use crate::plan::{Buf, Buffer, Plan, Step};
 use rayon::prelude::*;
 use sinew_runtime::{self as rt, act::Activation, Real};
 
@@ -29,36 +30,22 @@ pub const SUB_BLOCK: usize = 32;
 /// the same either way; threads only pay for larger blocks).
 const PARALLEL_MIN_WORK: usize = 1 << 16;
 
-/// Rows (one per sample) of a sub-block of samples, for every layer.
+/// Rows (one per sample) of a sub-block of samples, for every working buffer of the plan.
 #[derive(Debug, Clone)]
 struct SubBlock<T> {
     /// Samples held.
     used: usize,
-    /// Standardized inputs (empty without `standardize`).
-    x0: Vec<T>,
-    /// Activations per layer.
-    a: Vec<Vec<T>>,
-    /// Output logits.
-    z_out: Vec<T>,
-    /// Error terms per layer.
-    d: Vec<Vec<T>>,
+    /// The plan's working buffers, [`SUB_BLOCK`] rows each.
+    rows: Scratch<T>,
     /// Per-sample losses.
     losses: Vec<T>,
 }
 
 impl<T: Real> SubBlock<T> {
-    fn new(model: &ir::Model) -> Self {
-        let rows = |w: usize| vec![T::ZERO; w * SUB_BLOCK];
+    fn new(plan: &Plan) -> Self {
         SubBlock {
             used: 0,
-            x0: if model.input.standardize {
-                rows(model.input.width)
-            } else {
-                Vec::new()
-            },
-            a: model.layers.iter().map(|l| rows(l.width)).collect(),
-            z_out: rows(model.output().width),
-            d: model.layers.iter().map(|l| rows(l.width)).collect(),
+            rows: Scratch::rows(plan, SUB_BLOCK),
             losses: vec![T::ZERO; SUB_BLOCK],
         }
     }
@@ -88,97 +75,105 @@ fn backward_rows<T: Real>(act: &Activation<T>, a: &[T], d: &mut [T], w: usize) {
     }
 }
 
-/// Forward pass and error terms of the samples `xs` / `ys` (at most [`SUB_BLOCK`]) into `sb`: the
-/// runtime calls of `Net::deltas`, one layer at a time over all the samples.
+/// The width of a buffer of `net`'s plan, operands included.
+fn width_of<T>(net: &Net<'_, T>, buf: Buf) -> usize {
+    match buf {
+        Buf::Input => net.model.input.width,
+        Buf::Target => net.model.output().width,
+        other => net.plan.width(other).unwrap_or(0),
+    }
+}
+
+/// The backprop pass without its accumulation over the samples `xs` / `ys` (at most
+/// [`SUB_BLOCK`]) into `sb`: each step's batch kernel over the used rows, which gives, row by
+/// row, the bits of the per-sample kernel of `Net::deltas`.
 fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut SubBlock<T>) {
-    let model = net.model;
-    let (n_in, n_out) = (model.input.width, model.output().width);
+    let (n_in, n_out) = (net.model.input.width, net.model.output().width);
     let used = (xs.len() / n_in.max(1)).min(ys.len() / n_out.max(1));
     sb.used = used;
-    let xs = xs.get(..used * n_in).unwrap_or(&[]);
-    let ys = ys.get(..used * n_out).unwrap_or(&[]);
-    if model.input.standardize {
-        for (x, x0) in xs.chunks_exact(n_in).zip(sb.x0.chunks_exact_mut(n_in)) {
-            rt::standardize(x, &p.mean, &p.std, x0);
-        }
-    }
-    let last = model.layers.len().saturating_sub(1);
-    let out_act = model.output().activation;
-    let fused = model.loss == Loss::CrossEntropy && out_act == ir::Activation::Softmax;
-    for (l, ((layer, lp), act)) in model
-        .layers
-        .iter()
-        .zip(&p.layers)
-        .zip(&net.acts)
-        .enumerate()
-    {
-        let (done, rest) = sb.a.split_at_mut(l);
-        let Some(out) = rest.first_mut() else { break };
-        let out = &mut out[..used * layer.width];
-        let input: &[T] = match done.last() {
-            Some(a) => a.get(..used * layer.fan_in).unwrap_or(&[]),
-            None if model.input.standardize => sb.x0.get(..used * n_in).unwrap_or(&[]),
-            None => xs,
-        };
-        rt::affine_batch(&lp.weights, &lp.bias, input, out, layer.fan_in);
-        if l == last {
-            sb.z_out[..used * layer.width].copy_from_slice(out);
-            if fused {
-                // Softmax outputs and losses in one pass over the shared exponentials.
-                let z = &sb.z_out[..used * layer.width];
-                rt::loss::softmax_cross_entropy_batch(z, ys, out, &mut sb.losses, layer.width);
-                continue;
-            }
-        }
-        forward_rows(act, out, layer.width);
-    }
-    // Losses from the logits (or the activations, for squared error), then the output error.
-    let (Some(a_out), Some(d_out)) = (sb.a.last(), sb.d.last_mut()) else {
-        return;
+    let ops = Operands {
+        x: xs.get(..used * n_in).unwrap_or(&[]),
+        y: ys.get(..used * n_out).unwrap_or(&[]),
     };
-    if !fused {
-        let rows = sb
-            .z_out
-            .chunks_exact(n_out)
-            .zip(a_out.chunks_exact(n_out))
-            .zip(ys.chunks_exact(n_out));
-        for (loss, ((z, a), y)) in sb.losses.iter_mut().zip(rows) {
-            *loss = match (model.loss, out_act) {
-                (Loss::CrossEntropy, ir::Activation::Softmax) => {
-                    rt::loss::softmax_cross_entropy(z, y)
+    let rows = |buf: Buf| used * width_of(net, buf);
+    for step in net.plan.backprop.iter().filter(|s| !s.accumulates()) {
+        let s = &mut sb.rows;
+        match *step {
+            Step::Standardize { from, to } => {
+                if let Some((x, out)) = s.io(ops, from, to) {
+                    for (x, x0) in x.chunks_exact(n_in).zip(out.chunks_exact_mut(n_in)) {
+                        rt::standardize(x, &p.mean, &p.std, x0);
+                    }
                 }
-                (Loss::CrossEntropy, _) => rt::loss::logistic_cross_entropy(z, y),
-                (Loss::SquaredError, _) => rt::loss::squared_error(a, y),
-            };
-        }
-    }
-    // `d = a - y` is element-wise: one call over the used rows, not one per sample.
-    let (Some(a_used), Some(d_used)) = (a_out.get(..used * n_out), d_out.get_mut(..used * n_out))
-    else {
-        return;
-    };
-    rt::loss::output_error(a_used, ys, d_used);
-    if model.loss == Loss::SquaredError {
-        if let Some(act) = net.acts.last() {
-            backward_rows(act, a_used, d_used, n_out);
-        }
-    }
-    // Hidden errors, from the last hidden layer down to the first.
-    for l in (1..model.layers.len()).rev() {
-        let (lower, upper) = sb.d.split_at_mut(l);
-        let (Some(prev), Some(this)) = (model.layers.get(l - 1), model.layers.get(l)) else {
-            continue;
-        };
-        let (w, n) = (prev.width, this.width);
-        if let (Some(d_prev), Some(d_l), Some(lp), Some(a_prev), Some(act)) = (
-            lower.last_mut().and_then(|d| d.get_mut(..used * w)),
-            upper.first().and_then(|d| d.get(..used * n)),
-            p.layers.get(l),
-            sb.a.get(l - 1).and_then(|a| a.get(..used * w)),
-            net.acts.get(l - 1),
-        ) {
-            rt::back_batch(&lp.weights, d_l, d_prev, w);
-            backward_rows(act, a_prev, d_prev, w);
+            }
+            Step::Affine { layer, input, out } => {
+                let (Some(lp), Some(l)) = (p.layers.get(layer), net.model.layers.get(layer)) else {
+                    continue;
+                };
+                if let Some((x, z)) = s.io(ops, input, out) {
+                    let (x, z) = (x.get(..rows(input)), z.get_mut(..rows(out)));
+                    if let (Some(x), Some(z)) = (x, z) {
+                        rt::affine_batch(&lp.weights, &lp.bias, x, z, l.fan_in);
+                    }
+                }
+            }
+            Step::Copy { from, to } => {
+                if let Some((f, t)) = s.io(ops, from, to) {
+                    t.iter_mut()
+                        .zip(f)
+                        .take(rows(to))
+                        .for_each(|(t, &f)| *t = f);
+                }
+            }
+            Step::Activate { act, buf } => {
+                let w = width_of(net, buf);
+                if let Some(v) = s.get_mut(buf).and_then(|v| v.get_mut(..used * w)) {
+                    forward_rows(&activation::<T>(act), v, w);
+                }
+            }
+            Step::SoftmaxWithLoss { logits, out } => {
+                let w = width_of(net, out);
+                if let Some((z, a)) = s.io(ops, logits, out) {
+                    if let (Some(z), Some(a)) = (z.get(..used * w), a.get_mut(..used * w)) {
+                        rt::loss::softmax_cross_entropy_batch(z, ops.y, a, &mut sb.losses, w);
+                    }
+                }
+            }
+            Step::Loss { head, operand } => {
+                let (v, y) = s.read2(ops, operand, Buf::Target);
+                let rows = v.chunks_exact(n_out).zip(y.chunks_exact(n_out));
+                for (loss, (v, y)) in sb.losses.iter_mut().zip(rows) {
+                    *loss = sample_loss(head, v, y);
+                }
+            }
+            Step::OutputError { out, err } => {
+                // `d = a - y` is element-wise: one call over the used rows.
+                if let Some((a, d)) = s.io(ops, out, err) {
+                    if let (Some(a), Some(d)) = (a.get(..rows(out)), d.get_mut(..rows(err))) {
+                        rt::loss::output_error(a, ops.y, d);
+                    }
+                }
+            }
+            Step::ActivationGrad { act, act_of, err } => {
+                let w = width_of(net, err);
+                if let Some((a, d)) = s.io(ops, act_of, err) {
+                    if let (Some(a), Some(d)) = (a.get(..used * w), d.get_mut(..used * w)) {
+                        backward_rows(&activation::<T>(act), a, d, w);
+                    }
+                }
+            }
+            Step::Back { layer, err, out } => {
+                let Some(lp) = p.layers.get(layer) else {
+                    continue;
+                };
+                let w = width_of(net, out);
+                if let Some((d, o)) = s.io(ops, err, out) {
+                    if let (Some(d), Some(o)) = (d.get(..rows(err)), o.get_mut(..used * w)) {
+                        rt::back_batch(&lp.weights, d, o, w);
+                    }
+                }
+            }
+            Step::OuterAcc { .. } | Step::AddAcc { .. } => {}
         }
     }
 }
@@ -191,8 +186,8 @@ fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut
 pub struct BatchScratch<T> {
     /// Sub-blocks of one block, allocated as the batch sizes need them.
     subs: Vec<SubBlock<T>>,
-    /// The shape the sub-blocks are sized for: standardize flag, input width, layer widths.
-    shape: Vec<usize>,
+    /// The working buffers the sub-blocks are sized for.
+    shape: Vec<Buffer>,
 }
 
 impl<T: Real> BatchScratch<T> {
@@ -202,26 +197,18 @@ impl<T: Real> BatchScratch<T> {
             subs: Vec::new(),
             shape: Vec::new(),
         };
-        s.fit(model, BLOCK / SUB_BLOCK);
+        s.fit(&Plan::new(model), BLOCK / SUB_BLOCK);
         s
     }
 
-    /// `model`'s shape key.
-    fn shape_of(model: &ir::Model) -> impl Iterator<Item = usize> + '_ {
-        [usize::from(model.input.standardize), model.input.width]
-            .into_iter()
-            .chain(model.layers.iter().map(|l| l.width))
-    }
-
-    /// At least `count` sub-blocks sized for `model` (rebuilt if the shape differs).
-    fn fit(&mut self, model: &ir::Model, count: usize) -> &mut [SubBlock<T>] {
-        if !self.shape.iter().copied().eq(Self::shape_of(model)) {
-            self.shape.clear();
-            self.shape.extend(Self::shape_of(model));
+    /// At least `count` sub-blocks sized for `plan` (rebuilt if its buffers differ).
+    fn fit(&mut self, plan: &Plan, count: usize) -> &mut [SubBlock<T>] {
+        if self.shape != plan.buffers {
+            self.shape.clone_from(&plan.buffers);
             self.subs.clear();
         }
         while self.subs.len() < count {
-            self.subs.push(SubBlock::new(model));
+            self.subs.push(SubBlock::new(plan));
         }
         &mut self.subs[..count]
     }
@@ -267,7 +254,7 @@ pub fn gradient_into_with<T: Real + Send + Sync>(
     let work = model.parameters() * BLOCK;
     let parallel = work >= PARALLEL_MIN_WORK && rayon::current_num_threads() > 1;
     let subs_per_block = BLOCK / SUB_BLOCK;
-    let subs = scratch.fit(model, subs_per_block.min(m.div_ceil(SUB_BLOCK)));
+    let subs = scratch.fit(&net.plan, subs_per_block.min(m.div_ceil(SUB_BLOCK)));
     let mut loss_sum = T::ZERO;
     let (xs, ys) = (&xs[..m * n_in], &ys[..m * n_out]);
     for (xb, yb) in xs.chunks(BLOCK * n_in).zip(ys.chunks(BLOCK * n_out)) {
@@ -300,30 +287,18 @@ pub fn gradient_into_with<T: Real + Send + Sync>(
     Some(loss_sum / T::from_usize(m) + net.penalty_cost(p, m))
 }
 
-/// This layer's input and error rows of one sub-block (`x`: the sub-block's raw inputs).
-fn layer_rows<'a, T: Real>(
-    model: &ir::Model,
-    l: usize,
-    sb: &'a SubBlock<T>,
-    x: &'a [T],
-) -> (&'a [T], &'a [T]) {
-    let Some(layer) = model.layers.get(l) else {
-        return (&[], &[]);
+/// The rows of `buf` held by one sub-block (`x`: the sub-block's raw inputs).
+fn used_rows<'a, T: Real>(net: &Net<'_, T>, buf: Buf, sb: &'a SubBlock<T>, x: &'a [T]) -> &'a [T] {
+    let n = width_of(net, buf) * sb.used;
+    let all = match buf {
+        Buf::Input => x,
+        other => sb.rows.get(other),
     };
-    let (n, o) = (layer.fan_in * sb.used, layer.width * sb.used);
-    let input: Option<&[T]> = match l.checked_sub(1) {
-        None if model.input.standardize => sb.x0.get(..n),
-        None => x.get(..n),
-        Some(below) => sb.a.get(below).and_then(|a| a.get(..n)),
-    };
-    let d = sb.d.get(l).and_then(|d| d.get(..o));
-    match (input, d) {
-        (Some(a), Some(d)) => (a, d),
-        _ => (&[], &[]),
-    }
+    all.get(..n).unwrap_or(&[])
 }
 
-/// `G += D^T A` and `g_b += sum d` of one block, layer by layer, sub-blocks in sample order.
+/// The accumulation steps of the plan's backprop pass over one block: `G += D^T A` and
+/// `g_b += sum d` per layer, the sub-blocks in sample order.
 fn accumulate<T: Real + Send + Sync>(
     net: &Net<'_, T>,
     grad: &mut Params<T>,
@@ -331,39 +306,51 @@ fn accumulate<T: Real + Send + Sync>(
     subs: &[SubBlock<T>],
     parallel: bool,
 ) {
-    let model = net.model;
-    let n_in = model.input.width;
-    for (l, (g, layer)) in grad.layers.iter_mut().zip(&model.layers).enumerate() {
-        let (n, o) = (layer.fan_in, layer.width);
-        if n == 0 || o == 0 {
-            continue;
-        }
-        // This layer's input and error rows of every sub-block, in sample order: a fixed array
-        // (an iterator rebuilt inside the row loop cost the N2 and N3 accumulation 10-25 % more
-        // instructions; a `Vec` costs an allocation per layer and block).
-        let mut parts = [(&[][..], &[][..]); BLOCK / SUB_BLOCK];
-        for (part, (sb, x)) in parts
-            .iter_mut()
-            .zip(subs.iter().zip(xb.chunks(SUB_BLOCK * n_in)))
-        {
-            *part = layer_rows(model, l, sb, x);
-        }
-        let rows_of = |first: usize, g_rows: &mut [T]| {
-            for &(a, d) in parts.iter().take(subs.len()) {
-                rt::outer_acc_batch_rows(g_rows, d, a, n, (first, o));
+    let n_in = net.model.input.width;
+    for step in net.plan.backprop.iter().filter(|s| s.accumulates()) {
+        match *step {
+            Step::OuterAcc { layer, err, input } => {
+                let (Some(g), Some(l)) = (grad.layers.get_mut(layer), net.model.layers.get(layer))
+                else {
+                    continue;
+                };
+                let (n, o) = (l.fan_in, l.width);
+                if n == 0 || o == 0 {
+                    continue;
+                }
+                // This layer's input and error rows of every sub-block, in sample order: a fixed
+                // array, neither rebuilt per row nor allocated per layer and block.
+                let mut parts = [(&[][..], &[][..]); BLOCK / SUB_BLOCK];
+                for (part, (sb, x)) in parts
+                    .iter_mut()
+                    .zip(subs.iter().zip(xb.chunks(SUB_BLOCK * n_in)))
+                {
+                    *part = (used_rows(net, input, sb, x), used_rows(net, err, sb, x));
+                }
+                let rows_of = |first: usize, g_rows: &mut [T]| {
+                    for &(a, d) in parts.iter().take(subs.len()) {
+                        rt::outer_acc_batch_rows(g_rows, d, a, n, (first, o));
+                    }
+                };
+                if parallel && o >= 8 {
+                    let per_task = o.div_ceil(rayon::current_num_threads() * 2).max(4);
+                    g.weights
+                        .par_chunks_mut(per_task * n)
+                        .enumerate()
+                        .for_each(|(k, rows)| rows_of(k * per_task, rows));
+                } else {
+                    rows_of(0, &mut g.weights);
+                }
             }
-        };
-        if parallel && o >= 8 {
-            let per_task = o.div_ceil(rayon::current_num_threads() * 2).max(4);
-            g.weights
-                .par_chunks_mut(per_task * n)
-                .enumerate()
-                .for_each(|(k, rows)| rows_of(k * per_task, rows));
-        } else {
-            rows_of(0, &mut g.weights);
-        }
-        for &(_, d) in parts.iter().take(subs.len()) {
-            rt::add_acc_batch(&mut g.bias, d);
+            Step::AddAcc { layer, err } => {
+                let Some(g) = grad.layers.get_mut(layer) else {
+                    continue;
+                };
+                for (sb, x) in subs.iter().zip(xb.chunks(SUB_BLOCK * n_in)) {
+                    rt::add_acc_batch(&mut g.bias, used_rows(net, err, sb, x));
+                }
+            }
+            _ => {}
         }
     }
 }

@@ -33,6 +33,58 @@ pub struct LayerCheck {
     pub failures: usize,
 }
 
+impl LayerCheck {
+    /// True when every checked parameter of the layer is within the tolerance.
+    pub fn passed(&self) -> bool {
+        self.failures == 0
+    }
+}
+
+/// The verdict of a gradient check.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Verdict {
+    /// Every checked parameter of every layer is within the tolerance.
+    Passed,
+    /// At least one checked parameter is outside it.
+    Failed,
+}
+
+impl Verdict {
+    /// [`Verdict::Passed`] when every layer [`LayerCheck::passed`] (also for no layers).
+    ///
+    /// # Examples
+    /// ```
+    /// use sinew::engine::gradcheck::{LayerCheck, Verdict};
+    /// let layer = |failures| LayerCheck {
+    ///     layer: "h".into(),
+    ///     checked: 3,
+    ///     total: 3,
+    ///     worst_relative_error: 0.0,
+    ///     worst_at: "bias[0]".into(),
+    ///     worst_absolute_error: 0.0,
+    ///     failures,
+    /// };
+    /// assert_eq!(Verdict::of(&[layer(0), layer(0)]), Verdict::Passed);
+    /// assert_eq!(Verdict::of(&[layer(0), layer(2)]), Verdict::Failed);
+    /// ```
+    pub fn of(layers: &[LayerCheck]) -> Verdict {
+        if layers.iter().all(LayerCheck::passed) {
+            Verdict::Passed
+        } else {
+            Verdict::Failed
+        }
+    }
+
+    /// The word of the report's last line: `passed` or `failed`.
+    pub fn word(self) -> &'static str {
+        match self {
+            Verdict::Passed => "passed",
+            Verdict::Failed => "failed",
+        }
+    }
+}
+
 /// How a check is run.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct CheckOptions {

@@ -16,7 +16,8 @@
 
 pub use aligned::Lines;
 
-use crate::ir::{self, Init, Loss, Model, Optimizer};
+use crate::ir::{self, Init, Model, Optimizer};
+use crate::plan::{Buf, Head, Plan, Step, Update};
 use sinew_runtime::{self as rt, act::Activation, penalty::Penalty, rng::SplitMix64, Real};
 
 pub mod aligned;
@@ -174,48 +175,105 @@ impl<T: Real> Params<T> {
     }
 }
 
-/// Per-sample working buffers, reused across samples.
+/// Per-sample working buffers, reused across samples: one per [`Plan::buffers`] entry, in its
+/// order.
 #[derive(Debug, Clone)]
 pub struct Scratch<T> {
-    /// Standardized input (empty without `standardize`).
-    pub x0: Vec<T>,
-    /// Activations per layer.
-    pub a: Vec<Vec<T>>,
-    /// Output logits z(L), kept for the loss.
-    pub z_out: Vec<T>,
-    /// Error terms per layer.
-    pub d: Vec<Vec<T>>,
+    /// Which buffer each entry of `bufs` holds.
+    slots: Vec<Buf>,
+    /// The buffers.
+    bufs: Vec<Vec<T>>,
 }
 
 impl<T: Real> Scratch<T> {
     /// Buffers sized for `model`.
     pub fn new(model: &Model) -> Self {
-        let widths = || {
-            model
-                .layers
-                .iter()
-                .map(|l| vec![T::ZERO; l.width])
-                .collect::<Vec<_>>()
-        };
+        Self::rows(&Plan::new(model), 1)
+    }
+
+    /// Buffers of `rows` samples each for the plan's working buffers.
+    fn rows(plan: &Plan, rows: usize) -> Self {
         Scratch {
-            x0: if model.input.standardize {
-                vec![T::ZERO; model.input.width]
-            } else {
-                Vec::new()
-            },
-            a: widths(),
-            z_out: vec![T::ZERO; model.output().width],
-            d: widths(),
+            slots: plan.buffers.iter().map(|b| b.buf).collect(),
+            bufs: plan
+                .buffers
+                .iter()
+                .map(|b| vec![T::ZERO; b.width * rows])
+                .collect(),
         }
+    }
+
+    /// The values of a working buffer (empty for one the model lacks).
+    pub fn get(&self, buf: Buf) -> &[T] {
+        self.slot(buf)
+            .and_then(|k| self.bufs.get(k))
+            .map_or(&[], Vec::as_slice)
+    }
+
+    /// The activations of layer `l` after the last pass (its outputs, for the output layer).
+    pub fn activations(&self, l: usize) -> &[T] {
+        self.get(Buf::Act(l))
+    }
+
+    fn slot(&self, buf: Buf) -> Option<usize> {
+        self.slots.iter().position(|&b| b == buf)
+    }
+
+    /// A working buffer, writable.
+    fn get_mut(&mut self, buf: Buf) -> Option<&mut [T]> {
+        let k = self.slot(buf)?;
+        self.bufs.get_mut(k).map(Vec::as_mut_slice)
+    }
+
+    /// `read` (an operand or a working buffer) and the working buffer `write`, which differ.
+    fn io<'a>(
+        &'a mut self,
+        ops: Operands<'a, T>,
+        read: Buf,
+        write: Buf,
+    ) -> Option<(&'a [T], &'a mut [T])> {
+        let w = self.slot(write)?;
+        let r = match read {
+            Buf::Input => return Some((ops.x, self.bufs.get_mut(w)?)),
+            Buf::Target => return Some((ops.y, self.bufs.get_mut(w)?)),
+            other => self.slot(other)?,
+        };
+        if r < w {
+            let (lo, hi) = self.bufs.split_at_mut(w);
+            Some((lo.get(r)?, hi.first_mut()?))
+        } else if r > w {
+            let (lo, hi) = self.bufs.split_at_mut(r);
+            Some((hi.first()?, lo.get_mut(w)?))
+        } else {
+            None
+        }
+    }
+
+    /// Two buffers read together (each an operand or a working buffer).
+    fn read2<'a>(&'a self, ops: Operands<'a, T>, a: Buf, b: Buf) -> (&'a [T], &'a [T]) {
+        let get = |buf: Buf| match buf {
+            Buf::Input => ops.x,
+            Buf::Target => ops.y,
+            other => self.get(other),
+        };
+        (get(a), get(b))
     }
 }
 
-/// A model bound to a scalar type, with its activations and penalty converted once.
+/// The operands of a pass: the sample (or the rows of a block) and its target.
+#[derive(Debug, Clone, Copy)]
+struct Operands<'a, T> {
+    x: &'a [T],
+    y: &'a [T],
+}
+
+/// A model bound to a scalar type, with its execution plan and penalty converted once.
 #[derive(Debug, Clone)]
 pub struct Net<'m, T> {
     /// The model.
     pub model: &'m Model,
-    acts: Vec<Activation<T>>,
+    /// Its execution plan: the passes this engine walks, as the generated code does.
+    pub plan: Plan,
     penalty: Penalty<T>,
 }
 
@@ -240,136 +298,121 @@ pub fn penalty<T: Real>(p: ir::Penalty) -> Penalty<T> {
     }
 }
 
+/// One sample's loss under `head` from its operand (logits or outputs) and target.
+pub fn sample_loss<T: Real>(head: Head, v: &[T], y: &[T]) -> T {
+    match head {
+        Head::SoftmaxCrossEntropy => rt::loss::softmax_cross_entropy(v, y),
+        Head::Logistic => rt::loss::logistic_cross_entropy(v, y),
+        Head::SquaredError(_) => rt::loss::squared_error(v, y),
+    }
+}
+
 impl<'m, T: Real> Net<'m, T> {
     /// Binds `model` to `T`.
     pub fn new(model: &'m Model) -> Self {
         Net {
             model,
-            acts: model
-                .layers
-                .iter()
-                .map(|l| activation(l.activation))
-                .collect(),
+            plan: Plan::new(model),
             penalty: penalty(model.penalty),
         }
     }
 
-    /// Forward pass into `s.a`; with `keep_logits` the output's z is copied to `s.z_out` before
-    /// the output activation.
-    pub fn forward(&self, p: &Params<T>, x: &[T], s: &mut Scratch<T>, keep_logits: bool) {
-        self.forward_with(p, x, s, keep_logits, None);
-    }
-
-    /// [`Net::forward`]; with `fused_loss = Some(y)`, a softmax output layer gets its outputs and
-    /// its cross-entropy against `y` from one runtime call (shared exponentials, the same bits)
-    /// and the loss is returned. Otherwise `None`.
-    fn forward_with(
+    /// Runs `steps` on one sample: the kernel of each step, in order. Accumulation steps add to
+    /// `grad` when one is given and are skipped otherwise. Returns the sample's loss (ZERO for a
+    /// pass without one).
+    fn run(
         &self,
+        steps: &[Step],
         p: &Params<T>,
-        x: &[T],
+        ops: Operands<'_, T>,
         s: &mut Scratch<T>,
-        keep_logits: bool,
-        fused_loss: Option<&[T]>,
-    ) -> Option<T> {
-        let mut loss = None;
-        let input: &[T] = if self.model.input.standardize {
-            rt::standardize(x, &p.mean, &p.std, &mut s.x0);
-            &s.x0
-        } else {
-            x
-        };
-        let last = s.a.len().saturating_sub(1);
-        for (l, (lp, act)) in p.layers.iter().zip(&self.acts).enumerate() {
-            let (done, rest) = s.a.split_at_mut(l);
-            let Some(out) = rest.first_mut() else { break };
-            let prev: &[T] = match done.last() {
-                Some(a) => a,
-                None => input,
-            };
-            rt::affine(&lp.weights, &lp.bias, prev, out);
-            if keep_logits && l == last {
-                s.z_out.copy_from_slice(out);
-                if let (Some(y), Activation::Softmax) = (fused_loss, act) {
-                    loss = Some(rt::loss::softmax_with_cross_entropy(&s.z_out, y, out));
-                    continue;
+        mut grad: Option<&mut Params<T>>,
+    ) -> T {
+        let mut loss = T::ZERO;
+        for step in steps {
+            match *step {
+                Step::Standardize { from, to } => {
+                    if let Some((x, out)) = s.io(ops, from, to) {
+                        rt::standardize(x, &p.mean, &p.std, out);
+                    }
+                }
+                Step::Affine { layer, input, out } => {
+                    if let (Some(lp), Some((x, z))) = (p.layers.get(layer), s.io(ops, input, out)) {
+                        rt::affine(&lp.weights, &lp.bias, x, z);
+                    }
+                }
+                Step::Copy { from, to } => {
+                    if let Some((f, t)) = s.io(ops, from, to) {
+                        t.iter_mut().zip(f).for_each(|(t, &f)| *t = f);
+                    }
+                }
+                Step::Activate { act, buf } => {
+                    if let Some(v) = s.get_mut(buf) {
+                        activation::<T>(act).forward(v);
+                    }
+                }
+                Step::SoftmaxWithLoss { logits, out } => {
+                    if let Some((z, a)) = s.io(ops, logits, out) {
+                        loss = rt::loss::softmax_with_cross_entropy(z, ops.y, a);
+                    }
+                }
+                Step::Loss { head, operand } => {
+                    let (v, y) = s.read2(ops, operand, Buf::Target);
+                    loss = sample_loss(head, v, y);
+                }
+                Step::OutputError { out, err } => {
+                    if let Some((a, d)) = s.io(ops, out, err) {
+                        rt::loss::output_error(a, ops.y, d);
+                    }
+                }
+                Step::ActivationGrad { act, act_of, err } => {
+                    if let Some((a, d)) = s.io(ops, act_of, err) {
+                        activation::<T>(act).backward(a, d);
+                    }
+                }
+                Step::OuterAcc { layer, err, input } => {
+                    if let Some(g) = grad.as_deref_mut().and_then(|g| g.layers.get_mut(layer)) {
+                        let (d, a) = s.read2(ops, err, input);
+                        rt::outer_acc(&mut g.weights, d, a);
+                    }
+                }
+                Step::AddAcc { layer, err } => {
+                    if let Some(g) = grad.as_deref_mut().and_then(|g| g.layers.get_mut(layer)) {
+                        rt::add_acc(&mut g.bias, s.get(err));
+                    }
+                }
+                Step::Back { layer, err, out } => {
+                    if let (Some(lp), Some((d, o))) = (p.layers.get(layer), s.io(ops, err, out)) {
+                        rt::back(&lp.weights, d, o);
+                    }
                 }
             }
-            act.forward(out);
         }
         loss
+    }
+
+    /// The inference pass: the activations of every layer into `s` (see
+    /// [`Scratch::activations`]).
+    pub fn forward(&self, p: &Params<T>, x: &[T], s: &mut Scratch<T>) {
+        self.run(&self.plan.inference, p, Operands { x, y: &[] }, s, None);
     }
 
     /// Network output for one sample, written to `out` (the generated `predict_into`).
     pub fn predict(&self, p: &Params<T>, x: &[T], s: &mut Scratch<T>, out: &mut [T]) {
-        self.forward(p, x, s, false);
-        if let Some(a) = s.a.last() {
-            out.iter_mut().zip(a).for_each(|(o, &v)| *o = v);
-        }
-    }
-
-    fn sample_loss(&self, s: &Scratch<T>, y: &[T]) -> T {
-        let a_out = s.a.last().map(Vec::as_slice).unwrap_or(&[]);
-        match (self.model.loss, self.model.output().activation) {
-            (Loss::CrossEntropy, ir::Activation::Softmax) => {
-                rt::loss::softmax_cross_entropy(&s.z_out, y)
-            }
-            (Loss::CrossEntropy, _) => rt::loss::logistic_cross_entropy(&s.z_out, y),
-            (Loss::SquaredError, _) => rt::loss::squared_error(a_out, y),
-        }
+        self.forward(p, x, s);
+        let a = s.activations(self.plan.output);
+        out.iter_mut().zip(a).for_each(|(o, &v)| *o = v);
     }
 
     /// The loss of one sample (no penalty).
     pub fn loss(&self, p: &Params<T>, x: &[T], y: &[T], s: &mut Scratch<T>) -> T {
-        self.forward(p, x, s, true);
-        self.sample_loss(s, y)
+        self.run(&self.plan.loss, p, Operands { x, y }, s, None)
     }
 
-    /// Forward pass and error terms of one sample, leaving activations in `s.a` and errors in
-    /// `s.d`; returns the sample's loss. No gradient is accumulated.
+    /// Forward pass and error terms of one sample (the backprop pass without its
+    /// accumulation), leaving activations and errors in `s`; returns the sample's loss.
     pub fn deltas(&self, p: &Params<T>, x: &[T], y: &[T], s: &mut Scratch<T>) -> T {
-        let fused = self.model.loss == Loss::CrossEntropy;
-        let loss = match self.forward_with(p, x, s, true, fused.then_some(y)) {
-            Some(loss) => loss,
-            None => self.sample_loss(s, y),
-        };
-        let n = s.d.len();
-        // Output error.
-        if let (Some(a_out), Some(d_out)) = (s.a.last(), s.d.last_mut()) {
-            rt::loss::output_error(a_out, y, d_out);
-            if self.model.loss == Loss::SquaredError {
-                if let Some(act) = self.acts.last() {
-                    act.backward(a_out, d_out);
-                }
-            }
-        }
-        // Hidden errors, from the last hidden layer down to the first.
-        for l in (1..n).rev() {
-            let (lower, upper) = s.d.split_at_mut(l);
-            if let (Some(d_prev), Some(d_l), Some(lp), Some(a_prev), Some(act)) = (
-                lower.last_mut(),
-                upper.first(),
-                p.layers.get(l),
-                s.a.get(l - 1),
-                self.acts.get(l - 1),
-            ) {
-                rt::back(&lp.weights, d_l, d_prev);
-                act.backward(a_prev, d_prev);
-            }
-        }
-        loss
-    }
-
-    /// The input the first layer sees (standardized copy or `x`).
-    pub fn layer_input<'a>(&self, x: &'a [T], s: &'a Scratch<T>, l: usize) -> &'a [T] {
-        if l == 0 {
-            if self.model.input.standardize {
-                &s.x0
-            } else {
-                x
-            }
-        } else {
-            s.a.get(l - 1).map(Vec::as_slice).unwrap_or(&[])
-        }
+        self.run(&self.plan.backprop, p, Operands { x, y }, s, None)
     }
 
     /// Per-sample backprop: accumulates this sample's gradient into `grad` and returns its loss.
@@ -381,15 +424,7 @@ impl<'m, T: Real> Net<'m, T> {
         grad: &mut Params<T>,
         s: &mut Scratch<T>,
     ) -> T {
-        let loss = self.deltas(p, x, y, s);
-        for l in (0..grad.layers.len()).rev() {
-            let (Some(g), Some(d)) = (grad.layers.get_mut(l), s.d.get(l)) else {
-                continue;
-            };
-            rt::outer_acc(&mut g.weights, d, self.layer_input(x, s, l));
-            rt::add_acc(&mut g.bias, d);
-        }
-        loss
+        self.run(&self.plan.backprop, p, Operands { x, y }, s, Some(grad))
     }
 
     /// Batch finish: divides by `m` and adds the penalty gradient to the weights (never biases).
@@ -436,19 +471,16 @@ impl<'m, T: Real> Net<'m, T> {
         g: &Params<T>,
         state: &mut OptState<T>,
     ) {
-        match optimizer {
-            Optimizer::Sgd {
-                rate,
-                momentum: 0.0,
-            } => {
+        match Update::of(optimizer) {
+            Update::Sgd { rate } => {
                 let rate = T::from_f64(rate);
                 for (pl, gl) in p.layers.iter_mut().zip(&g.layers) {
                     rt::optim::sgd(&mut pl.weights, &gl.weights, rate);
                     rt::optim::sgd(&mut pl.bias, &gl.bias, rate);
                 }
             }
-            Optimizer::Sgd { rate, momentum } => {
-                let (rate, mu) = (T::from_f64(rate), T::from_f64(momentum));
+            Update::Momentum { rate, mu } => {
+                let (rate, mu) = (T::from_f64(rate), T::from_f64(mu));
                 let v = state
                     .first
                     .get_or_insert_with(|| Params::zero_gradient(self.model));
@@ -457,17 +489,17 @@ impl<'m, T: Real> Net<'m, T> {
                     rt::optim::momentum(&mut pl.bias, &gl.bias, &mut vl.bias, rate, mu);
                 }
             }
-            Optimizer::Adam {
+            Update::Adam {
                 rate,
                 beta1,
                 beta2,
-                epsilon,
+                eps,
             } => {
                 let (rate, b1, b2, eps) = (
                     T::from_f64(rate),
                     T::from_f64(beta1),
                     T::from_f64(beta2),
-                    T::from_f64(epsilon),
+                    T::from_f64(eps),
                 );
                 state.t = state.t.saturating_add(1);
                 let t = state.t;

@@ -61,6 +61,64 @@ pub enum Method {
     },
 }
 
+/// Correction pairs kept by L-BFGS when a run asks for it without a memory: 7, inside the range
+/// of 3 to 20 that Nocedal and Wright, *Numerical Optimization*, ch. 7, give as usually
+/// sufficient (from memory). Each pair costs two parameter vectors.
+pub const DEFAULT_LBFGS_MEMORY: usize = 7;
+
+/// A training method asked for by name, instead of the spec's optimizer.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum MethodChoice {
+    /// Full-batch gradient descent at the spec's rate.
+    GradientDescent,
+    /// Mini-batch SGD: the spec's, or at the spec's rate without momentum.
+    Sgd,
+    /// Mini-batch Adam: the spec's, or at the spec's rate with the default betas and epsilon.
+    Adam,
+    /// Full-batch L-BFGS with [`DEFAULT_LBFGS_MEMORY`] pairs.
+    Lbfgs,
+}
+
+impl Method {
+    /// The method `choice` names, taking from the spec's optimizer `spec` what it shares: its
+    /// rate, and all its settings when `choice` is the spec's own optimizer; the rest from
+    /// [`crate::ir::defaults`] and [`DEFAULT_LBFGS_MEMORY`].
+    ///
+    /// # Examples
+    /// ```
+    /// use sinew::engine::train::{Method, MethodChoice};
+    /// use sinew::ir::Optimizer;
+    /// let spec = Optimizer::Sgd { rate: 0.1, momentum: 0.9 };
+    /// assert_eq!(
+    ///     Method::chosen(MethodChoice::GradientDescent, spec),
+    ///     Method::GradientDescent { rate: 0.1 }
+    /// );
+    /// assert_eq!(Method::chosen(MethodChoice::Sgd, spec), Method::MiniBatch(spec));
+    /// ```
+    pub fn chosen(choice: MethodChoice, spec: Optimizer) -> Method {
+        match (choice, spec) {
+            (MethodChoice::GradientDescent, spec) => Method::GradientDescent {
+                rate: rate_of(spec),
+            },
+            (MethodChoice::Sgd, o @ Optimizer::Sgd { .. }) => Method::MiniBatch(o),
+            (MethodChoice::Sgd, spec) => Method::MiniBatch(Optimizer::Sgd {
+                rate: rate_of(spec),
+                momentum: 0.0,
+            }),
+            (MethodChoice::Adam, o @ Optimizer::Adam { .. }) => Method::MiniBatch(o),
+            (MethodChoice::Adam, spec) => Method::MiniBatch(Optimizer::Adam {
+                rate: rate_of(spec),
+                beta1: crate::ir::defaults::BETA1,
+                beta2: crate::ir::defaults::BETA2,
+                epsilon: crate::ir::defaults::ADAM_EPSILON,
+            }),
+            (MethodChoice::Lbfgs, _) => Method::Lbfgs {
+                memory: DEFAULT_LBFGS_MEMORY,
+            },
+        }
+    }
+}
+
 /// Options of one training run; `Default` trains as the spec says.
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct TrainOptions {
@@ -181,17 +239,7 @@ pub fn resolve_method(model: &Model, opts: &TrainOptions) -> Method {
 pub fn method_name(m: &Method) -> String {
     match m {
         Method::GradientDescent { rate } => format!("gradient descent rate {rate}"),
-        Method::MiniBatch(Optimizer::Sgd { rate, momentum }) if *momentum == 0.0 => {
-            format!("sgd rate {rate}")
-        }
-        Method::MiniBatch(Optimizer::Sgd { rate, momentum }) => {
-            format!("sgd rate {rate} momentum {momentum}")
-        }
-        Method::MiniBatch(Optimizer::Adam {
-            rate, beta1, beta2, ..
-        }) => {
-            format!("adam rate {rate} beta1 {beta1} beta2 {beta2}")
-        }
+        Method::MiniBatch(o) => crate::words::optimizer_spec(*o),
         Method::Lbfgs { memory } => format!("l-bfgs memory {memory}"),
     }
 }

@@ -5,8 +5,9 @@
 //! same run. Grammar rule names never reach the user; [`expectation`] turns them into words.
 
 use super::ast::*;
-use crate::diag::Diagnostic;
+use crate::diag::{Code, Diagnostic};
 use crate::span::{Span, Spanned};
+use crate::text::{quote, suggest};
 use pest::iterators::Pair;
 use pest::Parser;
 
@@ -63,7 +64,7 @@ fn parse_line(line: &str, offset: usize, diags: &mut Vec<Diagnostic>) -> Option<
                     // expected; report it rather than panic.
                     let span = span_of(&stmt, offset);
                     diags.push(
-                        Diagnostic::error("S0104", "this line could not be read", span)
+                        Diagnostic::error(Code::S0104, "this line could not be read", span)
                             .label("not understood"),
                     );
                     Some(Statement {
@@ -477,35 +478,6 @@ fn content_end(line: &str) -> usize {
     code.trim_end_matches([' ', '\t']).len()
 }
 
-/// A word quoted for a message: escaped, and shortened when very long.
-pub(crate) fn quote(word: &str) -> String {
-    const MAX: usize = 40;
-    let mut s: String = word
-        .chars()
-        .take(MAX)
-        .collect::<String>()
-        .escape_debug()
-        .to_string();
-    if word.chars().count() > MAX {
-        s.push_str("...");
-    }
-    format!("`{s}`")
-}
-
-/// The candidate closest to `word`, if it is close enough to be a likely typo.
-pub(crate) fn suggest<'a>(word: &str, candidates: &[&'a str]) -> Option<&'a str> {
-    let lower = word.to_lowercase();
-    let mut best: Option<(&'a str, f64)> = None;
-    for &c in candidates {
-        let score = strsim::normalized_damerau_levenshtein(&lower, c)
-            .max(strsim::jaro_winkler(&lower, c) - 0.1);
-        if score >= 0.7 && best.is_none_or(|(_, b)| score > b) {
-            best = Some((c, score));
-        }
-    }
-    best.map(|(c, _)| c)
-}
-
 /// Joins `a`, `b` and `c` as "a, b or c".
 fn join_or(items: &[String]) -> String {
     match items {
@@ -560,7 +532,7 @@ fn syntax_error(
                     .flatten()
             });
             let d = Diagnostic::error(
-                "S0106",
+                Code::S0106,
                 format!(
                     "the line contains the invisible character U+{:04X}{}",
                     c as u32,
@@ -583,9 +555,13 @@ fn syntax_error(
                 Some(g) => format!("did you mean `{g}`?"),
                 None => format!("a line starts with one of: {}", keywords.join(", ")),
             };
-            let d = Diagnostic::error("S0101", format!("unknown keyword {}", quote(word)), at(f))
-                .label("not a keyword")
-                .with_help(help);
+            let d = Diagnostic::error(
+                Code::S0101,
+                format!("unknown keyword {}", quote(word)),
+                at(f),
+            )
+            .label("not a keyword")
+            .with_help(help);
             return (d, guess.and_then(Section::from_keyword));
         }
     }
@@ -618,7 +594,7 @@ fn syntax_error(
     if after_comma && wants == [Want::Value("a name")] {
         let shown = found_text.map_or("end of line".to_string(), quote);
         let d = Diagnostic::error(
-            "S0104",
+            Code::S0104,
             format!("expected a class name after `,`, found {shown}"),
             found.map_or(eol, at),
         )
@@ -635,7 +611,7 @@ fn syntax_error(
             _ => form_help(meant),
         };
         let d = Diagnostic::error(
-            "S0104",
+            Code::S0104,
             format!("expected {expected}{after}, found end of line"),
             eol,
         )
@@ -658,7 +634,7 @@ fn syntax_error(
                 ),
             };
             let d = Diagnostic::error(
-                "S0102",
+                Code::S0102,
                 format!("unknown activation {}", quote(word)),
                 at(span),
             )
@@ -686,7 +662,7 @@ fn syntax_error(
             unit_alias(word),
             wants.iter().any(|w| matches!(w, Want::OneOf("unit", _))),
         ) {
-            let d = Diagnostic::error("S0103", unknown, at(span))
+            let d = Diagnostic::error(Code::S0103, unknown, at(span))
                 .label(format!("expected {expected}"))
                 .with_help(format!(
                     "did you mean `{g}`? memory is counted in binary units: 1 KiB = 1024 B, 1 MiB = 1024 KiB"
@@ -694,7 +670,7 @@ fn syntax_error(
             return (d, meant);
         }
         if let Some(g) = suggest(word, &candidates) {
-            let d = Diagnostic::error("S0103", unknown, at(span))
+            let d = Diagnostic::error(Code::S0103, unknown, at(span))
                 .label(format!("expected {expected}"))
                 .with_help(format!("did you mean `{g}`?"));
             return (d, meant);
@@ -704,7 +680,7 @@ fn syntax_error(
                 .map(|s| format!(" in the `{}` line", s.keyword()))
                 .unwrap_or_default();
             let d = Diagnostic::error(
-                "S0105",
+                Code::S0105,
                 format!("unexpected {}{what}", quote(word)),
                 at(span),
             )
@@ -726,7 +702,7 @@ fn syntax_error(
                 form_help(meant),
             ),
         };
-        let d = Diagnostic::error("S0103", msg, at(span))
+        let d = Diagnostic::error(Code::S0103, msg, at(span))
             .label(format!("expected {expected}"))
             .with_help(help);
         return (d, meant);
@@ -755,7 +731,7 @@ fn syntax_error(
         form_help(meant)
     };
     let d = Diagnostic::error(
-        "S0104",
+        Code::S0104,
         format!("expected {expected}{after}, found {}", quote(word)),
         at(span),
     )

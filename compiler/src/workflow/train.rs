@@ -1,0 +1,155 @@
+//! Training on a data file: read, split, standardize from the training split, train, evaluate.
+
+use super::convert::{params_of, samples, weights_of};
+use super::WorkflowError;
+use crate::data::{self, Dataset};
+use crate::engine::train::{EpochReport, TrainOptions, TrainSummary};
+use crate::engine::{eval, train, Net, Params};
+use crate::ir::{Model, Scalar};
+use crate::weights::{Provenance, Weights};
+use sinew_runtime::Real;
+use std::path::Path;
+use std::time::{Duration, Instant};
+
+/// What to train on and how.
+#[derive(Debug, Clone)]
+pub struct TrainRequest<'a> {
+    /// The CSV data file.
+    pub data: &'a Path,
+    /// Fraction of samples held out for validation (0 for none).
+    pub split: f64,
+    /// Seed of the split (and of the mini-batch order, through `options.seed`).
+    pub seed: u64,
+    /// Engine options (method, rate, epochs, batch, patience).
+    pub options: TrainOptions,
+    /// Start from these parameters instead of the spec's initialisation.
+    pub start: Option<Weights>,
+}
+
+/// The outcome of training.
+#[derive(Debug, Clone)]
+pub struct TrainOutcome {
+    /// The trained parameters, with standardization and provenance.
+    pub weights: Weights,
+    /// Per-epoch history and the kept epoch.
+    pub summary: TrainSummary,
+    /// Figures on the training split.
+    pub train: eval::Evaluation,
+    /// Figures on the validation split.
+    pub validation: Option<eval::Evaluation>,
+    /// Wall time of the training loop.
+    pub elapsed: Duration,
+}
+
+/// [`crate::weights::data_hash`] of the file at `path`, read in pieces so that a large data file
+/// is never held in memory whole.
+fn file_hash(path: &Path) -> std::io::Result<String> {
+    use std::io::Read;
+    let mut f = std::fs::File::open(path)?;
+    let mut buf = vec![0u8; 1 << 16];
+    let mut h = crate::ir::FNV1A64_OFFSET;
+    loop {
+        let n = match f.read(&mut buf) {
+            Ok(0) => break,
+            Ok(n) => n,
+            Err(e) if e.kind() == std::io::ErrorKind::Interrupted => continue,
+            Err(e) => return Err(e),
+        };
+        h = crate::ir::fnv1a64_extend(h, buf.get(..n).unwrap_or(&[]));
+    }
+    Ok(format!("{h:016x}"))
+}
+
+/// Reads the data, splits it, sets the standardization from the training split, trains, and
+/// evaluates. Nothing is written; on divergence the error names the epoch.
+pub fn train(
+    model: &Model,
+    req: &TrainRequest<'_>,
+    on_epoch: &mut dyn FnMut(&EpochReport),
+) -> Result<TrainOutcome, WorkflowError> {
+    let hash = file_hash(req.data)
+        .map_err(|e| WorkflowError::Io(format!("cannot read {}: {e}", req.data.display())))?;
+    let ds = data::read_csv(req.data, model)?;
+    let (tr, va) = if req.split > 0.0 {
+        let (t, v) = data::split(&ds, req.split, req.seed);
+        (t, Some(v))
+    } else {
+        (ds, None)
+    };
+    let file_name = req
+        .data
+        .file_name()
+        .map(|f| f.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    match model.scalar {
+        Scalar::F32 => train_t::<f32>(model, req, &tr, va.as_ref(), file_name, hash, on_epoch),
+        Scalar::F64 => train_t::<f64>(model, req, &tr, va.as_ref(), file_name, hash, on_epoch),
+    }
+}
+
+#[allow(clippy::too_many_arguments)]
+fn train_t<T: Real + Send + Sync>(
+    model: &Model,
+    req: &TrainRequest<'_>,
+    tr: &Dataset,
+    va: Option<&Dataset>,
+    data_file: String,
+    data_file_hash: String,
+    on_epoch: &mut dyn FnMut(&EpochReport),
+) -> Result<TrainOutcome, WorkflowError> {
+    let mut p: Params<T> = match &req.start {
+        Some(w) => {
+            w.check_against(model)?;
+            params_of(model, w)
+        }
+        None => Params::init(model, model.seed),
+    };
+    if model.input.standardize {
+        let (mean, std) = data::mean_std(tr);
+        p.mean = mean.iter().map(|&v| T::from_f64(v)).collect();
+        p.std = std.iter().map(|&v| T::from_f64(v)).collect();
+    }
+    let ts = samples::<T>(tr);
+    let vs = va.map(samples::<T>);
+    let start = Instant::now();
+    let summary = train::train(model, &mut p, &ts, vs.as_ref(), &req.options, on_epoch)?;
+    let elapsed = start.elapsed();
+    let net = Net::<T>::new(model);
+    let train_eval = eval::evaluate(&net, &p, &ts.xs, &ts.ys, ts.labels.as_deref());
+    let validation = vs
+        .as_ref()
+        .map(|v| eval::evaluate(&net, &p, &v.xs, &v.ys, v.labels.as_deref()));
+    let provenance = Provenance {
+        optimizer: summary.method.clone(),
+        epochs: summary.history.len() as u64,
+        train_cost: train_eval.cost,
+        validation_cost: validation.as_ref().map(|v| v.cost),
+        data_file_hash,
+        data_file,
+    };
+    Ok(TrainOutcome {
+        weights: weights_of(model, &p, Some(provenance)),
+        summary,
+        train: train_eval,
+        validation,
+        elapsed,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    #[test]
+    fn file_hash_is_the_data_hash_of_the_bytes() {
+        let dir = std::env::temp_dir().join(format!("sinew-workflow-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let path = dir.join("data.csv");
+        // More than one read buffer, so the hash is continued across pieces.
+        let bytes: Vec<u8> = (0..200_000u32).map(|i| (i % 251) as u8).collect();
+        std::fs::write(&path, &bytes).unwrap();
+        assert_eq!(
+            super::file_hash(&path).unwrap(),
+            crate::weights::data_hash(&bytes)
+        );
+        std::fs::remove_dir_all(dir).unwrap();
+    }
+}
