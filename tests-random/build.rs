@@ -231,8 +231,8 @@ fn main() -> Result<(), Box<dyn Error>> {
         let Some(model) = checked.model else {
             return Err(format!("network {i} has no model").into());
         };
-        let spec_file = format!("specs/{}.sinew", model.name);
-        index.push_str(&include_generated(folder, &model.name));
+        let spec_file = format!("specs/{}.sinew", model.name());
+        index.push_str(&include_generated(folder, model.name()));
         index.push_str(&net_impl(
             &model,
             SpecFile::InOutDir(&spec_file),

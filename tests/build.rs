@@ -7,8 +7,9 @@
 //! - for each of them an `impl sinew_harness::Net` (the glue of `sinew_harness::glue`) and
 //!   visitor functions that run a generic test over every model.
 
-use sinew::emit::{BakedParams, EmitOptions};
+use sinew::emit::EmitOptions;
 use sinew::ir::Model;
+use sinew::weights::{FlatLayer, Standardization, Weights};
 use sinew_harness::files::specs_in;
 use sinew_harness::glue::{for_each, include_generated, net_impl, SpecFile};
 use std::error::Error;
@@ -51,7 +52,7 @@ fn main() -> Result<(), Box<dyn Error>> {
     let mut models = Vec::new();
     for (path, rel) in &all {
         let model = model_of(path)?;
-        index.push_str(&include_generated("", &model.name));
+        index.push_str(&include_generated("", model.name()));
         index.push_str(&net_impl(&model, SpecFile::InManifestDir(rel), false));
         models.push((model, rel.clone()));
     }
@@ -59,7 +60,7 @@ fn main() -> Result<(), Box<dyn Error>> {
     let unrolled_dir = out_dir.join("unrolled");
     let unrolled: Vec<&(Model, String)> = models
         .iter()
-        .filter(|(m, _)| UNROLLED.contains(&m.name.as_str()))
+        .filter(|(m, _)| UNROLLED.contains(&m.name()))
         .collect();
     sinew::Builder::new()
         .specs(
@@ -79,7 +80,7 @@ fn main() -> Result<(), Box<dyn Error>> {
         "/// The small models again, with every matrix kernel unrolled.\npub mod unrolled {\n",
     );
     for (m, rel) in &unrolled {
-        index.push_str(&include_generated("unrolled", &m.name));
+        index.push_str(&include_generated("unrolled", m.name()));
         index.push_str(&net_impl(m, SpecFile::InManifestDir(rel), true));
     }
     index.push_str("}\n");
@@ -87,21 +88,17 @@ fn main() -> Result<(), Box<dyn Error>> {
     let baked_dir = out_dir.join("baked");
     std::fs::create_dir_all(&baked_dir)?;
     index.push_str("/// Models with baked weights (`TRAINED`), values from `baked_values.rs`.\npub mod baked {\n");
-    for (m, rel) in models
-        .iter()
-        .filter(|(m, _)| BAKED.contains(&m.name.as_str()))
-    {
+    for (m, rel) in models.iter().filter(|(m, _)| BAKED.contains(&m.name())) {
         let options = EmitOptions {
             spec_name: file_name(Path::new(rel)),
             unroll_below: 0,
-            weights: Some(baked_params(m)),
         };
-        let code = sinew::emit::generate(m, &options);
+        let code = sinew::emit::generate_trained(&baked_params(m).fit(m)?, &options);
         sinew::fsutil::write_if_changed(
-            &baked_dir.join(format!("{}.rs", m.name)),
+            &baked_dir.join(format!("{}.rs", m.name())),
             code.as_bytes(),
         )?;
-        index.push_str(&include_generated("baked", &m.name));
+        index.push_str(&include_generated("baked", m.name()));
         index.push_str(&net_impl(m, SpecFile::InManifestDir(rel), false));
     }
     index.push_str("}\n");
@@ -109,14 +106,14 @@ fn main() -> Result<(), Box<dyn Error>> {
     index.push_str(&for_each(
         "Runs `v` over every model (samples and fixtures).",
         "for_each_model",
-        models.iter().map(|(m, _)| m.name.as_str()),
+        models.iter().map(|(m, _)| m.name()),
     ));
     index.push_str("/// Runs `v` over every (rolled, unrolled) pair of the same model.\npub fn for_each_unrolled_pair(v: &mut impl ::sinew_harness::VisitPair) {\n");
     for (m, _) in &unrolled {
         let _ = writeln!(
             index,
             "    v.visit::<{0}::Params, unrolled::{0}::Params>();",
-            m.name
+            m.name()
         );
     }
     index.push_str("}\n");
@@ -137,23 +134,23 @@ fn model_of(path: &Path) -> Result<Model, Box<dyn Error>> {
         .ok_or_else(|| format!("{} does not check", path.display()).into())
 }
 
-fn baked_params(m: &Model) -> BakedParams {
+fn baked_params(m: &Model) -> Weights {
     let layers = m
-        .layers
+        .layers()
         .iter()
         .enumerate()
         .map(|(i, l)| {
-            let w = (0..l.width * l.fan_in)
+            let weights = (0..l.width * l.fan_in)
                 .map(|k| baked_value(2 * i, k))
                 .collect();
-            let b = (0..l.width).map(|k| baked_value(2 * i + 1, k)).collect();
-            (w, b)
+            let bias = (0..l.width).map(|k| baked_value(2 * i + 1, k)).collect();
+            FlatLayer { weights, bias }
         })
         .collect();
-    let scaling = |f: fn(usize) -> f64| (0..m.input.width).map(f).collect::<Vec<f64>>();
-    BakedParams {
-        layers,
-        mean: m.input.standardize.then(|| scaling(baked_mean)),
-        std: m.input.standardize.then(|| scaling(baked_std)),
-    }
+    let scaling = |f: fn(usize) -> f64| (0..m.input().width).map(f).collect::<Vec<f64>>();
+    let standardization = m.input().standardize.then(|| Standardization {
+        mean: scaling(baked_mean),
+        std: scaling(baked_std),
+    });
+    Weights::from_params(m, layers, standardization, None)
 }

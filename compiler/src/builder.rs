@@ -298,21 +298,20 @@ impl Builder {
                 second: path.clone(),
             });
         }
-        let weights = match &entry.weights {
-            Some(w) => Some(
-                Weights::load_checked(w, &model).map_err(|e| BuildError::Weights {
-                    spec: path.clone(),
-                    message: e.to_string(),
-                })?,
-            ),
-            None => None,
-        };
         let options = EmitOptions {
             spec_name: spec_display_name(path),
             unroll_below: self.unroll_below,
-            weights: weights.as_ref().map(Weights::baked),
         };
-        let code = emit::generate(&model, &options);
+        let code = match &entry.weights {
+            Some(w) => {
+                let trained = Weights::load_fitted(w, &model).map_err(|e| BuildError::Weights {
+                    spec: path.clone(),
+                    message: e.to_string(),
+                })?;
+                emit::generate_trained(&trained, &options)
+            }
+            None => emit::generate(&model, &options),
+        };
         let out = out_dir.join(file_name);
         fsutil::write_if_changed(&out, code.as_bytes()).map_err(|source| BuildError::Write {
             path: out.clone(),

@@ -171,16 +171,17 @@ pub fn emit(
     weights: Option<&Path>,
     unroll_below: usize,
 ) -> Result<String, CommandError> {
-    let baked = load_weights(model, weights)?.as_ref().map(Weights::baked);
     let options = EmitOptions {
-        weights: baked,
         spec_name: spec
             .file_name()
             .map(|f| f.to_string_lossy().into_owned())
             .unwrap_or_else(|| spec.display().to_string()),
         unroll_below,
     };
-    Ok(emit::generate(model, &options))
+    Ok(match weights {
+        Some(path) => emit::generate_trained(&Weights::load_fitted(path, model)?, &options),
+        None => emit::generate(model, &options),
+    })
 }
 
 /// Writes `bytes` to `path` unless it already holds them ([`fsutil::write_if_changed`]),

@@ -42,24 +42,9 @@
 //! # Examples
 //! ```
 //! use sinew::data::read_csv_str;
-//! use sinew::ir::*;
-//!
-//! let model = Model {
-//!     name: "valve_gate".into(),
-//!     scalar: Scalar::F64,
-//!     input: Input { name: "switches".into(), width: 2, standardize: false },
-//!     layers: vec![
-//!         Layer { name: "hidden".into(), width: 3, fan_in: 2, activation: Activation::Tanh },
-//!         Layer { name: "open".into(), width: 1, fan_in: 3, activation: Activation::Sigmoid },
-//!     ],
-//!     classes: Some(vec!["shut".into(), "open".into()]),
-//!     loss: Loss::CrossEntropy,
-//!     penalty: Penalty::None,
-//!     init: Init::Glorot,
-//!     seed: 3,
-//!     train: defaults::TRAIN,
-//!     budget: Budget::default(),
-//! };
+//! let spec = "model valve_gate\nscalar f64\ninput switches 2\nlayer hidden 3 tanh\n\
+//!             output open 1 sigmoid classes shut, open\nloss cross_entropy\n";
+//! let model = sinew::check_source(spec).model.expect("a valid spec");
 //! let ds = read_csv_str("gate.csv", "a,b,label\n0,1,open\n1,1,0\n", &model).unwrap();
 //! assert_eq!(ds.targets, vec![vec![1.0], vec![0.0]]);
 //! assert_eq!(ds.labels, Some(vec![1, 0]));

@@ -60,9 +60,9 @@ pub fn blob_len(model: &Model) -> usize {
 /// The values of `weights` in blob order, as stored in the weights file (`f64`).
 pub fn values(weights: &Weights) -> Vec<f64> {
     let mut v = Vec::new();
-    for (w, b) in weights.layers_flat() {
-        v.extend(w);
-        v.extend(b);
+    for l in weights.layers_flat() {
+        v.extend(l.weights);
+        v.extend(l.bias);
     }
     if let Some(s) = &weights.standardization {
         v.extend(&s.mean);

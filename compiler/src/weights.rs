@@ -100,6 +100,24 @@ pub struct LayerWeights {
     pub bias: Vec<f64>,
 }
 
+/// One dense layer's parameters in the flat form the engine and the emitter take: `weights` is
+/// `W` row-major (`width * fan_in` values, row `j` holding the weights into unit `j`), `bias`
+/// has `width` values.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct FlatLayer {
+    /// `W` row-major.
+    pub weights: Vec<f64>,
+    /// `b`.
+    pub bias: Vec<f64>,
+}
+
+impl FlatLayer {
+    /// The layer with `W` row-major `weights` and `bias`.
+    pub fn new(weights: Vec<f64>, bias: Vec<f64>) -> FlatLayer {
+        FlatLayer { weights, bias }
+    }
+}
+
 /// Per-feature input scaling: the model computes `(x - mean) / std`.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Standardization {
@@ -130,23 +148,12 @@ pub struct Provenance {
 ///
 /// # Examples
 /// ```
-/// use sinew::ir::*;
-/// use sinew::weights::Weights;
+/// use sinew::weights::{FlatLayer, Weights};
 ///
-/// let model = Model {
-///     name: "tiny".into(),
-///     scalar: Scalar::F64,
-///     input: Input { name: "x".into(), width: 2, standardize: false },
-///     layers: vec![Layer { name: "y".into(), width: 1, fan_in: 2, activation: Activation::Identity }],
-///     classes: None,
-///     loss: Loss::SquaredError,
-///     penalty: Penalty::None,
-///     init: Init::Glorot,
-///     seed: 0,
-///     train: defaults::TRAIN,
-///     budget: Budget::default(),
-/// };
-/// let w = Weights::from_params(&model, vec![(vec![0.1, -0.0], vec![1e-300])], None, None);
+/// let spec = "model tiny\nscalar f64\ninput x 2\noutput y 1 identity\nloss squared_error\n";
+/// let model = sinew::check_source(spec).model.expect("a valid spec");
+/// let layer = FlatLayer { weights: vec![0.1, -0.0], bias: vec![1e-300] };
+/// let w = Weights::from_params(&model, vec![layer], None, None);
 /// let back = Weights::from_json("w.json", &w.to_json()).unwrap();
 /// back.check_against(&model).unwrap();
 /// assert_eq!(back.layers[0].weights[0][1].to_bits(), (-0.0f64).to_bits());
@@ -187,6 +194,14 @@ pub struct WeightsError {
 }
 
 impl WeightsError {
+    /// The same error, naming `path` as its file.
+    fn in_file(self, path: &Path) -> WeightsError {
+        WeightsError {
+            file: path.display().to_string(),
+            ..self
+        }
+    }
+
     fn new(code: Code, file: &str, message: impl Into<String>) -> Self {
         WeightsError {
             code,
@@ -235,9 +250,7 @@ pub fn data_hash(bytes: &[u8]) -> String {
 }
 
 impl Weights {
-    /// Builds the weights of `model` from per-layer parameters `(W row-major, b)` in layer order,
-    /// the engine's layout: `W` has `width * fan_in` values, row `j` holding the weights into
-    /// unit `j`.
+    /// Builds the weights of `model` from per-layer [`FlatLayer`]s in layer order.
     ///
     /// For an `f32` model every value is rounded to `f32` (a no-op for values computed in `f32`).
     /// Shapes are taken as given (a short last row keeps its length), so a mismatch is reported
@@ -245,8 +258,8 @@ impl Weights {
     /// [`Weights::save`].
     pub fn from_params(
         model: &Model,
-        layers: Vec<(Vec<f64>, Vec<f64>)>,
-        standardization: Option<(Vec<f64>, Vec<f64>)>,
+        layers: Vec<FlatLayer>,
+        standardization: Option<Standardization>,
         provenance: Option<Provenance>,
     ) -> Weights {
         let round = |v: Vec<f64>| -> Vec<f64> {
@@ -258,40 +271,51 @@ impl Weights {
         let layers = layers
             .into_iter()
             .enumerate()
-            .map(|(i, (w, b))| {
-                let (name, fan_in) = match model.layers.get(i) {
-                    Some(l) => (l.name.clone(), l.fan_in),
-                    None => (format!("layer{}", i + 1), w.len()),
-                };
-                let weights = round(w)
-                    .chunks(fan_in.max(1))
-                    .map(<[f64]>::to_vec)
-                    .collect();
-                LayerWeights {
-                    name,
-                    weights,
-                    bias: round(b),
-                }
-            })
+            .map(
+                |(
+                    i,
+                    FlatLayer {
+                        weights: w,
+                        bias: b,
+                    },
+                )| {
+                    let (name, fan_in) = match model.layers.get(i) {
+                        Some(l) => (l.name.clone(), l.fan_in),
+                        None => (format!("layer{}", i + 1), w.len()),
+                    };
+                    let weights = round(w)
+                        .chunks(fan_in.max(1))
+                        .map(<[f64]>::to_vec)
+                        .collect();
+                    LayerWeights {
+                        name,
+                        weights,
+                        bias: round(b),
+                    }
+                },
+            )
             .collect();
         Weights {
             model: model.name.clone(),
             fingerprint: model.fingerprint(),
             scalar: model.scalar,
             layers,
-            standardization: standardization.map(|(mean, std)| Standardization {
-                mean: round(mean),
-                std: round(std),
+            standardization: standardization.map(|s| Standardization {
+                mean: round(s.mean),
+                std: round(s.std),
             }),
             provenance,
         }
     }
 
-    /// Per-layer `(W row-major, b)`, the layout [`Weights::from_params`] takes.
-    pub fn layers_flat(&self) -> Vec<(Vec<f64>, Vec<f64>)> {
+    /// Per-layer [`FlatLayer`]s, the layout [`Weights::from_params`] takes.
+    pub fn layers_flat(&self) -> Vec<FlatLayer> {
         self.layers
             .iter()
-            .map(|l| (l.weights.concat(), l.bias.clone()))
+            .map(|l| FlatLayer {
+                weights: l.weights.concat(),
+                bias: l.bias.clone(),
+            })
             .collect()
     }
 
@@ -493,21 +517,28 @@ impl Weights {
     /// [`Weights::load`], then [`Weights::check_against`] `model`, with errors naming the file.
     pub fn load_checked(path: &Path, model: &Model) -> Result<Weights, WeightsError> {
         let w = Weights::load(path)?;
-        w.check_against(model).map_err(|e| WeightsError {
-            file: path.display().to_string(),
-            ..e
-        })?;
+        w.check_against(model).map_err(|e| e.in_file(path))?;
         Ok(w)
     }
 
-    /// The parameters in the form the emitter bakes into `TRAINED`: per layer the row-major
-    /// weights and the biases ([`Weights::layers_flat`]), and the standardization statistics.
-    pub fn baked(&self) -> crate::emit::BakedParams {
-        crate::emit::BakedParams {
+    /// [`Weights::load`], then [`Weights::fit`] `model`, with errors naming the file.
+    pub fn load_fitted<'m>(
+        path: &Path,
+        model: &'m Model,
+    ) -> Result<crate::emit::Trained<'m>, WeightsError> {
+        Weights::load(path)?.fit(model).map_err(|e| e.in_file(path))
+    }
+
+    /// The values checked against `model` ([`Weights::check_against`]) and tied to it, ready to
+    /// bake into the generated `TRAINED` ([`crate::emit::generate_trained`]). This is the only way
+    /// to make a [`crate::emit::Trained`], so the emitter never checks shapes again.
+    pub fn fit<'m>(&self, model: &'m Model) -> Result<crate::emit::Trained<'m>, WeightsError> {
+        self.check_against(model)?;
+        Ok(crate::emit::Trained {
+            model,
             layers: self.layers_flat(),
-            mean: self.standardization.as_ref().map(|s| s.mean.clone()),
-            std: self.standardization.as_ref().map(|s| s.std.clone()),
-        }
+            standardization: self.standardization.clone(),
+        })
     }
 
     /// Writes [`Weights::to_json`] to `path` atomically ([`fsutil::write_atomic`]): the text goes

@@ -22,8 +22,8 @@ fn baked_weights_appear_with_exact_bit_patterns() {
     let code = std::fs::read_to_string(&out[0]).unwrap();
     assert!(code.contains("pub static TRAINED: Params"), "{code}");
     // Every weight of the file appears as its f64 bit pattern.
-    for (wts, bias) in w.layers_flat() {
-        for v in wts.iter().chain(&bias) {
+    for l in w.layers_flat() {
+        for v in l.weights.iter().chain(&l.bias) {
             let pat = format!("{:#x}", v.to_bits());
             let plain = format!("{:x}", v.to_bits());
             assert!(

@@ -225,24 +225,24 @@ fn four_sigmoid_layers_in_a_row_are_fine() {
 fn defaults_come_from_the_ir() {
     let src = format!("{BASE}output state 3 softmax\nloss cross_entropy\n");
     let model = sinew::check_source(&src).model.expect("valid");
-    assert_eq!(model.scalar, sinew::ir::defaults::SCALAR);
-    assert_eq!(model.penalty, sinew::ir::defaults::PENALTY);
-    assert_eq!(model.init, sinew::ir::defaults::INIT);
-    assert_eq!(model.seed, sinew::ir::defaults::SEED);
-    assert_eq!(model.train, sinew::ir::defaults::TRAIN);
-    assert_eq!(model.budget, sinew::ir::Budget::default());
+    assert_eq!(model.scalar(), sinew::ir::defaults::SCALAR);
+    assert_eq!(model.penalty(), sinew::ir::defaults::PENALTY);
+    assert_eq!(model.init(), sinew::ir::defaults::INIT);
+    assert_eq!(model.seed(), sinew::ir::defaults::SEED);
+    assert_eq!(model.train(), sinew::ir::defaults::TRAIN);
+    assert_eq!(model.budget(), sinew::ir::Budget::default());
 
     let src = format!("{BASE}output state 3 softmax\nloss cross_entropy\ntrain sgd rate 0.1\n");
     let model = sinew::check_source(&src).model.expect("valid");
     assert_eq!(
-        model.train.optimizer,
+        model.train().optimizer,
         sinew::ir::Optimizer::Sgd {
             rate: 0.1,
             momentum: sinew::ir::defaults::MOMENTUM
         }
     );
-    assert_eq!(model.train.batch, sinew::ir::defaults::TRAIN.batch);
-    assert_eq!(model.train.epochs, sinew::ir::defaults::TRAIN.epochs);
+    assert_eq!(model.train().batch, sinew::ir::defaults::TRAIN.batch);
+    assert_eq!(model.train().epochs, sinew::ir::defaults::TRAIN.epochs);
 }
 
 #[test]
@@ -254,14 +254,14 @@ fn numbers_in_exponent_form_and_every_option() {
     );
     let m = sinew::check_source(&src).model.expect("valid");
     assert_eq!(
-        m.layers[0].activation,
+        m.layers()[0].activation,
         sinew::ir::Activation::LeakyRelu(0.01)
     );
-    assert_eq!(m.penalty, sinew::ir::Penalty::L2(5e-4));
-    assert_eq!(m.init, sinew::ir::Init::Uniform { eps: 0.5 });
-    assert_eq!(m.seed, u64::MAX);
+    assert_eq!(m.penalty(), sinew::ir::Penalty::L2(5e-4));
+    assert_eq!(m.init(), sinew::ir::Init::Uniform { eps: 0.5 });
+    assert_eq!(m.seed(), u64::MAX);
     assert_eq!(
-        m.train.optimizer,
+        m.train().optimizer,
         sinew::ir::Optimizer::Adam {
             rate: 1e-3,
             beta1: 0.8,
@@ -269,9 +269,9 @@ fn numbers_in_exponent_form_and_every_option() {
             epsilon: sinew::ir::defaults::ADAM_EPSILON
         }
     );
-    assert_eq!((m.train.batch, m.train.epochs), (8, 3));
+    assert_eq!((m.train().batch, m.train().epochs), (8, 3));
     assert_eq!(
-        m.budget,
+        m.budget(),
         sinew::ir::Budget {
             flash: None,
             ram: Some(1024 * 1024)

@@ -9,6 +9,7 @@
 
 use sinew::engine::{self, gradcheck, Scratch};
 use sinew::ir::Model;
+use sinew::weights::{FlatLayer, Standardization};
 use sinew_runtime::Real;
 
 fn model(src: &str) -> Model {
@@ -19,25 +20,31 @@ fn model(src: &str) -> Model {
 
 /// Parameters with every weight `w` and every bias `b`.
 fn constant<T: Real>(m: &Model, w: f64, b: f64) -> engine::Params<T> {
-    let layers: Vec<(Vec<f64>, Vec<f64>)> = m
-        .layers
+    let layers: Vec<FlatLayer> = m
+        .layers()
         .iter()
-        .map(|l| (vec![w; l.width * l.fan_in], vec![b; l.width]))
+        .map(|l| FlatLayer {
+            weights: vec![w; l.width * l.fan_in],
+            bias: vec![b; l.width],
+        })
         .collect();
     engine::Params::from_f64(&layers, None)
 }
 
 /// Alternating-sign weights `+-w` (so that sums of inputs do not all add up) and zero biases.
 fn alternating<T: Real>(m: &Model, w: f64) -> engine::Params<T> {
-    let layers: Vec<(Vec<f64>, Vec<f64>)> = m
-        .layers
+    let layers: Vec<FlatLayer> = m
+        .layers()
         .iter()
         .map(|l| {
             let n = l.width * l.fan_in;
-            let ws = (0..n)
+            let weights = (0..n)
                 .map(|k| if k % 3 == 1 { -w } else { w * 0.5 })
                 .collect();
-            (ws, vec![0.0; l.width])
+            FlatLayer {
+                weights,
+                bias: vec![0.0; l.width],
+            }
         })
         .collect();
     engine::Params::from_f64(&layers, None)
@@ -233,8 +240,15 @@ fn nan_in_an_input_makes_every_output_nan_and_the_class_the_first() {
     let m = model(
         "model s\nscalar f64\ninput x 2 standardize\noutput y 1 sigmoid\nloss cross_entropy\n",
     );
-    let layers = vec![(vec![1.0, 1.0], vec![0.0])];
-    let p = engine::Params::<f64>::from_f64(&layers, Some((&[0.0, 0.0], &[1.0, 1.0])));
+    let layers = vec![FlatLayer {
+        weights: vec![1.0, 1.0],
+        bias: vec![0.0],
+    }];
+    let st = Standardization {
+        mean: vec![0.0, 0.0],
+        std: vec![1.0, 1.0],
+    };
+    let p = engine::Params::<f64>::from_f64(&layers, Some(&st));
     let (o, loss, _) = run::<f64>(&m, &p, &[f64::NAN, 0.0], &[1.0]);
     assert!(o[0].is_nan() && loss.is_nan());
 }
@@ -278,7 +292,7 @@ fn saturated_sigmoid_and_softmax_keep_cost_and_gradient_finite() {
         for k in 0..3 {
             w[4 * k] = big;
         }
-        let layers = vec![(w, vec![0.0; 3])];
+        let layers = vec![FlatLayer::new(w, vec![0.0; 3])];
         let x = [1.0, -1.0, 0.0];
         for (y, want) in [([0.0, 1.0, 0.0], 2.0 * big), ([1.0, 0.0, 0.0], 0.0)] {
             let (o, loss, g) = if scalar == "f32" {
@@ -312,8 +326,8 @@ fn dead_relu_units_get_exactly_zero_gradient_and_stay_put() {
     );
     // Unit 0 alive (bias +1), units 1 and 2 dead (bias -10; unit 2 exactly at z = 0 for x = 0).
     let layers = vec![
-        (vec![0.5, 0.5, 0.5, 0.5, 0.0, 0.0], vec![1.0, -10.0, 0.0]),
-        (vec![1.0, -1.0, 2.0], vec![0.1]),
+        FlatLayer::new(vec![0.5, 0.5, 0.5, 0.5, 0.0, 0.0], vec![1.0, -10.0, 0.0]),
+        FlatLayer::new(vec![1.0, -1.0, 2.0], vec![0.1]),
     ];
     let p = engine::Params::<f64>::from_f64(&layers, None);
     let xs = [0.3, -0.2, 0.0, 0.0, 1.0, 1.0];
@@ -392,7 +406,7 @@ fn a_one_unit_cross_entropy_output_is_logistic_regression() {
     );
     let net = engine::Net::<f64>::new(&m);
     let mut s = Scratch::new(&m);
-    let layers = vec![(vec![1.5, -0.75], vec![0.25])];
+    let layers = vec![FlatLayer::new(vec![1.5, -0.75], vec![0.25])];
     let p = engine::Params::<f64>::from_f64(&layers, None);
     for (x, y) in [
         ([0.3, 0.8], 1.0),

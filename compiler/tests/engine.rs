@@ -24,7 +24,7 @@ loss cross_entropy\npenalty l2 0.001\ninit glorot seed 5\n";
 /// Drawn samples (inputs uniform on [-1, 1], one-hot targets), row-major.
 fn drawn(model: &Model, m: usize, seed: u64) -> (Vec<f64>, Vec<f64>) {
     let mut rng = SplitMix64::new(seed);
-    let (n_in, n_out) = (model.input.width, model.output().width);
+    let (n_in, n_out) = (model.input().width, model.output().width);
     let mut xs = Vec::new();
     let mut ys = Vec::new();
     for _ in 0..m {
@@ -94,7 +94,7 @@ fn reused_batch_buffers_give_the_sequential_bits_for_any_size_and_shape() {
         let m = &models[which];
         let net = Net::<f32>::new(m);
         let mut p = Params::<f32>::init(m, 3 + k as u64);
-        if m.input.standardize {
+        if m.input().standardize {
             p.mean
                 .iter_mut()
                 .enumerate()
@@ -138,9 +138,9 @@ fn gradient_matches_central_differences_for_every_activation_and_penalty() {
     for src in specs {
         let m = model(src);
         let mut p = Params::<f64>::init(&m, 3);
-        if m.input.standardize {
-            p.mean = vec![0.1; m.input.width];
-            p.std = vec![0.7; m.input.width];
+        if m.input().standardize {
+            p.mean = vec![0.1; m.input().width];
+            p.std = vec![0.7; m.input().width];
         }
         // Move every weight away from 0 so l1's kink at 0 is not straddled by the step.
         for l in &mut p.layers {
@@ -167,9 +167,13 @@ fn gradient_matches_central_differences_for_every_activation_and_penalty() {
         let checks = gradcheck::check(&m, &p, &xs, &ys, &opts);
         for c in checks {
             assert_eq!(
-                c.failures, 0,
+                c.failures,
+                0,
                 "{}: layer {} worst {} at {}",
-                m.name, c.layer, c.worst_relative_error, c.worst_at
+                m.name(),
+                c.layer,
+                c.worst_relative_error,
+                c.worst_at
             );
             assert_eq!(c.checked, c.total);
         }

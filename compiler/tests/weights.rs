@@ -2,7 +2,7 @@
 
 use proptest::prelude::*;
 use sinew::ir::Model;
-use sinew::weights::{data_hash, Provenance, Weights};
+use sinew::weights::{data_hash, FlatLayer, Provenance, Standardization, Weights};
 use std::fs;
 use std::path::{Path, PathBuf};
 
@@ -58,23 +58,23 @@ fn entries(dir: &Path) -> Vec<String> {
 }
 
 /// Per-layer parameters of `model` drawn from `values`, cycling.
-fn params_from(model: &Model, values: &[f64]) -> Vec<(Vec<f64>, Vec<f64>)> {
+fn params_from(model: &Model, values: &[f64]) -> Vec<FlatLayer> {
     let mut it = values.iter().copied().cycle();
     model
-        .layers
+        .layers()
         .iter()
         .map(|l| {
-            let w = (&mut it).take(l.width * l.fan_in).collect();
-            let b = (&mut it).take(l.width).collect();
-            (w, b)
+            let weights = (&mut it).take(l.width * l.fan_in).collect();
+            let bias = (&mut it).take(l.width).collect();
+            FlatLayer { weights, bias }
         })
         .collect()
 }
 
-fn bits(layers: &[(Vec<f64>, Vec<f64>)]) -> Vec<u64> {
+fn bits(layers: &[FlatLayer]) -> Vec<u64> {
     layers
         .iter()
-        .flat_map(|(w, b)| w.iter().chain(b))
+        .flat_map(|l| l.weights.iter().chain(&l.bias))
         .map(|v| v.to_bits())
         .collect()
 }
@@ -138,7 +138,10 @@ fn f32_values_are_stored_as_their_exact_widening_and_round_trip_bitwise() {
     let w = Weights::from_params(
         &model,
         layers.clone(),
-        Some((mean.clone(), std.clone())),
+        Some(Standardization {
+            mean: mean.clone(),
+            std: std.clone(),
+        }),
         None,
     );
     let text = w.to_json();
@@ -164,7 +167,10 @@ fn from_params_rounds_f64_values_to_f32_for_an_f32_model() {
     let w = Weights::from_params(
         &model,
         params_from(&model, &[0.1]),
-        Some((vec![0.1; 6], vec![1.0; 6])),
+        Some(Standardization {
+            mean: vec![0.1; 6],
+            std: vec![1.0; 6],
+        }),
         None,
     );
     assert_eq!(w.layers[0].weights[0][0], f64::from(0.1f32));
@@ -177,7 +183,10 @@ fn a_hand_typed_value_in_an_f32_file_is_rounded_to_the_nearest_f32() {
     let w = Weights::from_params(
         &model,
         params_from(&model, &[0.5]),
-        Some((vec![0.0; 6], vec![1.0; 6])),
+        Some(Standardization {
+            mean: vec![0.0; 6],
+            std: vec![1.0; 6],
+        }),
         None,
     );
     let text = w.to_json().replacen("0.5", "0.1", 1);
@@ -207,11 +216,14 @@ proptest! {
 fn the_json_form() {
     let model = sample("valve_gate");
     let layers = vec![
-        (
-            vec![0.5, -1.25, 2.0, 0.125, -0.75, 1.0],
-            vec![0.0, 0.1, -0.2],
-        ),
-        (vec![1.5, -2.0, 0.25], vec![0.3]),
+        FlatLayer {
+            weights: vec![0.5, -1.25, 2.0, 0.125, -0.75, 1.0],
+            bias: vec![0.0, 0.1, -0.2],
+        },
+        FlatLayer {
+            weights: vec![1.5, -2.0, 0.25],
+            bias: vec![0.3],
+        },
     ];
     let provenance = Provenance {
         optimizer: "sgd".into(),
@@ -248,10 +260,10 @@ fn data_hash_is_fnv1a_64_in_hex() {
 }
 
 fn weights_for(model: &Model) -> Weights {
-    let st = model
-        .input
-        .standardize
-        .then(|| (vec![0.0; model.input.width], vec![1.0; model.input.width]));
+    let st = model.input().standardize.then(|| Standardization {
+        mean: vec![0.0; model.input().width],
+        std: vec![1.0; model.input().width],
+    });
     Weights::from_params(model, params_from(model, &[0.25, -0.5]), st, None)
 }
 

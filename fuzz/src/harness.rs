@@ -10,7 +10,7 @@ use sinew::emit::{self, EmitOptions};
 use sinew::engine::{self, Scratch};
 use sinew::ir::Model;
 use sinew::pack;
-use sinew::weights::Weights;
+use sinew::weights::{FlatLayer, Standardization, Weights};
 use sinew_runtime::blob;
 
 /// Models above this many parameters are checked, reported and dumped, but not emitted or
@@ -55,20 +55,27 @@ fn valid_model(model: &Model) {
     if model.parameters() > EMIT_LIMIT {
         return;
     }
-    let baked = sinew::workflow::init(model, None).baked();
-    for (unroll_below, weights) in [(0, None), (64, None), (0, Some(baked))] {
+    let init = sinew::workflow::init(model, None);
+    let trained = match init.fit(model) {
+        Ok(t) => t,
+        Err(e) => panic!("the initial weights of a checked model do not fit it: {e}"),
+    };
+    for (unroll_below, baked) in [(0, false), (64, false), (0, true)] {
         let options = EmitOptions {
             spec_name: "fuzz.sinew".to_string(),
             unroll_below,
-            weights,
         };
-        let code = emit::generate(model, &options);
+        let code = if baked {
+            emit::generate_trained(&trained, &options)
+        } else {
+            emit::generate(model, &options)
+        };
         assert!(
             !code.contains("compile_error!"),
             "the emitter failed on a checked model:\n{code}"
         );
     }
-    match model.scalar {
+    match model.scalar() {
         sinew::ir::Scalar::F32 => engine_pass::<f32>(model),
         sinew::ir::Scalar::F64 => engine_pass::<f64>(model),
     }
@@ -77,9 +84,9 @@ fn valid_model(model: &Model) {
 /// Initialises the model, predicts, back-propagates one sample and takes one trainer step.
 fn engine_pass<T: sinew_runtime::Real + Send + Sync>(model: &Model) {
     let net = engine::Net::<T>::new(model);
-    let params = engine::Params::<T>::init(model, model.seed);
+    let params = engine::Params::<T>::init(model, model.seed());
     let mut s = Scratch::new(model);
-    let x = vec![T::from_f64(0.5); model.input.width];
+    let x = vec![T::from_f64(0.5); model.input().width];
     let y = vec![T::ZERO; model.output().width];
     let mut out = vec![T::ZERO; model.output().width];
     net.predict(&params, &x, &mut s, &mut out);
@@ -146,14 +153,10 @@ fn weights(text: &str, models: &[Model]) {
     for model in models {
         if w.check_against(model).is_ok() {
             let layers = w.layers_flat();
-            let scaling = w
-                .standardization
-                .as_ref()
-                .map(|s| (s.mean.as_slice(), s.std.as_slice()));
-            let p = engine::Params::<f64>::from_f64(&layers, scaling);
+            let p = engine::Params::<f64>::from_f64(&layers, w.standardization.as_ref());
             let net = engine::Net::<f64>::new(model);
             let mut s = Scratch::new(model);
-            let x = vec![1.0; model.input.width];
+            let x = vec![1.0; model.input().width];
             let mut out = vec![0.0; model.output().width];
             net.predict(&p, &x, &mut s, &mut out);
         }
@@ -167,7 +170,7 @@ fn csv(text: &str, model: &Model) {
     assert!(!ds.is_empty());
     assert_eq!(ds.inputs.len(), ds.targets.len());
     for (x, y) in ds.inputs.iter().zip(&ds.targets) {
-        assert_eq!(x.len(), model.input.width);
+        assert_eq!(x.len(), model.input().width);
         assert_eq!(y.len(), model.output().width);
         assert!(x.iter().chain(y).all(|v| v.is_finite()));
     }
@@ -198,20 +201,20 @@ fn blob(bytes: &[u8], models: &[Model]) {
             // Through the weights form and `sinew pack`'s encoder.
             let mut at = 0;
             let mut layers = Vec::new();
-            for l in &model.layers {
+            for l in model.layers() {
                 let n = l.width * l.fan_in;
-                layers.push((
-                    values[at..at + n].to_vec(),
-                    values[at + n..at + n + l.width].to_vec(),
-                ));
+                layers.push(FlatLayer {
+                    weights: values[at..at + n].to_vec(),
+                    bias: values[at + n..at + n + l.width].to_vec(),
+                });
                 at += n + l.width;
             }
-            let scaling = model.input.standardize.then(|| {
-                let w = model.input.width;
-                (
-                    values[at..at + w].to_vec(),
-                    values[at + w..at + 2 * w].to_vec(),
-                )
+            let scaling = model.input().standardize.then(|| {
+                let w = model.input().width;
+                Standardization {
+                    mean: values[at..at + w].to_vec(),
+                    std: values[at + w..at + 2 * w].to_vec(),
+                }
             });
             let w = Weights::from_params(model, layers, scaling, None);
             if let Ok(again) = pack::encode(model, &w) {

@@ -52,7 +52,7 @@ pub fn net_impl(model: &Model, spec: SpecFile<'_>, unrolled: bool) -> String {
         let _ = write!(each, "f(self.{w}.as_flattened()); f(&self.{b}); ");
         let _ = write!(each_grad, "f(g.{w}.as_flattened()); f(&g.{b}); ");
     }
-    let scaling = if model.input.standardize {
+    let scaling = if model.input().standardize {
         format!("f(&mut self.{MEAN_FIELD}, &mut self.{STD_FIELD});")
     } else {
         "let _ = f;".to_string()
@@ -61,7 +61,7 @@ pub fn net_impl(model: &Model, spec: SpecFile<'_>, unrolled: bool) -> String {
         SpecFile::InManifestDir(rel) => format!("env!(\"CARGO_MANIFEST_DIR\"), \"/{rel}\""),
         SpecFile::InOutDir(rel) => format!("env!(\"OUT_DIR\"), \"/{rel}\""),
     };
-    let name = &model.name;
+    let name = &model.name();
     format!(
         r#"
 impl ::sinew_harness::Net for {name}::Params {{

@@ -8,6 +8,7 @@ use crate::Net;
 use num_dual::{Dual64, DualNum};
 use sinew::engine;
 use sinew::ir::{Activation, Loss, Model, Penalty, Scalar};
+use sinew::weights::{FlatLayer, Standardization};
 use sinew_runtime::rng::SplitMix64;
 use sinew_runtime::Real;
 use std::vec::Vec;
@@ -27,7 +28,7 @@ pub fn model_of<M: Net>() -> Model {
 
 /// True when `M` computes in f64.
 pub fn is_f64<M: Net>() -> bool {
-    model_of::<M>().scalar == Scalar::F64
+    model_of::<M>().scalar() == Scalar::F64
 }
 
 /// Every trainable value in model order (see [`Net::arrays`]), as f64.
@@ -110,7 +111,7 @@ pub fn data<M: Net>(model: &Model, m: usize, seed: u64) -> (Vec<M::X>, Vec<M::Y>
             *v = M::Scalar::from_f64(rng.uniform(-2.0, 2.0));
         }
         let mut y = M::y_zero();
-        match (model.loss, out) {
+        match (model.loss(), out) {
             (Loss::CrossEntropy, Activation::Softmax) => {
                 let raw: Vec<f64> = y.as_ref().iter().map(|_| rng.uniform(0.05, 1.0)).collect();
                 let total: f64 = raw.iter().sum();
@@ -188,7 +189,7 @@ pub fn reference_cost<D: DualNum<f64> + Copy>(
             .iter()
             .enumerate()
             .map(|(i, &v)| {
-                if model.input.standardize {
+                if model.input().standardize {
                     D::from((v - mean[i]) / std[i])
                 } else {
                     D::from(v)
@@ -196,7 +197,7 @@ pub fn reference_cost<D: DualNum<f64> + Copy>(
             })
             .collect();
         let mut offset = 0;
-        for layer in &model.layers {
+        for layer in model.layers() {
             let n = layer.fan_in;
             let w = &params[offset..offset + layer.width * n];
             let b = &params[offset + layer.width * n..offset + layer.parameters()];
@@ -253,7 +254,7 @@ pub fn reference_cost<D: DualNum<f64> + Copy>(
             }
             a = z;
         }
-        let loss = match (model.loss, model.output().activation) {
+        let loss = match (model.loss(), model.output().activation) {
             (Loss::CrossEntropy, Activation::Softmax) => a
                 .iter()
                 .zip(y)
@@ -272,9 +273,9 @@ pub fn reference_cost<D: DualNum<f64> + Copy>(
     }
     let mut weights_sum = D::from(0.0);
     let mut offset = 0;
-    for layer in &model.layers {
+    for layer in model.layers() {
         for w in &params[offset..offset + layer.width * layer.fan_in] {
-            weights_sum += match model.penalty {
+            weights_sum += match model.penalty() {
                 Penalty::None => D::from(0.0),
                 Penalty::L2(_) => *w * *w,
                 Penalty::L1(_) => w.abs(),
@@ -282,7 +283,7 @@ pub fn reference_cost<D: DualNum<f64> + Copy>(
         }
         offset += layer.parameters();
     }
-    let penalty = match model.penalty {
+    let penalty = match model.penalty() {
         Penalty::None => D::from(0.0),
         Penalty::L2(l) => weights_sum * (l / (2.0 * m)),
         Penalty::L1(l) => weights_sum * (l / m),
@@ -333,18 +334,18 @@ pub fn engine_params<M: Net, T: Real>(model: &Model, p: &mut M) -> engine::Param
     let values = flat(p);
     let mut layers = Vec::new();
     let mut at = 0;
-    for l in &model.layers {
+    for l in model.layers() {
         let n = l.width * l.fan_in;
-        layers.push((
-            values[at..at + n].to_vec(),
-            values[at + n..at + n + l.width].to_vec(),
-        ));
+        layers.push(FlatLayer {
+            weights: values[at..at + n].to_vec(),
+            bias: values[at + n..at + n + l.width].to_vec(),
+        });
         at += n + l.width;
     }
     let (mean, std) = scaling(p);
     let scaling = model
-        .input
+        .input()
         .standardize
-        .then_some((mean.as_slice(), std.as_slice()));
-    engine::Params::from_f64(&layers, scaling)
+        .then_some(Standardization { mean, std });
+    engine::Params::from_f64(&layers, scaling.as_ref())
 }

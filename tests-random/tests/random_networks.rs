@@ -62,7 +62,7 @@ fn data<M: Net>(model: &Model, seed: u64) -> (Vec<M::X>, Vec<M::Y>) {
         let raw: Vec<f64> = (0..n).map(|_| rng.uniform(0.05, 1.0)).collect();
         let total: f64 = raw.iter().sum();
         for (v, r) in y.as_mut().iter_mut().zip(&raw) {
-            let t = match (model.loss, model.output().activation) {
+            let t = match (model.loss(), model.output().activation) {
                 (Loss::CrossEntropy, Activation::Softmax) => r / total,
                 (Loss::CrossEntropy, _) => *r,
                 (Loss::SquaredError, _) => 2.0 * r - 1.0,
@@ -84,14 +84,14 @@ fn concat_rows<S: Copy + Into<f64>, A: AsRef<[S]>>(v: &[A]) -> Vec<f64> {
 /// the runtime kernels).
 fn min_kink(model: &Model, p: &engine::Params<f64>, xs: &[f64]) -> f64 {
     let mut least = f64::INFINITY;
-    for x in xs.chunks_exact(model.input.width) {
+    for x in xs.chunks_exact(model.input().width) {
         let mut a = x.to_vec();
-        if model.input.standardize {
+        if model.input().standardize {
             let mut s = vec![0.0; a.len()];
             sinew_runtime::standardize(&a, &p.mean, &p.std, &mut s);
             a = s;
         }
-        for (l, lp) in model.layers.iter().zip(&p.layers) {
+        for (l, lp) in model.layers().iter().zip(&p.layers) {
             let mut z = vec![0.0; l.width];
             sinew_runtime::affine(&lp.weights, &lp.bias, &a, &mut z);
             if matches!(l.activation, Activation::Relu | Activation::LeakyRelu(_)) {
@@ -127,7 +127,7 @@ struct EndToEnd(Coverage);
 impl Visit for EndToEnd {
     fn visit<M: Net>(&mut self) {
         let model = model_of::<M>();
-        match model.scalar {
+        match model.scalar() {
             Scalar::F32 => bitwise::<M, f32>(&model),
             Scalar::F64 => bitwise::<M, f64>(&model),
         }
@@ -138,23 +138,23 @@ impl Visit for EndToEnd {
             c.hidden.insert(l.activation.keyword());
         }
         c.output.insert(model.output().activation.keyword());
-        c.losses.insert(model.loss.keyword());
-        c.penalties.insert(match model.penalty {
+        c.losses.insert(model.loss().keyword());
+        c.penalties.insert(match model.penalty() {
             Penalty::None => "none",
             Penalty::L2(_) => "l2",
             Penalty::L1(_) => "l1",
         });
-        c.scalars.insert(model.scalar.rust_name());
-        c.optimizers.insert(match model.train.optimizer {
+        c.scalars.insert(model.scalar().rust_name());
+        c.optimizers.insert(match model.train().optimizer {
             Optimizer::Sgd { momentum: 0.0, .. } => "sgd",
             Optimizer::Sgd { .. } => "momentum",
             Optimizer::Adam { .. } => "adam",
         });
-        c.standardized += usize::from(model.input.standardize);
+        c.standardized += usize::from(model.input().standardize);
         c.unrolled += usize::from(M::UNROLLED);
-        c.classes += usize::from(model.classes.is_some());
-        c.widths.insert(model.input.width);
-        c.widths.extend(model.layers.iter().map(|l| l.width));
+        c.classes += usize::from(model.classes().is_some());
+        c.widths.insert(model.input().width);
+        c.widths.extend(model.layers().iter().map(|l| l.width));
     }
 }
 
@@ -264,7 +264,7 @@ impl EndToEnd {
             self.0.worst = self.0.worst.max(layer.worst_absolute_error);
         }
         self.0.engine_checked += 1;
-        if model.scalar == Scalar::F64 {
+        if model.scalar() == Scalar::F64 {
             generated_gradient_check(model, &mut p, &xs, &ys);
             self.0.generated_checked += 1;
         }
@@ -278,7 +278,7 @@ fn generated_gradient_check<M: Net>(model: &Model, p: &mut M, xs: &[M::X], ys: &
     let w0 = flat(p);
     let mut rng = SplitMix64::new(37);
     let mut at = 0;
-    for l in &model.layers {
+    for l in model.layers() {
         let n = l.parameters();
         for _ in 0..GENERATED_PER_LAYER {
             let k = at + (rng.next_u64() % n as u64) as usize;

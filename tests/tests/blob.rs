@@ -14,15 +14,18 @@ fn weights_of<M: Net>(model: &Model, p: &mut M) -> sinew::weights::Weights {
     let flat = host::flat(p);
     let mut layers = Vec::new();
     let mut k = 0;
-    for l in &model.layers {
+    for l in model.layers() {
         let w = flat[k..k + l.width * l.fan_in].to_vec();
         k += l.width * l.fan_in;
         let b = flat[k..k + l.width].to_vec();
         k += l.width;
-        layers.push((w, b));
+        layers.push(sinew::weights::FlatLayer::new(w, b));
     }
     let (mean, std) = host::scaling(p);
-    let scaling = model.input.standardize.then_some((mean, std));
+    let scaling = model
+        .input()
+        .standardize
+        .then_some(sinew::weights::Standardization { mean, std });
     sinew::weights::Weights::from_params(model, layers, scaling, None)
 }
 

@@ -265,7 +265,7 @@ fn classify(out: &[f32]) -> (usize, f32) {
 
 fn classified(model: &Model, out: &[f32]) -> String {
     let (c, p) = classify(out);
-    let names = model.classes.as_ref().expect("a classifier");
+    let names = model.classes().expect("a classifier");
     let outs: Vec<String> = out.iter().map(|&v| bits(v)).collect();
     format!(
         "class={c}:{} p={} out={}",
@@ -291,7 +291,7 @@ fn host() -> Host {
         sinew::weights::Weights::load_checked(&dir.join("pump_health.weights.json"), &model)
             .expect("the committed weights fit the spec");
     let s = weights.standardization.as_ref().expect("standardized");
-    let params = Params::<f32>::from_f64(&weights.layers_flat(), Some((&s.mean[..], &s.std[..])));
+    let params = Params::<f32>::from_f64(&weights.layers_flat(), Some(s));
     let net = Net::new(&model);
     let mut scratch = Scratch::new(&model);
     let outputs = model.output().width;
@@ -915,7 +915,7 @@ fn check_run(board: &Board, dir: &Path, host: &Host) -> Result<Checked, String> 
     let r = &host.report;
     let m = &host.model;
     let per_sample =
-        m.input.width * usize::from(m.input.standardize) + 2 * widths(m) + m.output().width;
+        m.input().width * usize::from(m.input().standardize) + 2 * widths(m) + m.output().width;
     let state = r.buffer_training_bytes as usize - per_sample * r.scalar_bytes as usize;
     if trainer_bytes != state + r.scaling_bytes as usize + 4 {
         problems.push(format!(
@@ -958,7 +958,7 @@ fn check_run(board: &Board, dir: &Path, host: &Host) -> Result<Checked, String> 
 }
 
 fn widths(m: &Model) -> usize {
-    m.layers.iter().map(|l| l.width).sum()
+    m.layers().iter().map(|l| l.width).sum()
 }
 
 /// The Markdown tables of figures.

@@ -19,7 +19,6 @@ fn generate_file(path: &Path, unroll_below: usize) -> String {
         &EmitOptions {
             spec_name,
             unroll_below,
-            weights: None,
         },
     )
 }

@@ -64,11 +64,11 @@ impl Visit for FiniteDifferences {
 
         // Mutation: the same check against a gradient whose penalty term is halved (the
         // classic slip of differentiating (lambda / 2m) W^2 to (lambda / 2m) W).
-        if let sinew::ir::Penalty::L2(lambda) = model.penalty {
+        if let sinew::ir::Penalty::L2(lambda) = model.penalty() {
             let m = SAMPLES as f64;
             let mut wrong = analytic.clone();
             let mut offset = 0;
-            for layer in &model.layers {
+            for layer in model.layers() {
                 for k in offset..offset + layer.width * layer.fan_in {
                     wrong[k] -= 0.5 * lambda / m * w0[k];
                 }

@@ -34,8 +34,9 @@
 use object::{Object, ObjectSection, ObjectSymbol, RelocationTarget, SectionIndex, SymbolKind};
 
 use quote::ToTokens as _;
-use sinew::emit::{BakedParams, EmitOptions};
+use sinew::emit::EmitOptions;
 use sinew::ir::Model;
+use sinew::weights::{FlatLayer, Standardization, Weights};
 use sinew_harness::files::specs_in;
 use sinew_harness::toolchain;
 use sinew_tests::{BAKED, UNROLLED, UNROLL_BELOW};
@@ -91,36 +92,35 @@ fn checked(text: &str, what: &str) -> Model {
 
 /// Deterministic, unremarkable trained values for a model (the values do not matter here, only
 /// that the generated `TRAINED` static is there).
-fn baked(model: &Model) -> BakedParams {
+fn baked(model: &Model) -> Weights {
     let value = |k: usize| ((k % 17) as f64 - 8.0) / 16.0;
-    BakedParams {
-        layers: model
-            .layers
-            .iter()
-            .map(|l| {
-                let w = (0..l.width * l.fan_in).map(value).collect();
-                let b = (0..l.width).map(value).collect();
-                (w, b)
-            })
-            .collect(),
-        mean: model
-            .input
-            .standardize
-            .then(|| vec![0.5; model.input.width]),
-        std: model
-            .input
-            .standardize
-            .then(|| vec![2.0; model.input.width]),
-    }
+    let layers = model
+        .layers()
+        .iter()
+        .map(|l| FlatLayer {
+            weights: (0..l.width * l.fan_in).map(value).collect(),
+            bias: (0..l.width).map(value).collect(),
+        })
+        .collect();
+    let width = model.input().width;
+    let standardization = model.input().standardize.then(|| Standardization {
+        mean: vec![0.5; width],
+        std: vec![2.0; width],
+    });
+    Weights::from_params(model, layers, standardization, None)
 }
 
 fn generate(model: &Model, spec_name: &str, unroll_below: usize, weights: bool) -> String {
     let options = EmitOptions {
         spec_name: spec_name.to_string(),
         unroll_below,
-        weights: weights.then(|| baked(model)),
     };
-    sinew::emit::generate(model, &options)
+    if weights {
+        let trained = baked(model).fit(model).expect("the values fit the model");
+        sinew::emit::generate_trained(&trained, &options)
+    } else {
+        sinew::emit::generate(model, &options)
+    }
 }
 
 /// The spec texts of the random networks, in order, and whether each is unrolled.
@@ -150,14 +150,14 @@ fn modules() -> Vec<Module> {
             ("unrolled", UNROLL_BELOW, false),
             ("baked", 0, true),
         ] {
-            if (group == "unrolled" && !UNROLLED.contains(&model.name.as_str()))
-                || (group == "baked" && !BAKED.contains(&model.name.as_str()))
+            if (group == "unrolled" && !UNROLLED.contains(&model.name()))
+                || (group == "baked" && !BAKED.contains(&model.name()))
             {
                 continue;
             }
             out.push(Module {
                 group,
-                name: model.name.clone(),
+                name: model.name().to_string(),
                 source: generate(&model, &file, unroll, weights),
             });
         }
@@ -174,8 +174,8 @@ fn modules() -> Vec<Module> {
         let unroll = if *unrolled { 48 } else { 0 };
         out.push(Module {
             group: "random",
-            name: model.name.clone(),
-            source: generate(&model, &format!("{}.sinew", model.name), unroll, false),
+            name: model.name().to_string(),
+            source: generate(&model, &format!("{}.sinew", model.name()), unroll, false),
         });
     }
     out

@@ -49,6 +49,7 @@
 use serde_json::Value;
 use sinew::engine::{batch, Net, Params, Scratch};
 use sinew::ir::{Activation, Loss, Model, Penalty};
+use sinew::weights::{FlatLayer, Standardization};
 use sinew_harness::host::{backprop_gradient, is_f64, model_of, set_flat};
 use sinew_harness::Visit;
 use sinew_runtime::Real;
@@ -70,7 +71,7 @@ struct Golden {
     fixture: Option<String>,
     model: Model,
     /// Per layer (row-major weights, bias).
-    layers: Vec<(Vec<f64>, Vec<f64>)>,
+    layers: Vec<FlatLayer>,
     mean: Vec<f64>,
     std: Vec<f64>,
     xs: Vec<Vec<f64>>,
@@ -168,12 +169,12 @@ fn load(path: &std::path::Path) -> Golden {
             checked.diagnostics
         )
     });
-    let layers: Vec<(Vec<f64>, Vec<f64>)> = v["params"]["layers"]
+    let layers: Vec<FlatLayer> = v["params"]["layers"]
         .as_array()
         .expect("params.layers")
         .iter()
         .map(|l| {
-            (
+            FlatLayer::new(
                 rows(&l["weights"], "weights").concat(),
                 numbers(&l["bias"], "bias"),
             )
@@ -190,7 +191,7 @@ fn load(path: &std::path::Path) -> Golden {
             g
         })
         .collect();
-    let (mean, std) = if model.input.standardize {
+    let (mean, std) = if model.input().standardize {
         (
             numbers(&v["params"]["mean"], "mean"),
             numbers(&v["params"]["std"], "std"),
@@ -319,12 +320,11 @@ fn compare_all(label: &str, g: &Golden, c: &Computed, failures: &mut Vec<String>
 }
 
 fn engine_run(g: &Golden) -> Computed {
-    let scaling = g
-        .model
-        .input
-        .standardize
-        .then_some((g.mean.as_slice(), g.std.as_slice()));
-    let p = Params::<f64>::from_f64(&g.layers, scaling);
+    let scaling = g.model.input().standardize.then(|| Standardization {
+        mean: g.mean.clone(),
+        std: g.std.clone(),
+    });
+    let p = Params::<f64>::from_f64(&g.layers, scaling.as_ref());
     let net = Net::<f64>::new(&g.model);
     let mut s = Scratch::new(&g.model);
     let n_out = g.model.output().width;
@@ -386,8 +386,8 @@ fn goldens_cover_every_activation_loss_and_penalty() {
     let mut seen: BTreeSet<String> = BTreeSet::new();
     for g in &all {
         let m = &g.model;
-        for (i, l) in m.layers.iter().enumerate() {
-            let place = if i + 1 == m.layers.len() {
+        for (i, l) in m.layers().iter().enumerate() {
+            let place = if i + 1 == m.layers().len() {
                 "output"
             } else {
                 "hidden"
@@ -396,20 +396,20 @@ fn goldens_cover_every_activation_loss_and_penalty() {
         }
         seen.insert(format!(
             "loss {} with {} output",
-            m.loss.keyword(),
+            m.loss().keyword(),
             m.output().activation.keyword()
         ));
-        seen.insert(match m.penalty {
+        seen.insert(match m.penalty() {
             Penalty::None => "penalty none".into(),
             Penalty::L2(_) => "penalty l2".into(),
             Penalty::L1(_) => "penalty l1".into(),
         });
-        seen.insert(format!("standardize {}", m.input.standardize));
+        seen.insert(format!("standardize {}", m.input().standardize));
         seen.insert(format!("hidden layers {}", m.hidden().len()));
         if g.xs.len() == 1 {
             seen.insert("one sample".into());
         }
-        if m.loss == Loss::CrossEntropy
+        if m.loss() == Loss::CrossEntropy
             && g.outputs.iter().flatten().any(|&a| a == 1.0 || a < 1e-30)
         {
             seen.insert(format!("saturated {}", m.output().activation.keyword()));
@@ -417,7 +417,7 @@ fn goldens_cover_every_activation_loss_and_penalty() {
     }
     let slopes: BTreeSet<u64> = all
         .iter()
-        .flat_map(|g| g.model.layers.iter())
+        .flat_map(|g| g.model.layers().iter())
         .filter_map(|l| match l.activation {
             Activation::LeakyRelu(a) => Some(a.to_bits()),
             _ => None,
@@ -478,13 +478,13 @@ fn to_array<M: sinew_harness::Net, A: Copy + AsMut<[M::Scalar]>>(zero: A, v: &[f
 }
 
 fn same_shape(a: &Model, b: &Model) -> bool {
-    a.scalar == b.scalar
-        && a.input.width == b.input.width
-        && a.input.standardize == b.input.standardize
-        && a.loss == b.loss
-        && a.penalty == b.penalty
-        && a.layers.len() == b.layers.len()
-        && a.layers.iter().zip(&b.layers).all(|(x, y)| {
+    a.scalar() == b.scalar()
+        && a.input().width == b.input().width
+        && a.input().standardize == b.input().standardize
+        && a.loss() == b.loss()
+        && a.penalty() == b.penalty()
+        && a.layers().len() == b.layers().len()
+        && a.layers().iter().zip(b.layers()).all(|(x, y)| {
             x.width == y.width && x.fan_in == y.fan_in && x.activation == y.activation
         })
 }
@@ -513,7 +513,7 @@ impl Visit for Generated<'_> {
             &mut p,
             &g.layers
                 .iter()
-                .flat_map(|(w, b)| w.iter().chain(b))
+                .flat_map(|l| l.weights.iter().chain(&l.bias))
                 .copied()
                 .collect::<Vec<f64>>(),
         );

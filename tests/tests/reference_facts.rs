@@ -9,6 +9,7 @@
 use sinew::engine::train::Samples;
 use sinew::engine::{batch, Net, Params, Scratch, Trainer};
 use sinew::ir::Model;
+use sinew::weights::FlatLayer;
 
 fn model(src: &str) -> Model {
     let checked = sinew::check_source(src);
@@ -104,7 +105,7 @@ fn softmax_of_known_vectors() {
         let m = model(&format!(
             "model soft\nscalar f64\ninput x {n}\noutput y {n} softmax\nloss cross_entropy\npenalty none\n"
         ));
-        let p = Params::<f64>::from_f64(&[(identity_matrix(n), vec![0.0; n])], None);
+        let p = Params::<f64>::from_f64(&[FlatLayer::new(identity_matrix(n), vec![0.0; n])], None);
         let mut out = vec![0.0; n];
         Net::<f64>::new(&m).predict(&p, x, &mut Scratch::new(&m), &mut out);
         let total: f64 = x.iter().map(|v| v.exp()).sum();
@@ -132,7 +133,7 @@ fn log_sum_exp_of_two_thousands_does_not_overflow() {
     let m = model(
         "model lse\nscalar f64\ninput x 2\noutput y 2 softmax\nloss cross_entropy\npenalty none\n",
     );
-    let p = Params::<f64>::from_f64(&[(identity_matrix(2), vec![0.0; 2])], None);
+    let p = Params::<f64>::from_f64(&[FlatLayer::new(identity_matrix(2), vec![0.0; 2])], None);
     let net = Net::<f64>::new(&m);
     let mut s = Scratch::new(&m);
     let x = [1000.0, 1000.0];
@@ -149,7 +150,7 @@ fn log_sum_exp_of_two_thousands_does_not_overflow() {
     let m = model(
         "model sp\nscalar f64\ninput x 1\noutput y 1 sigmoid\nloss cross_entropy\npenalty none\n",
     );
-    let p = Params::<f64>::from_f64(&[(vec![1.0], vec![0.0])], None);
+    let p = Params::<f64>::from_f64(&[FlatLayer::new(vec![1.0], vec![0.0])], None);
     assert_eq!(
         Net::<f64>::new(&m).loss(&p, &[1000.0], &[0.0], &mut Scratch::new(&m)),
         1000.0
@@ -174,8 +175,8 @@ fn moments(v: &[f64]) -> (f64, f64) {
 #[test]
 fn glorot_uniform_limit_and_variance() {
     let m = model("model g\nscalar f64\ninput x 300\nlayer h 200 tanh\noutput y 100 identity\nloss squared_error\ninit glorot seed 5\n");
-    let p = Params::<f64>::init(&m, m.seed);
-    for (layer, lp) in m.layers.iter().zip(&p.layers) {
+    let p = Params::<f64>::init(&m, m.seed());
+    for (layer, lp) in m.layers().iter().zip(&p.layers) {
         let (fan_in, fan_out) = (layer.fan_in as f64, layer.width as f64);
         let r = (6.0 / (fan_in + fan_out)).sqrt();
         let w = &lp.weights;
@@ -224,8 +225,8 @@ fn glorot_uniform_limit_and_variance() {
 #[test]
 fn he_normal_standard_deviation() {
     let m = model("model he\nscalar f64\ninput x 400\nlayer h 300 relu\noutput y 10 identity\nloss squared_error\ninit he seed 9\n");
-    let p = Params::<f64>::init(&m, m.seed);
-    for (layer, lp) in m.layers.iter().zip(&p.layers) {
+    let p = Params::<f64>::init(&m, m.seed());
+    for (layer, lp) in m.layers().iter().zip(&p.layers) {
         let sigma = (2.0 / layer.fan_in as f64).sqrt();
         let w = &lp.weights;
         let n = w.len() as f64;
@@ -288,8 +289,8 @@ fn the_worked_backprop_example_through_the_engine() {
     );
     let p = Params::<f64>::from_f64(
         &[
-            (vec![0.15, 0.20, 0.25, 0.30], vec![0.35, 0.35]),
-            (vec![0.40, 0.45, 0.50, 0.55], vec![0.60, 0.60]),
+            FlatLayer::new(vec![0.15, 0.20, 0.25, 0.30], vec![0.35, 0.35]),
+            FlatLayer::new(vec![0.40, 0.45, 0.50, 0.55], vec![0.60, 0.60]),
         ],
         None,
     );

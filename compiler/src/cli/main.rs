@@ -191,7 +191,7 @@ fn train(a: &TrainArgs) -> Done {
     let options = TrainOptions {
         method: a
             .optimizer
-            .map(|o| Method::chosen(o.into(), model.train.optimizer)),
+            .map(|o| Method::chosen(o.into(), model.train().optimizer)),
         rate: a.rate,
         epochs: a.epochs,
         batch: a.batch,
@@ -205,7 +205,7 @@ fn train(a: &TrainArgs) -> Done {
         options,
         start: commands::load_weights(model, a.weights.as_deref())?,
     };
-    let bar = progress_bar(a, &model.name, a.epochs.unwrap_or(model.train.epochs));
+    let bar = progress_bar(a, model.name(), a.epochs.unwrap_or(model.train().epochs));
     let mut on_epoch = |r: &EpochReport| {
         bar.set_position(u64::from(r.epoch));
         let mut msg = format!("cost {:.5}", r.train_cost);
@@ -222,7 +222,7 @@ fn train(a: &TrainArgs) -> Done {
     let outcome = outcome.inspect_err(|_| eprintln!("nothing was written"))?;
     if let Some(plot) = &a.plot {
         commands::create_parent(plot)?;
-        let title = format!("{} training", model.name);
+        let title = format!("{} training", model.name());
         let note = sinew::plot::cost_curves(&outcome.summary.history, &title, plot)
             .map_err(CommandError::Usage)?;
         if let Some(n) = note {
@@ -290,7 +290,7 @@ fn pack(spec: &Path, weights: &Path, output: &Path) -> Done {
         output.display(),
         p.bytes,
         p.values,
-        model.scalar.rust_name(),
+        model.scalar().rust_name(),
         model.fingerprint(),
         p.crc32
     );

@@ -31,10 +31,10 @@ mod steps;
 
 use crate::ir::{Activation, Init, Layer, Model, Optimizer, Penalty, Scalar};
 use crate::plan::{Head, Plan};
+use crate::weights::{FlatLayer, Standardization};
 use ident::{LayerNames, Names};
 use proc_macro2::{Ident, Literal, Span, TokenStream};
 use quote::quote;
-use std::fmt;
 
 /// Options of [`generate`]. Every default is in [`EmitOptions::default`].
 #[derive(Debug, Clone, PartialEq, Default)]
@@ -47,94 +47,28 @@ pub struct EmitOptions {
     /// runtime's documented order, so it gives the same bits; destructuring keeps it free of
     /// indexing.
     pub unroll_below: usize,
-    /// Trained parameters to bake in as `pub static TRAINED: Params`, if any.
-    pub weights: Option<BakedParams>,
 }
 
-/// Trained parameter values to bake into the generated module, in `f64` whatever the model's
-/// scalar (each value is converted with `as` to the model's scalar, then written as its exact bit
-/// pattern).
-#[derive(Debug, Clone, PartialEq, Default)]
-pub struct BakedParams {
-    /// Per layer in model order: the weights row-major (row `j` holds the weights into unit `j`,
-    /// `width * fan_in` values) and the biases (`width` values).
-    pub layers: Vec<(Vec<f64>, Vec<f64>)>,
-    /// Per-feature input mean; required exactly when the model has `standardize`.
-    pub mean: Option<Vec<f64>>,
-    /// Per-feature input standard deviation; required exactly when the model has `standardize`.
-    pub std: Option<Vec<f64>>,
+/// Trained values tied to the model they were checked against. Only [`Weights::fit`] makes one
+/// (after [`Weights::check_against`]), so every length here is the one the model needs and the
+/// emitter bakes them without checking again.
+///
+/// [`Weights::fit`]: crate::weights::Weights::fit
+/// [`Weights::check_against`]: crate::weights::Weights::check_against
+#[derive(Debug, Clone, PartialEq)]
+pub struct Trained<'m> {
+    pub(crate) model: &'m Model,
+    /// Per layer in model order, `f64` whatever the model's scalar (each value is converted with
+    /// `as` to the scalar, then written as its exact bit pattern).
+    pub(crate) layers: Vec<FlatLayer>,
+    /// Present exactly when the model has `standardize`.
+    pub(crate) standardization: Option<Standardization>,
 }
 
-/// Why a [`BakedParams`] does not fit a model.
-#[derive(Debug, Clone, PartialEq, Eq)]
-pub struct ShapeMismatch {
-    /// What differs, e.g. "layer `hidden` has 12 biases, expected 10".
-    pub message: String,
-}
-
-impl fmt::Display for ShapeMismatch {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        f.write_str(&self.message)
-    }
-}
-
-impl std::error::Error for ShapeMismatch {}
-
-impl BakedParams {
-    /// Checks that every vector has the length `model` needs.
-    ///
-    /// [`generate`] emits `TRAINED` only for values that fit; for values that do not it emits a
-    /// `compile_error!` naming the mismatch, so call this first (the builder does).
-    pub fn check(&self, model: &Model) -> Result<(), ShapeMismatch> {
-        let err = |message: String| Err(ShapeMismatch { message });
-        if self.layers.len() != model.layers.len() {
-            return err(format!(
-                "{} layers of weights given, model `{}` has {}",
-                self.layers.len(),
-                model.name,
-                model.layers.len()
-            ));
-        }
-        for (layer, (w, b)) in model.layers.iter().zip(&self.layers) {
-            if w.len() != layer.width * layer.fan_in {
-                return err(format!(
-                    "layer `{}` has {} weights, expected {} ({} x {})",
-                    layer.name,
-                    w.len(),
-                    layer.width * layer.fan_in,
-                    layer.width,
-                    layer.fan_in
-                ));
-            }
-            if b.len() != layer.width {
-                return err(format!(
-                    "layer `{}` has {} biases, expected {}",
-                    layer.name,
-                    b.len(),
-                    layer.width
-                ));
-            }
-        }
-        let n = model.input.width;
-        for (what, v) in [("mean", &self.mean), ("std", &self.std)] {
-            match (model.input.standardize, v) {
-                (true, Some(v)) if v.len() != n => {
-                    return err(format!("input {what} has {} values, expected {n}", v.len()))
-                }
-                (true, None) => {
-                    return err(format!(
-                        "input {what} missing: the model standardizes its input"
-                    ))
-                }
-                (false, Some(_)) => {
-                    return err(format!(
-                        "input {what} given, but the model does not standardize its input"
-                    ))
-                }
-                _ => {}
-            }
-        }
-        Ok(())
+impl<'m> Trained<'m> {
+    /// The model the values fit.
+    pub fn model(&self) -> &'m Model {
+        self.model
     }
 }
 
@@ -155,20 +89,31 @@ impl BakedParams {
 /// assert!(source.contains("pub fn predict(&self, x: &[Scalar; INPUTS]) -> [Scalar; OUTPUTS]"));
 /// ```
 pub fn generate(model: &Model, options: &EmitOptions) -> String {
-    if model.layers.is_empty() {
-        // `check` guarantees at least one layer; hand-built IR without one gets a loud error.
-        let e = compile_error("the model has no layers");
-        return pretty::render(e, "// Generated by sinew: invalid model.\n");
-    }
-    if let Some(bad) = invalid_name(model) {
-        // Likewise for a name `check` would have refused (S03xx): it never becomes an
-        // identifier, so it can neither panic the token builder nor inject code.
-        let e = compile_error(&format!(
-            "{} is not a lower_snake name that Rust accepts as an identifier",
-            crate::syntax::quote(bad)
-        ));
-        return pretty::render(e, "// Generated by sinew: invalid model.\n");
-    }
+    render(model, options, None)
+}
+
+/// [`generate`], plus `pub static TRAINED: Params` holding `trained`'s values with the exact bit
+/// pattern of each, for the model `trained` was fitted to.
+///
+/// # Examples
+///
+/// ```
+/// use sinew::weights::{FlatLayer, Weights};
+/// let spec = "model demo\nscalar f64\ninput x 1\noutput y 1 identity\nloss squared_error\n";
+/// let model = sinew::check_source(spec).model.expect("a valid spec");
+/// let layer = FlatLayer { weights: vec![0.5], bias: vec![-0.25] };
+/// let trained = Weights::from_params(&model, vec![layer], None, None)
+///     .fit(&model)
+///     .expect("the values fit the model");
+/// let source = sinew::emit::generate_trained(&trained, &Default::default());
+/// assert!(source.contains("pub static TRAINED: Params"));
+/// ```
+pub fn generate_trained(trained: &Trained<'_>, options: &EmitOptions) -> String {
+    render(trained.model, options, Some(trained))
+}
+
+/// The module of `model`, with `TRAINED` when `trained` is given (fitted to `model`).
+fn render(model: &Model, options: &EmitOptions, trained: Option<&Trained<'_>>) -> String {
     let cx = Ctx::new(model, options);
     let module = ident(&model.name);
     let docs = wrap(&module_doc(model, &cx.spec_name).join("\n"));
@@ -180,7 +125,7 @@ pub fn generate(model: &Model, options: &EmitOptions) -> String {
     let batch = batch::items(&cx);
     let trainer = optim::items(&cx);
     let blob = blob::items(&cx);
-    let trained = options.weights.as_ref().map(|w| params::trained(&cx, w));
+    let trained = trained.map(|w| params::trained(&cx, w));
     let tokens = quote! {
         pub mod #module {
             #(#![doc = #docs])*
@@ -203,18 +148,6 @@ pub fn generate(model: &Model, options: &EmitOptions) -> String {
         model.fingerprint()
     );
     pretty::render(tokens, &header)
-}
-
-/// The first model, input, layer or class name that is not a lower_snake identifier outside
-/// Rust's keywords (the rule `check` enforces), if any.
-fn invalid_name(model: &Model) -> Option<&str> {
-    use crate::check::names::{is_lower_snake, RUST_KEYWORDS};
-    std::iter::once(&model.name)
-        .chain(std::iter::once(&model.input.name))
-        .chain(model.layers.iter().map(|l| &l.name))
-        .chain(model.classes.iter().flatten())
-        .map(String::as_str)
-        .find(|n| !is_lower_snake(n) || RUST_KEYWORDS.contains(n))
 }
 
 /// The spec file name for the header and docs: the last path component, with control characters
@@ -510,13 +443,6 @@ pub(crate) fn ident(name: &str) -> Ident {
 /// `usize` literal.
 pub(crate) fn usize_lit(n: usize) -> Literal {
     Literal::usize_unsuffixed(n)
-}
-
-/// A `compile_error!` item: emitted instead of code for a model that `check` would have rejected
-/// (hand-built IR), so `generate` never panics and the mistake is still loud.
-pub(crate) fn compile_error(message: &str) -> TokenStream {
-    let msg = format!("sinew: {message}");
-    quote!(compile_error!(#msg);)
 }
 
 #[cfg(test)]

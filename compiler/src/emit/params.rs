@@ -1,7 +1,8 @@
 //! Sizes, the `Params` and `Gradients` structs, initialisation and baked weights.
 
-use super::{backward, classes, forward, ident, usize_lit, BakedParams, Ctx};
+use super::{backward, classes, forward, ident, usize_lit, Ctx, Trained};
 use crate::ir::{Init, Penalty};
+use crate::weights::Standardization;
 use proc_macro2::TokenStream;
 use quote::quote;
 
@@ -288,14 +289,12 @@ fn init_in_place(cx: &Ctx) -> TokenStream {
     }
 }
 
-/// `pub static TRAINED: Params` with exact bit patterns, or a `compile_error!` when the values do
-/// not fit the model.
-pub(super) fn trained(cx: &Ctx, w: &BakedParams) -> TokenStream {
-    if let Err(e) = w.check(cx.model) {
-        return super::compile_error(&format!("baked weights do not fit: {e}"));
-    }
+/// `pub static TRAINED: Params` with exact bit patterns ([`Trained`] fits the model by
+/// construction).
+pub(super) fn trained(cx: &Ctx, w: &Trained<'_>) -> TokenStream {
     let mut fields = Vec::new();
-    for ((l, n), (weights, bias)) in cx.model.layers.iter().zip(&cx.names.layers).zip(&w.layers) {
+    for ((l, n), flat) in cx.model.layers.iter().zip(&cx.names.layers).zip(&w.layers) {
+        let (weights, bias) = (&flat.weights, &flat.bias);
         let wf = ident(&n.weights);
         let bf = ident(&n.bias);
         let rows = weights.chunks_exact(l.fan_in.max(1)).map(|row| {
@@ -305,7 +304,7 @@ pub(super) fn trained(cx: &Ctx, w: &BakedParams) -> TokenStream {
         let b = bias.iter().map(|&v| cx.exact(v));
         fields.push(quote!(#wf: [#(#rows),*], #bf: [#(#b),*],));
     }
-    if let (Some(mean), Some(std)) = (&w.mean, &w.std) {
+    if let Some(Standardization { mean, std }) = &w.standardization {
         let mf = ident(super::ident::MEAN_FIELD);
         let sf = ident(super::ident::STD_FIELD);
         let mean = mean.iter().map(|&v| cx.exact(v));

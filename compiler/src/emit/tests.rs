@@ -140,6 +140,7 @@ fn assert_clean(src: &str) {
         "expect(",
         "unreachable!",
         "as_ptr",
+        concat!("compile", "_error"),
     ] {
         assert!(!src.contains(bad), "generated code contains `{bad}`");
     }
@@ -330,7 +331,6 @@ fn every_activation_and_loss_emits_clean_code() {
                 };
                 let src = generate(&m, &o);
                 assert_clean(&src);
-                assert!(!src.contains("compile_error!"), "{src}");
                 if unroll > 0 {
                     assert!(!src.contains("rt::affine_n(") && !src.contains("rt::back_n("));
                     assert!(
@@ -402,29 +402,27 @@ fn literals_are_exact_in_the_models_scalar() {
     assert_eq!("0.3333333333333333".parse::<f64>().unwrap(), 1.0 / 3.0);
 }
 
+/// `FlatLayer` from a weights vector and a bias vector.
+fn flat(weights: Vec<f64>, bias: Vec<f64>) -> FlatLayer {
+    FlatLayer { weights, bias }
+}
+
 #[test]
 fn baked_weights_use_exact_bit_patterns() {
+    use crate::weights::Weights;
     let mut m = model(&[(2, "x"), (2, "h"), (1, "y")], Activation::Sigmoid);
     m.scalar = Scalar::F64;
-    let baked = BakedParams {
-        layers: vec![
-            (
-                vec![0.1, -0.0, f64::MIN_POSITIVE / 4.0, 1.0 / 3.0],
-                vec![0.5, -2.0],
-            ),
-            (vec![f64::MAX, -1e-300], vec![0.0]),
-        ],
-        mean: None,
-        std: None,
-    };
-    baked.check(&m).unwrap();
-    let src = generate(
-        &m,
-        &EmitOptions {
-            weights: Some(baked.clone()),
-            ..opts()
-        },
-    );
+    let layers = vec![
+        flat(
+            vec![0.1, -0.0, f64::MIN_POSITIVE / 4.0, 1.0 / 3.0],
+            vec![0.5, -2.0],
+        ),
+        flat(vec![f64::MAX, -1e-300], vec![0.0]),
+    ];
+    let trained = Weights::from_params(&m, layers.clone(), None, None)
+        .fit(&m)
+        .unwrap();
+    let src = generate_trained(&trained, &opts());
     assert_clean(&src);
     assert!(src.contains("pub static TRAINED: Params = Params {"));
     for v in [
@@ -442,13 +440,10 @@ fn baked_weights_use_exact_bit_patterns() {
         assert!(src.contains(&needle), "missing {needle}");
     }
     m.scalar = Scalar::F32;
-    let src = generate(
-        &m,
-        &EmitOptions {
-            weights: Some(baked),
-            ..opts()
-        },
-    );
+    let trained = Weights::from_params(&m, layers, None, None)
+        .fit(&m)
+        .unwrap();
+    let src = generate_trained(&trained, &opts());
     let needle = format!(
         "f32::from_bits(0x{:08x})",
         ((1.0f64 / 3.0) as f32).to_bits()
@@ -461,59 +456,30 @@ fn baked_weights_use_exact_bit_patterns() {
 }
 
 #[test]
-fn baked_weights_that_do_not_fit_are_a_compile_error_not_a_panic() {
+fn weights_that_do_not_fit_never_become_a_trained_value() {
+    use crate::weights::{Standardization, Weights};
     let m = pump();
-    let baked = BakedParams {
-        layers: vec![(vec![0.0; 3], vec![0.0; 10])],
-        mean: None,
-        std: None,
+    let fit = |layers: Vec<FlatLayer>, st: Option<Standardization>| {
+        Weights::from_params(&m, layers, st, None)
+            .fit(&m)
+            .map(|_| ())
+            .unwrap_err()
+            .to_string()
     };
-    let err = baked.check(&m).unwrap_err();
-    assert!(
-        err.to_string().contains("1 layers of weights given"),
-        "{err}"
-    );
-    let src = generate(
-        &m,
-        &EmitOptions {
-            weights: Some(baked),
-            ..opts()
-        },
-    );
-    assert!(src.contains("compile_error!"));
-    assert!(!src.contains("pub static TRAINED"));
-    let mut layers: Vec<(Vec<f64>, Vec<f64>)> = m
+    let err = fit(vec![flat(vec![0.0; 3], vec![0.0; 10])], None);
+    assert!(err.contains("the file has 1 layers"), "{err}");
+    let mut layers: Vec<FlatLayer> = m
         .layers
         .iter()
-        .map(|l| (vec![0.0; l.width * l.fan_in], vec![0.0; l.width]))
+        .map(|l| flat(vec![0.0; l.width * l.fan_in], vec![0.0; l.width]))
         .collect();
-    let no_scaling = BakedParams {
-        layers: layers.clone(),
-        mean: None,
-        std: None,
+    let err = fit(layers.clone(), None);
+    assert!(err.contains("no standardization statistics"), "{err}");
+    layers[1].bias.pop();
+    let st = Standardization {
+        mean: vec![0.0; 6],
+        std: vec![1.0; 6],
     };
-    assert!(no_scaling
-        .check(&m)
-        .unwrap_err()
-        .to_string()
-        .contains("input mean missing"));
-    layers[1].1.pop();
-    let short = BakedParams {
-        layers,
-        mean: Some(vec![0.0; 6]),
-        std: Some(vec![1.0; 6]),
-    };
-    assert_eq!(
-        short.check(&m).unwrap_err().to_string(),
-        "layer `hidden2` has 7 biases, expected 8"
-    );
-}
-
-#[test]
-fn a_model_without_layers_is_a_compile_error_not_a_panic() {
-    let mut m = pump();
-    m.layers.clear();
-    m.classes = None;
-    let src = generate(&m, &opts());
-    assert!(src.contains("compile_error!"));
+    let err = fit(layers, Some(st));
+    assert!(err.contains("layer `hidden2` has 7 biases"), "{err}");
 }

@@ -18,6 +18,7 @@ pub use aligned::Lines;
 
 use crate::ir::{self, Init, Model, Optimizer};
 use crate::plan::{Buf, Head, Plan, Step, Update};
+use crate::weights::{FlatLayer, Standardization};
 use sinew_runtime::{self as rt, act::Activation, penalty::Penalty, rng::SplitMix64, Real};
 
 pub mod aligned;
@@ -113,42 +114,44 @@ impl<T: Real> Params<T> {
         }
     }
 
-    /// Converts from f64 values (as stored in a weights file), rounding to `T`.
-    /// `layers` holds (row-major weights, bias) per layer; shapes are the caller's contract
-    /// (use [`crate::weights`] to validate a file first).
-    pub fn from_f64(layers: &[(Vec<f64>, Vec<f64>)], scaling: Option<(&[f64], &[f64])>) -> Self {
+    /// Converts from f64 values (as stored in a weights file), rounding to `T`. Shapes are the
+    /// caller's contract (use [`crate::weights`] to validate a file first).
+    pub fn from_f64(layers: &[FlatLayer], scaling: Option<&Standardization>) -> Self {
         let conv = |v: &[f64]| v.iter().map(|&x| T::from_f64(x)).collect::<Vec<T>>();
         Params {
             layers: layers
                 .iter()
-                .map(|(w, b)| LayerParams {
-                    weights: Lines::from_slice(&conv(w)),
-                    bias: conv(b),
+                .map(|l| LayerParams {
+                    weights: Lines::from_slice(&conv(&l.weights)),
+                    bias: conv(&l.bias),
                 })
                 .collect(),
-            mean: scaling.map(|(m, _)| conv(m)).unwrap_or_default(),
-            std: scaling.map(|(_, s)| conv(s)).unwrap_or_default(),
+            mean: scaling.map(|s| conv(&s.mean)).unwrap_or_default(),
+            std: scaling.map(|s| conv(&s.std)).unwrap_or_default(),
         }
     }
 
-    /// The values widened to f64: (row-major weights, bias) per layer.
-    pub fn layers_f64(&self) -> Vec<(Vec<f64>, Vec<f64>)> {
+    /// The values widened to f64, per layer.
+    pub fn layers_f64(&self) -> Vec<FlatLayer> {
         let conv = |v: &[T]| v.iter().map(|x| x.to_f64()).collect::<Vec<f64>>();
         self.layers
             .iter()
-            .map(|l| (conv(&l.weights), conv(&l.bias)))
+            .map(|l| FlatLayer {
+                weights: conv(&l.weights),
+                bias: conv(&l.bias),
+            })
             .collect()
     }
 
     /// The standardization statistics widened to f64, if any.
-    pub fn scaling_f64(&self) -> Option<(Vec<f64>, Vec<f64>)> {
+    pub fn scaling_f64(&self) -> Option<Standardization> {
         if self.mean.is_empty() {
             None
         } else {
-            Some((
-                self.mean.iter().map(|x| x.to_f64()).collect(),
-                self.std.iter().map(|x| x.to_f64()).collect(),
-            ))
+            Some(Standardization {
+                mean: self.mean.iter().map(|x| x.to_f64()).collect(),
+                std: self.std.iter().map(|x| x.to_f64()).collect(),
+            })
         }
     }
 

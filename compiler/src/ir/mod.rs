@@ -208,31 +208,34 @@ impl Layer {
     }
 }
 
-/// A checked network.
+/// A checked network. Only `check` builds one (the fields are crate-private and read through
+/// the accessors below), so every back end may rely on its invariants without checking again:
+/// at least one layer, names that are lower_snake Rust identifiers, widths >= 1, each layer's
+/// `fan_in` equal to the width before it, hyper-parameters in range.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Model {
     /// lower_snake name; the generated module's name.
-    pub name: String,
+    pub(crate) name: String,
     /// Scalar type.
-    pub scalar: Scalar,
+    pub(crate) scalar: Scalar,
     /// The input.
-    pub input: Input,
+    pub(crate) input: Input,
     /// Hidden layers in order, then the output layer (always at least one layer).
-    pub layers: Vec<Layer>,
+    pub(crate) layers: Vec<Layer>,
     /// Class names of a classifying output, if given.
-    pub classes: Option<Vec<String>>,
+    pub(crate) classes: Option<Vec<String>>,
     /// The loss.
-    pub loss: Loss,
+    pub(crate) loss: Loss,
     /// The penalty.
-    pub penalty: Penalty,
+    pub(crate) penalty: Penalty,
     /// Weight initialisation.
-    pub init: Init,
+    pub(crate) init: Init,
     /// Seed of the initialisation PRNG (SplitMix64).
-    pub seed: u64,
+    pub(crate) seed: u64,
     /// Training settings.
-    pub train: Train,
+    pub(crate) train: Train,
     /// Memory limits.
-    pub budget: Budget,
+    pub(crate) budget: Budget,
 }
 
 /// Defaults applied by `check` where the spec is silent; listed once, here.
@@ -268,6 +271,61 @@ pub mod defaults {
 }
 
 impl Model {
+    /// lower_snake name; the generated module's name.
+    pub fn name(&self) -> &str {
+        &self.name
+    }
+
+    /// Scalar type.
+    pub fn scalar(&self) -> Scalar {
+        self.scalar
+    }
+
+    /// The input.
+    pub fn input(&self) -> &Input {
+        &self.input
+    }
+
+    /// Hidden layers in order, then the output layer (at least one layer).
+    pub fn layers(&self) -> &[Layer] {
+        &self.layers
+    }
+
+    /// Class names of a classifying output, if given.
+    pub fn classes(&self) -> Option<&[String]> {
+        self.classes.as_deref()
+    }
+
+    /// The loss.
+    pub fn loss(&self) -> Loss {
+        self.loss
+    }
+
+    /// The penalty.
+    pub fn penalty(&self) -> Penalty {
+        self.penalty
+    }
+
+    /// Weight initialisation.
+    pub fn init(&self) -> Init {
+        self.init
+    }
+
+    /// Seed of the initialisation PRNG (SplitMix64).
+    pub fn seed(&self) -> u64 {
+        self.seed
+    }
+
+    /// Training settings.
+    pub fn train(&self) -> Train {
+        self.train
+    }
+
+    /// Memory limits.
+    pub fn budget(&self) -> Budget {
+        self.budget
+    }
+
     /// The output layer.
     pub fn output(&self) -> &Layer {
         // `check` guarantees at least one layer.

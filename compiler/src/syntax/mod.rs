@@ -6,7 +6,5 @@
 pub mod ast;
 mod parse;
 
-/// The one quoting function, [`crate::text::quote`], under the name `emit` still uses.
-pub(crate) use crate::text::quote;
 pub use ast::Spec;
 pub use parse::parse;

@@ -13,12 +13,7 @@ use sinew_runtime::Real;
 /// statistics gets the neutral ones (mean 0, std 1) of [`Params::zeroed`].
 pub fn params_of<T: Real>(model: &Model, w: &Weights) -> Params<T> {
     let layers = w.layers_flat();
-    let mut p = Params::<T>::from_f64(
-        &layers,
-        w.standardization
-            .as_ref()
-            .map(|s| (s.mean.as_slice(), s.std.as_slice())),
-    );
+    let mut p = Params::<T>::from_f64(&layers, w.standardization.as_ref());
     if model.input.standardize && p.mean.is_empty() {
         let z = Params::<T>::zeroed(model);
         p.mean = z.mean;

@@ -5,6 +5,7 @@ use super::WorkflowError;
 use crate::data::{self, Dataset};
 use crate::engine::{batch, eval, Net, Params};
 use crate::ir::{Model, Scalar};
+use crate::weights::FlatLayer;
 use crate::weights::Weights;
 use sinew_runtime::Real;
 use std::path::Path;
@@ -81,10 +82,14 @@ pub fn gradient(model: &Model, weights: &Weights, data: &Path) -> Result<Gradien
         .layers
         .iter()
         .zip(grad)
-        .map(|(l, (w, b))| LayerGradient {
+        .map(|(l, g)| LayerGradient {
             name: l.name.clone(),
-            weights: w.chunks(l.fan_in.max(1)).map(<[f64]>::to_vec).collect(),
-            bias: b,
+            weights: g
+                .weights
+                .chunks(l.fan_in.max(1))
+                .map(<[f64]>::to_vec)
+                .collect(),
+            bias: g.bias,
         })
         .collect();
     Ok(Gradient {
@@ -94,14 +99,11 @@ pub fn gradient(model: &Model, weights: &Weights, data: &Path) -> Result<Gradien
     })
 }
 
-/// Per layer: the row-major weight gradient and the bias gradient, widened to f64.
-type LayersF64 = Vec<(Vec<f64>, Vec<f64>)>;
-
 fn grad_t<T: Real + Send + Sync>(
     model: &Model,
     weights: &Weights,
     ds: &Dataset,
-) -> (f64, LayersF64) {
+) -> (f64, Vec<FlatLayer>) {
     let p = params_of::<T>(model, weights);
     let s = samples::<T>(ds);
     let net = Net::new(model);
