@@ -1,5 +1,5 @@
 #!/usr/bin/env bash
-# The performance table in one command (see the README, "Performance"):
+# The performance table in one command (method and tables: bench/README.md):
 #
 #   bash bench/run.sh                      # criterion benches of the three builds, numpy, table
 #   bash bench/run.sh --builds v3          # one build only (default, v3, native; comma list)

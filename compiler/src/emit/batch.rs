@@ -13,9 +13,9 @@ use crate::plan::Buf;
 use proc_macro2::{Ident, TokenStream};
 use quote::quote;
 
-/// Samples per block (rows of every `BatchScratch` array). Chosen by measurement on the
-/// benchmark networks (see the README's Performance section): large enough to amortise reading
-/// a weight tile, small enough that a block of activations stays in the first-level cache.
+/// Samples per block (rows of every `BatchScratch` array): large enough to amortise reading a
+/// weight tile, small enough that a block of activations stays in the first-level cache
+/// (measurements: `bench/README.md`).
 pub(crate) const BLOCK: usize = 32;
 
 /// `BatchScratch`, its `impl`, and the two `Params` methods.
