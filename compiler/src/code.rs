@@ -148,6 +148,10 @@ codes! {
     D12,
     /// A classifier's target is outside [0, 1].
     D13,
+    /// The data is larger than its limit, or gzip data expands like a decompression bomb.
+    D14,
+    /// Data that starts like gzip is not a valid gzip stream.
+    D15,
     // Weights file errors (the loaders of [`crate::weights`] and the build API).
     /// The file cannot be read or written.
     F01,

@@ -38,6 +38,8 @@
 //! | `D11` | a single record is larger than [`MAX_RECORD_BYTES`] |
 //! | `D12` | the file is not UTF-8 text |
 //! | `D13` | a cross-entropy target is outside `[0, 1]` |
+//! | `D14` | the data passes a limit of [`crate::stream`] (size, or a gzip bomb) |
+//! | `D15` | data that starts like gzip is not a valid gzip stream |
 //!
 //! # Examples
 //! ```
@@ -55,11 +57,11 @@
 
 use crate::code::Code;
 use crate::ir::Model;
+use crate::stream::{self, LimitError, Limits, Stream};
 use crate::text::quote;
 use sinew_runtime::rng::SplitMix64;
 use std::cell::RefCell;
 use std::fmt;
-use std::fs::File;
 use std::io::{self, Read};
 use std::path::Path;
 use std::rc::Rc;
@@ -165,17 +167,42 @@ impl std::error::Error for DataError {}
 ///
 /// The file is streamed: no more than about [`MAX_RECORD_BYTES`] of it is held beyond the
 /// samples already parsed, and a longer record is refused (`D11`).
+///
+/// `path` `-` is standard input; input that starts with the gzip bytes is decompressed; the
+/// limits of [`crate::stream`] apply (`D14`, `D15`).
 pub fn read_csv(path: &Path, model: &Model) -> Result<Dataset, DataError> {
-    let name = path.display().to_string();
-    let file = File::open(path).map_err(|e| {
+    read_csv_hashed(path, model).map(|(ds, _)| ds)
+}
+
+/// [`read_csv`], and the fingerprint ([`crate::weights::data_hash`]) of the text read, from the
+/// same single pass over the input.
+pub fn read_csv_hashed(path: &Path, model: &Model) -> Result<(Dataset, String), DataError> {
+    read_stream(path, model, Limits::default())
+}
+
+/// [`read_csv_hashed`] under explicit stream limits.
+pub fn read_stream(
+    path: &Path,
+    model: &Model,
+    limits: Limits,
+) -> Result<(Dataset, String), DataError> {
+    let stream = stream::open(path, limits).map_err(|e| {
         DataError::new(
             Code::D01,
-            &name,
+            &path.display().to_string(),
             None,
             format!("cannot read the data file: {e}"),
         )
     })?;
-    read_from(&name, file, model, MAX_RECORD_BYTES)
+    read_hashed(stream, model)
+}
+
+/// Reads CSV from an opened [`Stream`], returning the data set and the stream's fingerprint.
+pub fn read_hashed(mut stream: Stream, model: &Model) -> Result<(Dataset, String), DataError> {
+    let name = stream.name().to_string();
+    let ds = read_from(&name, &mut stream, model, MAX_RECORD_BYTES)?;
+    // The CSV reader stops at the end of the input; the fingerprint covers all of it.
+    Ok((ds, stream.fingerprint()))
 }
 
 /// Reads CSV text for `model` exactly as [`read_csv`] reads a file; `name` names it in errors.
@@ -316,7 +343,19 @@ fn read_from<R: Read>(
                 line,
                 format!("the record starting here is longer than {limit} bytes"),
             )
-            .help("a record this long usually means a quote (\") that is never closed"),
+            .help("a record this long usually means a quote (\") that is never closed, or input that is not CSV text"),
+            csv::ErrorKind::Io(io) if LimitError::of(io).is_some() => {
+                match LimitError::of(io) {
+                    Some(l @ LimitError::BadGzip(_)) => {
+                        DataError::new(Code::D15, name, line, l.to_string())
+                            .help("the file may be cut short: copy or compress it again")
+                    }
+                    Some(l) => DataError::new(Code::D14, name, line, l.to_string()).help(
+                        "split the data into smaller files; limits are in the reference",
+                    ),
+                    None => DataError::new(Code::D01, name, line, io.to_string()),
+                }
+            }
             csv::ErrorKind::Io(io) => DataError::new(
                 Code::D01,
                 name,

@@ -1,5 +1,5 @@
 //! Atomic file output shared by every writer (generated code, weights, blobs, plots), and the
-//! bounded read of spec files.
+//! bounded read of spec and weights files (data is read by [`crate::stream`]).
 //!
 //! A file is written to a temporary sibling, flushed to disk, then renamed over the target, so a
 //! reader (or an interrupted run) sees either the old file or the complete new one, never a
@@ -14,6 +14,10 @@ use std::path::{Path, PathBuf};
 /// short text file; a larger one (a generator gone wrong, a wrong path) is refused after
 /// reading at most one byte more than this, so it never fills memory.
 pub const MAX_SPEC_BYTES: u64 = 1 << 20;
+
+/// The largest weights file read: 1 GiB. The JSON of the largest model `check` accepts
+/// (16 Mi parameters, at most 26 bytes each in the shortest round-trip form) fits in it.
+pub const MAX_WEIGHTS_BYTES: u64 = 1 << 30;
 
 /// Reads the whole file at `path` when it holds at most `limit` bytes. A longer file is refused
 /// with an [`io::ErrorKind::InvalidData`] error saying so, after reading at most `limit + 1`

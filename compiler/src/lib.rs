@@ -29,6 +29,8 @@ pub mod plot;
 pub mod report;
 pub mod span;
 #[cfg(feature = "train")]
+pub mod stream;
+#[cfg(feature = "train")]
 pub mod summary;
 pub mod syntax;
 pub mod text;

@@ -80,7 +80,6 @@ use crate::fsutil;
 use crate::ir::{fnv1a64, Model, Scalar};
 use serde::Deserialize;
 use std::fmt;
-use std::fs;
 use std::path::Path;
 
 /// The `format` tag of every weights file.
@@ -494,13 +493,18 @@ impl Weights {
     /// Reads a weights file ([`Weights::from_json`] on its text).
     pub fn load(path: &Path) -> Result<Weights, WeightsError> {
         let name = path.display().to_string();
-        let bytes = fs::read(path).map_err(|e| {
-            WeightsError::new(
-                Code::F01,
-                &name,
-                format!("cannot read the weights file: {e}"),
-            )
-        })?;
+        let bytes =
+            crate::fsutil::read_limited(path, crate::fsutil::MAX_WEIGHTS_BYTES).map_err(|e| {
+                WeightsError::new(
+                    Code::F01,
+                    &name,
+                    if e.kind() == std::io::ErrorKind::InvalidData {
+                        format!("cannot read the weights file: {e} (1 GiB), the limit")
+                    } else {
+                        format!("cannot read the weights file: {e}")
+                    },
+                )
+            })?;
         let text = String::from_utf8(bytes).map_err(|e| {
             WeightsError::new(
                 Code::F02,

@@ -60,7 +60,7 @@ pub enum Command {
         /// Weights file.
         #[arg(long)]
         weights: PathBuf,
-        /// CSV data file.
+        /// CSV data file; `-` reads standard input; gzip data is decompressed.
         #[arg(long)]
         data: PathBuf,
         /// Print the figures as JSON.
@@ -74,7 +74,7 @@ pub enum Command {
         /// Weights file.
         #[arg(long)]
         weights: PathBuf,
-        /// CSV data file.
+        /// CSV data file; `-` reads standard input; gzip data is decompressed.
         #[arg(long)]
         data: PathBuf,
         /// Print every derivative as JSON (without it: the cost and, per layer, the largest
@@ -100,7 +100,7 @@ pub enum Command {
         /// Weights file (default: the spec's initial parameters).
         #[arg(long)]
         weights: Option<PathBuf>,
-        /// CSV data file (default: a few drawn samples).
+        /// CSV data file, `-` for standard input, plain or gzip (default: a few drawn samples).
         #[arg(long)]
         data: Option<PathBuf>,
         /// Relative tolerance.
@@ -122,7 +122,7 @@ pub enum Command {
 pub struct TrainArgs {
     /// Spec file.
     pub spec: PathBuf,
-    /// CSV data file.
+    /// CSV data file; `-` reads standard input; gzip data is decompressed.
     #[arg(long)]
     pub data: PathBuf,
     /// Weights file to write.

@@ -221,7 +221,9 @@ fn module_doc(model: &Model, spec_name: &str) -> Vec<String> {
 
 fn activation_words(a: Activation) -> String {
     match a {
-        Activation::LeakyRelu(alpha) => format!("leaky_relu (alpha {})", num(alpha)),
+        Activation::LeakyRelu(alpha) => {
+            format!("leaky_relu (alpha {})", crate::words::number(alpha))
+        }
         other => other.keyword().to_string(),
     }
 }
@@ -232,7 +234,7 @@ fn penalty_words(p: Penalty) -> String {
 
 fn init_words(i: Init) -> String {
     match i {
-        Init::Uniform { eps } => format!("uniform on [-{e}, {e}]", e = num(eps)),
+        Init::Uniform { eps } => format!("uniform on [-{e}, {e}]", e = crate::words::number(eps)),
         Init::Glorot => "Glorot uniform".to_string(),
         Init::He => "He normal".to_string(),
     }
@@ -405,17 +407,6 @@ fn unbreakable_words(para: &str) -> Vec<String> {
         }
     }
     words
-}
-
-/// A number for doc text: Rust's shortest round-trip form, in exponent form for very small or
-/// large magnitudes (`1e-8`, not `0.00000001`).
-pub(crate) fn num(v: f64) -> String {
-    let a = v.abs();
-    if a != 0.0 && a.is_finite() && !(1e-4..1e16).contains(&a) {
-        format!("{v:e}")
-    } else {
-        format!("{v}")
-    }
 }
 
 /// A float literal whose text reads back as exactly `v` in a context of type `f32`/`f64`: the

@@ -41,25 +41,6 @@ pub struct TrainOutcome {
     pub elapsed: Duration,
 }
 
-/// [`crate::weights::data_hash`] of the file at `path`, read in pieces so that a large data file
-/// is never held in memory whole.
-fn file_hash(path: &Path) -> std::io::Result<String> {
-    use std::io::Read;
-    let mut f = std::fs::File::open(path)?;
-    let mut buf = vec![0u8; 1 << 16];
-    let mut h = crate::ir::FNV1A64_OFFSET;
-    loop {
-        let n = match f.read(&mut buf) {
-            Ok(0) => break,
-            Ok(n) => n,
-            Err(e) if e.kind() == std::io::ErrorKind::Interrupted => continue,
-            Err(e) => return Err(e),
-        };
-        h = crate::ir::fnv1a64_extend(h, buf.get(..n).unwrap_or(&[]));
-    }
-    Ok(format!("{h:016x}"))
-}
-
 /// Reads the data, splits it, sets the standardization from the training split, trains, and
 /// evaluates. Nothing is written; on divergence the error names the epoch.
 pub fn train(
@@ -67,20 +48,22 @@ pub fn train(
     req: &TrainRequest<'_>,
     on_epoch: &mut dyn FnMut(&EpochReport),
 ) -> Result<TrainOutcome, WorkflowError> {
-    let hash = file_hash(req.data)
-        .map_err(|e| WorkflowError::Io(format!("cannot read {}: {e}", req.data.display())))?;
-    let ds = data::read_csv(req.data, model)?;
+    // One pass over the input gives the samples and the fingerprint, so a pipe works.
+    let (ds, hash) = data::read_csv_hashed(req.data, model)?;
     let (tr, va) = if req.split > 0.0 {
         let (t, v) = data::split(&ds, req.split, req.seed);
         (t, Some(v))
     } else {
         (ds, None)
     };
-    let file_name = req
-        .data
-        .file_name()
-        .map(|f| f.to_string_lossy().into_owned())
-        .unwrap_or_default();
+    let file_name = if req.data == std::path::Path::new("-") {
+        crate::stream::STDIN_NAME.to_string()
+    } else {
+        req.data
+            .file_name()
+            .map(|f| f.to_string_lossy().into_owned())
+            .unwrap_or_default()
+    };
     match model.scalar {
         Scalar::F32 => train_t::<f32>(model, req, &tr, va.as_ref(), file_name, hash, on_epoch),
         Scalar::F64 => train_t::<f64>(model, req, &tr, va.as_ref(), file_name, hash, on_epoch),
@@ -134,22 +117,4 @@ fn train_t<T: Real + Send + Sync>(
         validation,
         elapsed,
     })
-}
-
-#[cfg(test)]
-mod tests {
-    #[test]
-    fn file_hash_is_the_data_hash_of_the_bytes() {
-        let dir = std::env::temp_dir().join(format!("sinew-workflow-{}", std::process::id()));
-        std::fs::create_dir_all(&dir).unwrap();
-        let path = dir.join("data.csv");
-        // More than one read buffer, so the hash is continued across pieces.
-        let bytes: Vec<u8> = (0..200_000u32).map(|i| (i % 251) as u8).collect();
-        std::fs::write(&path, &bytes).unwrap();
-        assert_eq!(
-            super::file_hash(&path).unwrap(),
-            crate::weights::data_hash(&bytes)
-        );
-        std::fs::remove_dir_all(dir).unwrap();
-    }
 }
