@@ -223,6 +223,32 @@ impl Builder {
     /// # Ok::<(), Box<dyn std::error::Error>>(())
     /// ```
     pub fn compile(&self) -> Result<Vec<PathBuf>, BuildError> {
+        self.compile_inner()
+    }
+
+    /// [`Builder::compile`] for a `build.rs`: on failure, prints the error as one line after the
+    /// diagnostics already rendered and ends the build script with exit status 1, so the build
+    /// fails with clean messages and no panic message or backtrace.
+    ///
+    /// ```no_run
+    /// // build.rs
+    /// fn main() {
+    ///     sinew::Builder::new()
+    ///         .spec_with_weights("models/pump_health.sinew", "models/pump_health.json")
+    ///         .compile_or_exit();
+    /// }
+    /// ```
+    pub fn compile_or_exit(&self) -> Vec<PathBuf> {
+        match self.compile_inner() {
+            Ok(files) => files,
+            Err(e) => {
+                eprintln!("error: {e}");
+                std::process::exit(1)
+            }
+        }
+    }
+
+    fn compile_inner(&self) -> Result<Vec<PathBuf>, BuildError> {
         let out_dir = match &self.out_dir {
             Some(d) => d.clone(),
             None => std::env::var_os("OUT_DIR")
@@ -304,9 +330,13 @@ impl Builder {
         };
         let code = match &entry.weights {
             Some(w) => {
-                let trained = Weights::load_fitted(w, &model).map_err(|e| BuildError::Weights {
-                    spec: path.clone(),
-                    message: e.to_string(),
+                let trained = Weights::load_fitted(w, &model).map_err(|e| {
+                    // Rendered like a spec's diagnostics: file, code, message, hint.
+                    let _ = writeln!(std::io::stderr().lock(), "{e}");
+                    BuildError::Weights {
+                        spec: path.clone(),
+                        message: e.to_string(),
+                    }
                 })?;
                 emit::generate_trained(&trained, &options)
             }
@@ -405,10 +435,10 @@ impl fmt::Display for BuildError {
             BuildError::Read { path, source } => {
                 write!(f, "cannot read spec `{}`: {source}", path.display())
             }
-            BuildError::Weights { spec, message } => {
+            BuildError::Weights { spec, .. } => {
                 write!(
                     f,
-                    "weights for spec `{}` do not fit: {message}",
+                    "the weights for spec `{}` do not fit it (diagnostic above)",
                     spec.display()
                 )
             }

@@ -241,7 +241,14 @@ mod tests {
     #[cfg(feature = "train")]
     fn weights_of_another_shape_are_refused() {
         let w = crate::workflow::init(&model(F64), None);
+        // Another model's file is named as such first.
         match encode(&model(F32_STD), &w) {
+            Err(PackError::Weights(e)) => assert_eq!(e.code, "F07"),
+            other => panic!("unexpected {other:?}"),
+        }
+        // The same model name with another scalar: the scalar is the first difference.
+        let renamed = F32_STD.replace("model gauge", "model latch");
+        match encode(&model(&renamed), &w) {
             Err(PackError::Weights(e)) => assert_eq!(e.code, "F11"),
             other => panic!("unexpected {other:?}"),
         }

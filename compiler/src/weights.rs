@@ -574,6 +574,21 @@ impl Weights {
     /// [`Weights::load_checked`] fills it in.
     pub fn check_against(&self, model: &Model) -> Result<(), WeightsError> {
         let err = |code, message: String| WeightsError::new(code, "", message);
+        if self.model != model.name && self.fingerprint != model.fingerprint() {
+            // Another model's file: say so before any detail of how the shapes differ.
+            return Err(err(
+                Code::F07,
+                format!(
+                    "the file holds the weights of model `{}` (fingerprint {:016x}), not of `{}` \
+                     (fingerprint {:016x})",
+                    self.model,
+                    self.fingerprint,
+                    model.name,
+                    model.fingerprint()
+                ),
+            )
+            .help("give the weights file trained for this spec, or train one for it"));
+        }
         if self.scalar != model.scalar {
             return Err(err(
                 Code::F11,

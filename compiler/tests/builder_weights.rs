@@ -47,10 +47,64 @@ fn weights_of_another_model_fail_the_build() {
         .compile()
         .unwrap_err();
     let text = err.to_string();
+    let sinew::builder::BuildError::Weights { message, .. } = &err else {
+        panic!("{text}")
+    };
+    assert!(text.contains("pump_health.sinew"), "{text}");
     assert!(
-        matches!(err, sinew::builder::BuildError::Weights { .. }),
-        "{text}"
+        message.contains("other.json") && message.contains("error[F07]"),
+        "{message}"
     );
-    assert!(text.contains("other.json"), "{text}");
     assert!(!dir.join("pump_health.rs").exists());
+}
+
+/// The build-script pattern: `compile_or_exit` in a child process (this test binary, task
+/// [`CHILD`]) fails with status 1 and clean messages: the rendered weights error, then one line,
+/// with no panic message or backtrace.
+#[test]
+fn compile_or_exit_fails_a_build_cleanly() {
+    let dir = scratch("bw", "exit");
+    let other = sinew::workflow::init(&model("samples/greenhouse_humidity.sinew"), None);
+    other.save(&dir.join("other.json")).unwrap();
+    let o = std::process::Command::new(std::env::current_exe().unwrap())
+        .args([
+            "child_compile_or_exit",
+            "--exact",
+            "--ignored",
+            "--nocapture",
+        ])
+        .env(CHILD, &dir)
+        .env("RUST_BACKTRACE", "1")
+        .output()
+        .unwrap();
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(1), "{err}");
+    assert!(
+        err.contains("other.json: error[F07]: the file holds the weights of model"),
+        "{err}"
+    );
+    assert!(err.contains("error: the weights for spec"), "{err}");
+    assert!(
+        !err.contains("panicked") && !err.contains("backtrace") && !err.contains("Weights {"),
+        "{err}"
+    );
+    let _ = std::fs::remove_dir_all(dir);
+}
+
+const CHILD: &str = "SINEW_BW_CHILD";
+
+#[test]
+#[ignore = "run by compile_or_exit_fails_a_build_cleanly"]
+fn child_compile_or_exit() {
+    let Some(dir) = std::env::var_os(CHILD).map(std::path::PathBuf::from) else {
+        return;
+    };
+    sinew::Builder::new()
+        .spec_with_weights(
+            root().join("samples/pump_health.sinew"),
+            dir.join("other.json"),
+        )
+        .out_dir(&dir)
+        .cargo_metadata(false)
+        .compile_or_exit();
 }

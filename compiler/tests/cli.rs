@@ -214,7 +214,9 @@ fn failures_exit_with_their_codes_and_write_nothing() {
     ]);
     assert_eq!(o.status.code(), Some(1), "{}", text(&o));
     assert!(
-        text(&o).contains("other.json") && text(&o).contains("the spec declares"),
+        text(&o).contains("other.json")
+            && text(&o).contains("error[F07]")
+            && text(&o).contains("weights of model `greenhouse_humidity`"),
         "{}",
         text(&o)
     );

@@ -151,6 +151,25 @@ pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnost
         );
         return;
     }
+    if !is_sigmoid && !is_softmax {
+        diags.push(
+            Diagnostic::error(
+                Code::S0505,
+                format!(
+                    "output `{}` lists classes, but its activation does not classify",
+                    out.name.node
+                ),
+                classes.span,
+            )
+            .label("classes")
+            .with_secondary(out.activation.span, "this output predicts values")
+            .with_help(
+                "remove `classes`, or make the output `sigmoid` or `softmax` with `loss \
+                 cross_entropy`",
+            ),
+        );
+        return;
+    }
     let Some(width) = out_width else { return };
     let found = classes.names.len();
     let one_sigmoid = width == 1 && is_sigmoid;
@@ -180,7 +199,10 @@ pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnost
         diags.push(
             Diagnostic::error(
                 Code::S0504,
-                format!("expected {expected} class names, found {found}"),
+                format!(
+                    "expected {expected} class {}, found {found}",
+                    if expected == 1 { "name" } else { "names" }
+                ),
                 classes.span,
             )
             .label(format!(

@@ -205,8 +205,11 @@ fn train(a: &TrainArgs) -> Done {
         options,
         start: commands::load_weights(model, a.weights.as_deref())?,
     };
-    let bar = progress_bar(a, model.name(), a.epochs.unwrap_or(model.train().epochs));
+    // The bar appears with the first epoch, so after the data has been read and checked.
+    let epochs = a.epochs.unwrap_or(model.train().epochs);
+    let mut bar: Option<indicatif::ProgressBar> = None;
     let mut on_epoch = |r: &EpochReport| {
+        let bar = bar.get_or_insert_with(|| progress_bar(a, model.name(), epochs));
         bar.set_position(u64::from(r.epoch));
         let mut msg = format!("cost {:.5}", r.train_cost);
         if let Some(v) = r.validation_cost {
@@ -218,8 +221,19 @@ fn train(a: &TrainArgs) -> Done {
         bar.set_message(msg);
     };
     let outcome = workflow::train(model, &req, &mut on_epoch);
-    bar.finish_and_clear();
-    let outcome = outcome.inspect_err(|_| eprintln!("nothing was written"))?;
+    if let Some(bar) = bar {
+        bar.finish_and_clear();
+    }
+    let outcome = match outcome {
+        Ok(o) => o,
+        Err(e) => {
+            // The cause first, then what it means for the output file.
+            let e = CommandError::from(e);
+            print_error(&e);
+            eprintln!("nothing was written");
+            return Ok(Some(e.exit_status()));
+        }
+    };
     if let Some(plot) = &a.plot {
         commands::create_parent(plot)?;
         let title = format!("{} training", model.name());
