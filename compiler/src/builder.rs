@@ -231,12 +231,10 @@ impl Builder {
     /// fails with clean messages and no panic message or backtrace.
     ///
     /// ```no_run
-    /// // build.rs
-    /// fn main() {
-    ///     sinew::Builder::new()
-    ///         .spec_with_weights("models/pump_health.sinew", "models/pump_health.json")
-    ///         .compile_or_exit();
-    /// }
+    /// // in build.rs, `fn main`:
+    /// sinew::Builder::new()
+    ///     .spec_with_weights("models/pump_health.sinew", "models/pump_health.json")
+    ///     .compile_or_exit();
     /// ```
     pub fn compile_or_exit(&self) -> Vec<PathBuf> {
         match self.compile_inner() {
