@@ -29,7 +29,6 @@ use crate::emit::{self, EmitOptions};
 use crate::fsutil;
 use crate::weights::Weights;
 use std::fmt;
-use std::io::Write;
 use std::path::{Component, Path, PathBuf};
 
 /// One spec to compile, with everything that is per spec (a weights file to bake in joins the
@@ -289,8 +288,8 @@ impl Builder {
         let shown = path.display().to_string();
         if !checked.diagnostics.is_empty() {
             let text = diag::render(&shown, &src, &checked.diagnostics, self.color);
-            let mut err = std::io::stderr().lock();
-            let _ = err.write_all(text.as_bytes());
+            // `eprint!`, not a raw stderr handle, so that a test harness captures it.
+            eprint!("{text}");
             if self.cargo_metadata && self.cargo_warnings {
                 for d in checked
                     .diagnostics
@@ -330,7 +329,7 @@ impl Builder {
             Some(w) => {
                 let trained = Weights::load_fitted(w, &model).map_err(|e| {
                     // Rendered like a spec's diagnostics: file, code, message, hint.
-                    let _ = writeln!(std::io::stderr().lock(), "{e}");
+                    eprintln!("{e}");
                     BuildError::Weights {
                         spec: path.clone(),
                         message: e.to_string(),

@@ -155,7 +155,10 @@ where
         .map_err(err)?;
     let mut mesh = chart.configure_mesh();
     if text {
-        mesh.x_desc("epoch").y_desc("cost J");
+        // Epochs are whole numbers: the axis labels say so.
+        mesh.x_desc("epoch")
+            .y_desc("cost")
+            .x_label_formatter(&|e: &f64| format!("{e:.0}"));
     } else {
         mesh.disable_x_axis().disable_y_axis();
     }

@@ -176,7 +176,7 @@ pub fn training(model: &Model, o: &crate::workflow::TrainOutcome) -> String {
     let line = |s: &mut String, name: &str, e: &crate::engine::eval::Evaluation| {
         let _ = write!(
             s,
-            "  {name:<10} {:>6} samples  cost {:.6}",
+            "  {name:<10} {:>6} samples  cost (with penalty) {:.6}",
             e.samples, e.cost
         );
         if let Some(a) = e.accuracy {
@@ -207,7 +207,7 @@ pub fn evaluation(model: &Model, e: &crate::engine::eval::Evaluation) -> String 
     let mut s = String::new();
     let _ = writeln!(
         s,
-        "{}: {} samples, cost {:.6}",
+        "{}: {} samples, cost (with penalty) {:.6}",
         model.name, e.samples, e.cost
     );
     if let (Some(acc), Some(conf), Some(classes)) = (e.accuracy, &e.confusion, &e.classes) {
@@ -230,11 +230,13 @@ pub fn evaluation(model: &Model, e: &crate::engine::eval::Evaluation) -> String 
     if let (Some(mae), Some(rmse)) = (&e.mae, &e.rmse) {
         let out = model.output();
         for (j, (a, r)) in mae.iter().zip(rmse).enumerate() {
-            let _ = writeln!(
-                s,
-                "  {}[{j}]: mean absolute error {a:.6}, rms error {r:.6}",
-                out.name
-            );
+            // A single output is named as in the spec; several get their unit index.
+            let name = if mae.len() == 1 {
+                out.name.clone()
+            } else {
+                format!("{}[{j}]", out.name)
+            };
+            let _ = writeln!(s, "  {name}: mean absolute error {a:.6}, rms error {r:.6}");
         }
     }
     s

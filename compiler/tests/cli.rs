@@ -122,7 +122,7 @@ fn init_train_eval_grad_gradcheck_round_trip() {
     let spec = "samples/pump_health.sinew";
     let data = "samples/pump_health.csv";
 
-    let o = sinew(&["init", spec, "-o", w0s]);
+    let o = sinew(&["initial-weights", spec, "-o", w0s]);
     assert_eq!(o.status.code(), Some(0), "{}", text(&o));
     let o = sinew(&[
         "train", spec, "--data", data, "-o", ws, "--epochs", "20", "--quiet", "--plot", plots,
@@ -195,7 +195,7 @@ fn failures_exit_with_their_codes_and_write_nothing() {
     let other = dir.join("other.json");
     assert_eq!(
         sinew(&[
-            "init",
+            "initial-weights",
             "samples/greenhouse_humidity.sinew",
             "-o",
             other.to_str().unwrap()

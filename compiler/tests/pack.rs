@@ -7,11 +7,11 @@ use common::*;
 use std::path::{Path, PathBuf};
 use std::process::Output;
 
-/// Fresh weights of the valve sample in `dir` (by `sinew init`), its path.
+/// Fresh weights of the valve sample in `dir` (by `sinew initial-weights`), its path.
 fn init_valve(dir: &Path) -> PathBuf {
     let weights = dir.join("valve.json");
     let o = sinew(&[
-        "init",
+        "initial-weights",
         "samples/valve_gate.sinew",
         "-o",
         weights.to_str().unwrap(),
@@ -71,7 +71,7 @@ fn weights_of_another_model_exit_1_and_write_nothing() {
         out.to_str().unwrap(),
     );
     assert_eq!(o.status.code(), Some(1), "{}", text(&o));
-    assert!(text(&o).contains("error[F11]"), "{}", text(&o));
+    assert!(text(&o).contains("error[F07]"), "{}", text(&o));
     assert!(!out.exists());
     std::fs::remove_dir_all(&dir).unwrap();
 }

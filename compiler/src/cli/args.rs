@@ -20,7 +20,7 @@ pub enum Command {
     /// Check spec files: print every diagnostic, then a summary of each model.
     Check {
         /// Spec files.
-        #[arg(required = true)]
+        #[arg(value_name = "SPEC", required = true)]
         files: Vec<PathBuf>,
         /// Print summaries and diagnostics as JSON on stdout.
         #[arg(long)]
@@ -29,6 +29,7 @@ pub enum Command {
     /// Generate the Rust module of one spec.
     Emit {
         /// Spec file.
+        #[arg(value_name = "SPEC")]
         file: PathBuf,
         /// Write to this file instead of stdout (replaced atomically, only when it changes).
         #[arg(short, long)]
@@ -41,7 +42,7 @@ pub enum Command {
         weights: Option<PathBuf>,
     },
     /// Write the spec's initial parameters (its `init` and `seed`) as a weights file.
-    Init {
+    InitialWeights {
         /// Spec file.
         spec: PathBuf,
         /// Weights file to write.
@@ -104,13 +105,13 @@ pub enum Command {
         #[arg(long)]
         data: Option<PathBuf>,
         /// Relative tolerance.
-        #[arg(long, default_value_t = 1e-6)]
-        threshold: f64,
+        #[arg(long, default_value = "1e-6")]
+        rtol: f64,
         /// Absolute tolerance (the noise floor of the difference quotient).
-        #[arg(long, default_value_t = 1e-9)]
+        #[arg(long, default_value = "1e-9")]
         atol: f64,
         /// Finite-difference step.
-        #[arg(long, default_value_t = 1e-5)]
+        #[arg(long, default_value = "1e-5")]
         step: f64,
         /// Check at most this many parameters per layer (drawn at random beyond it).
         #[arg(long, default_value_t = 200)]

@@ -32,7 +32,7 @@ fn main() -> ExitCode {
             unroll_below,
             weights,
         } => emit(&file, output.as_deref(), unroll_below, weights.as_deref()),
-        Command::Init { spec, output, seed } => init(&spec, &output, seed),
+        Command::InitialWeights { spec, output, seed } => init(&spec, &output, seed),
         Command::Train(args) => train(&args),
         Command::Eval {
             spec,
@@ -55,14 +55,14 @@ fn main() -> ExitCode {
             spec,
             weights,
             data,
-            threshold,
+            rtol,
             atol,
             step,
             max_per_layer,
         } => {
             let opts = GradcheckOptions {
                 step,
-                threshold,
+                threshold: rtol,
                 atol,
                 max_per_layer,
                 ..Default::default()

@@ -105,7 +105,7 @@ impl Section {
             Section::Output => "output NAME WIDTH ACTIVATION [classes A, B, ...]",
             Section::Loss => "loss cross_entropy|squared_error",
             Section::Penalty => "penalty none | penalty l2 LAMBDA | penalty l1 LAMBDA",
-            Section::Init => "init uniform EPS|glorot|he [seed N]",
+            Section::Init => "init uniform BOUND|glorot|he [seed N]",
             Section::Train => {
                 "train sgd rate R [momentum M] [batch N] [epochs N] \
                  | train adam rate R [beta1 B1] [beta2 B2] [batch N] [epochs N]"
@@ -283,7 +283,7 @@ pub enum PenaltyKind {
 /// An initialisation as written.
 #[derive(Debug, Clone, PartialEq)]
 pub enum InitKind {
-    /// `uniform EPS`
+    /// `uniform BOUND`
     Uniform {
         /// Half-width of the interval.
         eps: Number,
