@@ -155,12 +155,16 @@ fn missing_tools() -> Vec<String> {
             ));
         }
     }
-    for q in ["qemu-system-arm", "qemu-system-riscv32"] {
-        if !quiet_ok(Command::new(q).arg("--version")) {
-            missing.push(format!(
-                "{q} (Debian: `apt-get install qemu-system-arm qemu-system-misc`)"
-            ));
-        }
+    let qemu: Vec<&str> = ["qemu-system-arm", "qemu-system-riscv32"]
+        .into_iter()
+        .filter(|q| !quiet_ok(Command::new(q).arg("--version")))
+        .collect();
+    if !qemu.is_empty() {
+        // One hint for both emulators: one Debian command installs them.
+        missing.push(format!(
+            "{} (Debian: `apt-get install qemu-system-arm qemu-system-misc`)",
+            qemu.join(" and ")
+        ));
     }
     missing
 }
@@ -739,7 +743,10 @@ fn skip_or_fail(why: &[String]) {
     if std::env::var("SINEW_DEVICE").is_ok_and(|v| v == "require") {
         panic!("SINEW_DEVICE=require, but {text}");
     }
-    eprintln!("\n!! {text}\n");
+    // Past the harness's capture (a raw stderr handle, not `eprintln!`), so that the skip shows
+    // in a plain `cargo test --workspace` run rather than hiding behind "ok".
+    use std::io::Write as _;
+    let _ = writeln!(std::io::stderr(), "\n!! {text}\n");
 }
 
 #[test]
@@ -1042,4 +1049,28 @@ fn figures(host: &Host, rows: &[Row]) -> String {
         );
     }
     t
+}
+
+/// Without the tools, the skip is printed past the harness's capture: a plain test run (no
+/// `--nocapture`) shows it, with one install hint for both emulators.
+#[test]
+fn a_skipped_device_check_says_so_in_a_plain_run() {
+    if std::env::var_os("SINEW_DEVICE_SKIP_PROBE").is_some() {
+        return; // the child below
+    }
+    let o = Command::new(std::env::current_exe().expect("test binary"))
+        .args([
+            "firmware_on_emulated_boards_matches_the_workstation",
+            "--exact",
+        ])
+        .env("PATH", "/nonexistent-sinew-path")
+        .env("SINEW_DEVICE_SKIP_PROBE", "1")
+        .env_remove("SINEW_DEVICE")
+        .env_remove("SINEW_DEVICE_FIGURES")
+        .output()
+        .expect("the test binary runs");
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(o.status.success(), "{err}");
+    assert!(err.contains("device checks SKIPPED: missing"), "{err}");
+    assert_eq!(err.matches("apt-get install").count(), 1, "{err}");
 }
