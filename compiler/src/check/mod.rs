@@ -136,8 +136,16 @@ fn check_all(spec: &Spec) -> Checked {
     if !parts.has_invalid && !diags.iter().any(Diagnostic::is_error) {
         model = build(&parts, &widths, &activations, &settings, limits);
     }
-    if let Some(m) = &model {
-        budget::check(m, &parts, &mut diags);
+    match &model {
+        Some(m) => budget::check(m, &parts, &mut diags),
+        // Other errors do not hide the budget: whenever the figures can be computed (the sizes
+        // and the scalar are known), they are held against it too.
+        None if !parts.has_invalid => {
+            if let Some(m) = provisional(&parts, &widths, &activations, &settings, limits) {
+                budget::check(&m, &parts, &mut diags);
+            }
+        }
+        None => {}
     }
     diags.sort_by_key(|d| d.primary.span.start);
     if diags.iter().any(Diagnostic::is_error) {
@@ -335,6 +343,66 @@ fn sections<'a>(spec: &'a Spec, diags: &mut Vec<Diagnostic>) -> Parts<'a> {
     parts
 }
 
+/// A model with every size and the scalar of the spec, for the memory figures only, while other
+/// lines have errors: a setting that is missing or wrong takes its default (an activation, the
+/// identity; the loss, squared error). `None` when a size is unknown or there is no budget.
+fn provisional(
+    parts: &Parts<'_>,
+    widths: &shapes::Widths,
+    activations: &[Option<ir::Activation>],
+    settings: &shapes::Settings,
+    budget: Option<ir::Budget>,
+) -> Option<ir::Model> {
+    parts.budget?;
+    let input = parts.input?;
+    let output = parts.output?;
+    let mut fan_in = widths.input?;
+    let decls = parts
+        .layers
+        .iter()
+        .copied()
+        .chain(std::iter::once(output.layer));
+    let mut layers = Vec::new();
+    for (i, (decl, width)) in decls.zip(&widths.layers).enumerate() {
+        let width = (*width)?;
+        layers.push(ir::Layer {
+            name: decl.name.node.clone(),
+            width,
+            fan_in,
+            activation: activations
+                .get(i)
+                .copied()
+                .flatten()
+                .unwrap_or(ir::Activation::Identity),
+        });
+        fan_in = width;
+    }
+    let scalar = match parts.scalar.map(|s| s.node) {
+        Some(ScalarKind::F32) => ir::Scalar::F32,
+        Some(ScalarKind::F64) => ir::Scalar::F64,
+        None => ir::defaults::SCALAR,
+    };
+    Some(ir::Model {
+        name: parts
+            .model
+            .map_or_else(|| "model".to_string(), |m| m.node.clone()),
+        scalar,
+        input: ir::Input {
+            name: input.name.node.clone(),
+            width: widths.input?,
+            standardize: input.standardize,
+        },
+        layers,
+        classes: None,
+        loss: ir::Loss::SquaredError,
+        penalty: settings.penalty.unwrap_or(ir::defaults::PENALTY),
+        init: settings.init.unwrap_or(ir::defaults::INIT),
+        seed: settings.seed.unwrap_or(ir::defaults::SEED),
+        train: settings.train.unwrap_or(ir::defaults::TRAIN),
+        budget: budget?,
+    })
+}
+
 /// Assembles the model once every check has passed.
 fn build(
     parts: &Parts<'_>,
@@ -405,6 +473,17 @@ mod tests {
     }
 
     const OK: &str = "model m\ninput x 2\noutput y 1 sigmoid\nloss cross_entropy\n";
+
+    #[test]
+    fn a_budget_error_is_reported_with_the_others() {
+        // Two unrelated errors (a layer name used twice, a bad rate) and a flash budget far
+        // below the model's parameters: all three are reported in one run.
+        let src = "model m\ninput x 2\nlayer h 16 relu\nlayer h 4 relu\noutput y 1 sigmoid\n\
+                   loss cross_entropy\ntrain sgd rate -1\nbudget flash 8 B\n";
+        let found = codes(src);
+        assert!(found.contains(&Code::S0701), "{found:?}");
+        assert!(found.len() >= 3, "{found:?}");
+    }
 
     #[test]
     fn a_minimal_spec_is_clean() {
