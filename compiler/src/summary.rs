@@ -15,8 +15,8 @@ pub struct FileSummary<'a> {
     pub file: &'a str,
     /// True when the spec has no errors.
     pub ok: bool,
-    /// Every finding, errors and warnings, in source order.
-    pub diagnostics: &'a [Diagnostic],
+    /// Every finding, errors and warnings, in source order, with line and column.
+    pub diagnostics: Vec<Located<'a>>,
     /// The checked model and its report, when there are no errors.
     pub model: Option<ModelSummary<'a>>,
 }
@@ -32,13 +32,76 @@ pub struct ModelSummary<'a> {
     pub report: Report,
 }
 
+/// A place in the spec text: 1-based line and column (in characters), as an editor shows them.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub struct Position {
+    /// Line, from 1.
+    pub line: usize,
+    /// Column, from 1, counted in characters.
+    pub column: usize,
+}
+
+impl Position {
+    /// The position of byte offset `at` in `src` (clamped to the text).
+    pub fn of(src: &str, at: usize) -> Position {
+        let mut at = at.min(src.len());
+        while !src.is_char_boundary(at) {
+            at -= 1;
+        }
+        let before = &src[..at];
+        let line_start = before.rfind('\n').map_or(0, |i| i + 1);
+        Position {
+            line: before.matches('\n').count() + 1,
+            column: before[line_start..].chars().count() + 1,
+        }
+    }
+}
+
+/// Where a span starts and ends.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub struct Location {
+    /// First character.
+    pub start: Position,
+    /// One past the last character.
+    pub end: Position,
+}
+
+/// A diagnostic in the `--json` form: its fields (byte spans included), plus the line and column
+/// of the primary span and of each secondary span.
+#[derive(Debug, Serialize)]
+pub struct Located<'a> {
+    /// The diagnostic.
+    #[serde(flatten)]
+    pub diagnostic: &'a Diagnostic,
+    /// Where its primary span is.
+    pub location: Location,
+    /// Where each secondary span is, in order.
+    pub secondary_locations: Vec<Location>,
+}
+
 impl<'a> FileSummary<'a> {
-    /// Builds the summary of one file.
-    pub fn new(file: &'a str, model: Option<&'a Model>, diagnostics: &'a [Diagnostic]) -> Self {
+    /// Builds the summary of one file; `src` is its text, for line and column.
+    pub fn new(
+        file: &'a str,
+        src: &str,
+        model: Option<&'a Model>,
+        diagnostics: &'a [Diagnostic],
+    ) -> Self {
+        let loc = |sp: crate::span::Span| Location {
+            start: Position::of(src, sp.start),
+            end: Position::of(src, sp.end),
+        };
         FileSummary {
             file,
             ok: !diagnostics.iter().any(Diagnostic::is_error),
-            diagnostics,
+            diagnostics: diagnostics
+                .iter()
+                .map(|d| Located {
+                    diagnostic: d,
+                    location: loc(d.primary.span),
+                    secondary_locations: d.secondary.iter().map(|l| loc(l.span)).collect(),
+                })
+                .collect(),
             model: model.map(|m| ModelSummary {
                 ir: m,
                 fingerprint: format!("{:016x}", m.fingerprint()),

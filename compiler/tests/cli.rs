@@ -274,3 +274,26 @@ fn failures_exit_with_their_codes_and_write_nothing() {
     ]);
     assert_eq!(o.status.code(), Some(2), "{}", text(&o));
 }
+
+#[test]
+fn check_json_gives_line_and_column_of_each_span() {
+    let dir = scratch("cli", "json-lines");
+    // A non-ASCII name before the error on line 3: columns count characters, not bytes.
+    let spec = dir.join("wide.sinew");
+    std::fs::write(
+        &spec,
+        "# pompe à eau\nmodel m\ninput x 0\noutput y 1 sigmoid\nloss cross_entropy\n",
+    )
+    .unwrap();
+    let o = sinew(&["check", "--json", spec.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(1), "{}", text(&o));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let d = &v[0]["diagnostics"][0];
+    assert_eq!(d["code"], "S0401");
+    assert_eq!(d["location"]["start"]["line"], 3);
+    assert_eq!(d["location"]["start"]["column"], 9);
+    assert_eq!(d["location"]["end"]["column"], 10);
+    // The byte span is still there.
+    assert_eq!(d["primary"]["span"]["start"], 31);
+    let _ = std::fs::remove_dir_all(dir);
+}

@@ -123,7 +123,7 @@ fn check(files: &[PathBuf], json: bool) -> Done {
     let mut summaries = Vec::new();
     for spec in &specs {
         let (name, diags) = (spec.name.as_str(), &spec.checked.diagnostics);
-        let summary = FileSummary::new(name, spec.checked.model.as_ref(), diags);
+        let summary = FileSummary::new(name, &spec.src, spec.checked.model.as_ref(), diags);
         if !summary.ok {
             worsen(ExitStatus::Spec);
         }
