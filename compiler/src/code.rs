@@ -152,6 +152,8 @@ codes! {
     D14,
     /// Data that starts like gzip is not a valid gzip stream.
     D15,
+    /// The first line holds numbers: the file has no header.
+    D16,
     // Weights file errors (the loaders of [`crate::weights`] and the build API).
     /// The file cannot be read or written.
     F01,

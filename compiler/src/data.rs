@@ -40,6 +40,7 @@
 //! | `D13` | a cross-entropy target is outside `[0, 1]` |
 //! | `D14` | the data passes a limit of [`crate::stream`] (size, or a gzip bomb) |
 //! | `D15` | data that starts like gzip is not a valid gzip stream |
+//! | `D16` | the first line holds numbers: the file has no header |
 //!
 //! # Examples
 //! ```
@@ -400,6 +401,16 @@ fn read_from<R: Read>(
     let out = model.output();
     let n_out = out.width;
     let classifier = model.is_classifier();
+    if !header.is_empty() && header.iter().all(|h| h.parse::<f64>().is_ok()) {
+        // Read as a header, a line of numbers would shift every sample by one line and fail later.
+        return Err(DataError::new(
+            Code::D16,
+            name,
+            Some(header_line),
+            "the first line holds numbers: the file has no header",
+        )
+        .help(header_help(model)));
+    }
     let last_is_label = header.len() == n_in + 1 && header.last().is_some_and(|h| h == "label");
     let layout = if last_is_label && classifier {
         Layout::Label
@@ -455,6 +466,11 @@ fn read_from<R: Read>(
                 .is_some_and(|h| h.eq_ignore_ascii_case("label"))
         {
             e = e.help("the label column's header must be exactly `label` (lowercase)");
+        } else if classifier && header.len() == n_in + 1 {
+            e = e.help(format!(
+                "for a class per line, head the last column exactly `label` (it is {})",
+                quote(header.last().map_or("", String::as_str))
+            ));
         } else {
             e = e.help(header_help(model));
         }
@@ -511,6 +527,12 @@ fn read_from<R: Read>(
                             e.help(format!(
                                 "a `label` column holds classes only for a cross-entropy model; `{}` is a regressor, so this column is the target value of output `{}`",
                                 model.name, out.name
+                            ))
+                        } else if classifier && width == n_in + 1 {
+                            // A class per line under a header other than `label`.
+                            e.help(format!(
+                                "a class name or index per line needs the last column headed exactly `label` (it is {})",
+                                quote(header.get(j).map_or("", String::as_str))
                             ))
                         } else {
                             e

@@ -391,3 +391,39 @@ fn statistics_come_from_the_training_split() {
     assert_eq!(mean[0], by_hand);
     assert_ne!(mean[0], 9.5, "the mean of all 20 samples would be 9.5");
 }
+
+#[test]
+fn a_file_without_a_header_is_named_as_such() {
+    let m = sample("valve_gate");
+    let e = read_csv_str("gate.csv", "0,1,1\n1,1,0\n", &m).unwrap_err();
+    assert_eq!(e.code, "D16", "{e}");
+    assert!(
+        e.to_string().starts_with(
+            "gate.csv:1: error[D16]: the first line holds numbers: the file has no header\n  \
+             help: a header for `valve_gate` reads `switches1,switches2,label`"
+        ),
+        "{e}"
+    );
+}
+
+#[test]
+fn a_class_column_not_headed_label_says_what_is_expected() {
+    // valve_gate: 2 inputs, a one-unit sigmoid output with classes `shut, open`.
+    let m = sample("valve_gate");
+    let e = read_csv_str("gate.csv", "a,b,state\n0,1,open\n", &m).unwrap_err();
+    assert_eq!(e.code, "D06", "{e}");
+    let help = e.help.clone().unwrap_or_default();
+    assert!(
+        help.contains("headed exactly `label` (it is `state`)"),
+        "{help}"
+    );
+    // pump_health: 6 inputs, a three-unit softmax: 7 columns fit only the label layout.
+    let m = sample("pump_health");
+    let e = read_csv_str("p.csv", "a,b,c,d,e,f,class\n1,2,3,4,5,6,normal\n", &m).unwrap_err();
+    assert_eq!(e.code, "D04", "{e}");
+    let help = e.help.clone().unwrap_or_default();
+    assert!(
+        help.contains("head the last column exactly `label` (it is `class`)"),
+        "{help}"
+    );
+}
