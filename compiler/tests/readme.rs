@@ -1,5 +1,5 @@
-//! The README cannot rot: every `cargo run -p sinew -- ...` command in its shell blocks (the
-//! quick start and the walk-through) runs here, in order, with the `sinew` binary of this build,
+//! The README cannot rot: every `cargo run -p sinew -- ...` and `sinew ...` command in its shell
+//! blocks (the quick start and the walk-through) runs here, in order, with the `sinew` binary of this build,
 //! and must succeed. The quick start's other command, `cargo test --workspace`, is this suite.
 
 use std::path::Path;
@@ -34,14 +34,26 @@ fn every_readme_command_runs() {
         commands.iter().any(|c| c == "cargo test --workspace"),
         "the quick start names the test command"
     );
+    // The walk-through installs the command before it uses it bare.
+    let install = commands.iter().position(|c| c == "cargo install --path compiler");
+    let first_bare = commands.iter().position(|c| c.starts_with("sinew "));
+    assert!(
+        matches!((install, first_bare), (Some(i), Some(b)) if i < b),
+        "`cargo install --path compiler` comes before the first bare `sinew` command"
+    );
     let mut ran = 0;
     for cmd in &commands {
-        let Some((_, args)) = cmd.split_once("-p sinew -- ") else {
-            assert!(
-                cmd.starts_with("cargo test"),
-                "unexpected README command: {cmd}"
-            );
-            continue;
+        // `cargo run ... -p sinew -- ARGS` (the quick start) or `sinew ARGS` (the walk-through,
+        // after `cargo install --path compiler`): both run this build's binary.
+        let args = match (cmd.split_once("-p sinew -- "), cmd.strip_prefix("sinew ")) {
+            (Some((_, args)), _) | (None, Some(args)) => args,
+            (None, None) => {
+                assert!(
+                    cmd.starts_with("cargo test") || cmd == "cargo install --path compiler",
+                    "unexpected README command: {cmd}"
+                );
+                continue;
+            }
         };
         let args: Vec<&str> = args.split_whitespace().collect();
         let o = Command::new(env!("CARGO_BIN_EXE_sinew"))
