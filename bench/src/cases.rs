@@ -267,7 +267,8 @@ fn engine_cases(v: &mut Vec<Case>, shape: Shape, layers: &crate::Layers) {
                 black_box(&data.xs[i * n_in..(i + 1) * n_in]),
                 &mut s,
                 &mut out,
-            );
+            )
+            .expect("operands of the model's widths");
             black_box(&out);
         }
     }));
@@ -280,7 +281,10 @@ fn engine_cases(v: &mut Vec<Case>, shape: Shape, layers: &crate::Layers) {
                 &data.xs[i * n_in..(i + 1) * n_in],
                 &data.ys[i * n_out..(i + 1) * n_out],
             );
-            black_box(net.backprop(p, black_box(x), y, &mut grad, &mut s));
+            black_box(
+                net.backprop(p, black_box(x), y, &mut grad, &mut s)
+                    .expect("operands of the model's widths"),
+            );
         }
         black_box(&grad);
     }));
@@ -289,14 +293,17 @@ fn engine_cases(v: &mut Vec<Case>, shape: Shape, layers: &crate::Layers) {
         let mut grad = engine::Params::zero_gradient(model);
         let mut scratch = batch::BatchScratch::new(model);
         for _ in 0..iters {
-            black_box(batch::gradient_into_with(
-                net,
-                p,
-                black_box(&data.xs),
-                &data.ys,
-                &mut grad,
-                &mut scratch,
-            ));
+            black_box(
+                batch::gradient_into_with(
+                    net,
+                    p,
+                    black_box(&data.xs),
+                    &data.ys,
+                    &mut grad,
+                    &mut scratch,
+                )
+                .expect("whole samples"),
+            );
         }
         black_box(&grad);
     }));

@@ -63,12 +63,16 @@ fn engine_run(
         .take(8)
     {
         let mut out = vec![0.0; n_out];
-        net.predict(&p, x, &mut s, &mut out);
+        net.predict(&p, x, &mut s, &mut out)
+            .expect("a sample of the model's width");
         preds.extend(out);
-        net.backprop(&p, x, y, &mut grad, &mut s);
+        net.backprop(&p, x, y, &mut grad, &mut s)
+            .expect("a sample of the model's width");
     }
     let per_sample = engine_flat(&grad);
-    let cost = batch::gradient_into(&net, &p, &data.xs, &data.ys, &mut grad).unwrap_or(f32::NAN);
+    let cost = batch::gradient_into(&net, &p, &data.xs, &data.ys, &mut grad)
+        .expect("whole samples")
+        .unwrap_or(f32::NAN);
     (preds, per_sample, cost, engine_flat(&grad))
 }
 

@@ -62,10 +62,14 @@ fn run<T: Real + Send + Sync>(
     let x: Vec<T> = x.iter().map(|&v| T::from_f64(v)).collect();
     let y: Vec<T> = y.iter().map(|&v| T::from_f64(v)).collect();
     let mut out = vec![T::ZERO; m.output().width];
-    net.predict(p, &x, &mut s, &mut out);
+    net.predict(p, &x, &mut s, &mut out)
+        .expect("operands of the model's widths");
     let mut g = engine::Params::<T>::zero_gradient(m);
-    let loss = net.backprop(p, &x, &y, &mut g, &mut s);
-    net.finish(&mut g, p, 1);
+    let loss = net
+        .backprop(p, &x, &y, &mut g, &mut s)
+        .expect("operands of the model's widths");
+    net.finish(&mut g, p, 1)
+        .expect("operands of the model's widths");
     (
         out.iter().map(|v| v.to_f64()).collect(),
         loss.to_f64(),
@@ -334,6 +338,7 @@ fn dead_relu_units_get_exactly_zero_gradient_and_stay_put() {
     let ys = [1.0, -1.0, 0.5];
     let mut g = engine::Params::<f64>::zero_gradient(&m);
     let cost = engine::batch::gradient_into(&engine::Net::new(&m), &p, &xs, &ys, &mut g)
+        .expect("whole samples")
         .expect("a non-empty batch");
     assert!(cost.is_finite());
     let h = &g.layers[0];
@@ -343,7 +348,7 @@ fn dead_relu_units_get_exactly_zero_gradient_and_stay_put() {
     let y = &g.layers[1];
     assert_eq!(&y.weights[1..], &[0.0; 2]);
     let mut t = engine::Trainer::new(&m, p.clone());
-    t.step(&xs, &ys);
+    t.step(&xs, &ys).expect("whole samples");
     let after = &t.params.layers;
     for k in 2..6 {
         assert_eq!(
@@ -373,6 +378,7 @@ fn a_zero_penalty_is_exactly_no_penalty() {
     let grad = |m: &Model| {
         let mut g = engine::Params::<f64>::zero_gradient(m);
         let c = engine::batch::gradient_into(&engine::Net::new(m), &p, &xs, &ys, &mut g)
+            .expect("whole samples")
             .expect("non-empty");
         (
             c.to_bits(),
@@ -417,16 +423,20 @@ fn a_one_unit_cross_entropy_output_is_logistic_regression() {
         let z: f64 = 1.5 * x[0] - 0.75 * x[1] + 0.25;
         let a = 1.0 / (1.0 + (-z).exp());
         let handbook = -(y * a.ln() + (1.0 - y) * (1.0 - a).ln());
-        let loss = net.loss(&p, &x, &[y], &mut s);
+        let loss = net
+            .loss(&p, &x, &[y], &mut s)
+            .expect("operands of the model's widths");
         assert!(
             (loss - handbook).abs() <= 1e-10 * handbook,
             "{loss} vs {handbook}"
         );
         let mut out = [0.0];
-        net.predict(&p, &x, &mut s, &mut out);
+        net.predict(&p, &x, &mut s, &mut out)
+            .expect("operands of the model's widths");
         assert_eq!(engine::eval::class_of(&out), usize::from(a > 0.5));
         let mut g = engine::Params::<f64>::zero_gradient(&m);
-        net.backprop(&p, &x, &[y], &mut g, &mut s);
+        net.backprop(&p, &x, &[y], &mut g, &mut s)
+            .expect("operands of the model's widths");
         // dJ/db = a - y for one sample.
         assert!((g.layers[0].bias[0] - (a - y)).abs() < 1e-15);
     }
@@ -439,7 +449,7 @@ fn a_one_unit_cross_entropy_output_is_logistic_regression() {
         max_per_layer: 100,
         seed: 1,
     };
-    for l in gradcheck::check(&m, &p, &xs, &ys, &opts) {
+    for l in gradcheck::check(&m, &p, &xs, &ys, &opts).expect("whole samples") {
         assert_eq!(l.failures, 0, "{l:?}");
         assert_eq!(l.checked, 3);
     }
@@ -453,17 +463,17 @@ fn a_confident_correct_logistic_unit_keeps_its_relative_accuracy() {
     // unit). The form `softplus(z) - y z` cancels: in f32 it returned 0 from |z| of about 15
     // on and lost digits well before. Reference: ln(1 + e^-|z|) with the standard library's `exp`
     // and `ln_1p`, in the same scalar type.
-    use sinew_runtime::loss::logistic_cross_entropy;
+    use sinew_runtime::loss::logistic_cross_entropy_n;
     for k in 1..=60 {
         let z = f64::from(k);
         let truth = (-z).exp().ln_1p();
         for (zz, y) in [(z, 1.0), (-z, 0.0)] {
-            let got = logistic_cross_entropy(&[zz], &[y]);
+            let got = logistic_cross_entropy_n(&[zz], &[y]);
             assert!(
                 (got - truth).abs() <= 4.0 * f64::EPSILON * truth,
                 "f64 z {zz} y {y}: {got:e} vs {truth:e}"
             );
-            let got32 = f64::from(logistic_cross_entropy(&[zz as f32], &[y as f32]));
+            let got32 = f64::from(logistic_cross_entropy_n(&[zz as f32], &[y as f32]));
             let truth32 = f64::from((-(z as f32)).exp().ln_1p());
             assert!(
                 (got32 - truth32).abs() <= 4.0 * f64::from(f32::EPSILON) * truth32,

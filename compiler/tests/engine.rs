@@ -52,7 +52,9 @@ fn parallel_batch_gradient_equals_sequential_loop_bitwise() {
     let xs: Vec<f32> = xs.iter().map(|&v| v as f32).collect();
     let ys: Vec<f32> = ys.iter().map(|&v| v as f32).collect();
     let mut g_seq = Params::zero_gradient(&m);
-    let c_seq = batch::gradient_sequential(&net, &p, &xs, &ys, &mut g_seq).unwrap();
+    let c_seq = batch::gradient_sequential(&net, &p, &xs, &ys, &mut g_seq)
+        .expect("whole samples")
+        .unwrap();
     let run = |threads: usize| {
         let pool = rayon::ThreadPoolBuilder::new()
             .num_threads(threads)
@@ -60,7 +62,9 @@ fn parallel_batch_gradient_equals_sequential_loop_bitwise() {
             .unwrap();
         pool.install(|| {
             let mut g = Params::zero_gradient(&m);
-            let c = batch::gradient_into(&net, &p, &xs, &ys, &mut g).unwrap();
+            let c = batch::gradient_into(&net, &p, &xs, &ys, &mut g)
+                .expect("whole samples")
+                .unwrap();
             (c, g)
         })
     };
@@ -72,8 +76,12 @@ fn parallel_batch_gradient_equals_sequential_loop_bitwise() {
     assert_eq!(bits(&g1), bits(&g2));
     // The parallel cost equals the plain per-sample cost too.
     assert_eq!(
-        batch::cost(&net, &p, &xs, &ys).to_bits(),
-        net.cost(&p, &xs, &ys).to_bits()
+        batch::cost(&net, &p, &xs, &ys)
+            .expect("operands of the model's widths")
+            .to_bits(),
+        net.cost(&p, &xs, &ys)
+            .expect("operands of the model's widths")
+            .to_bits()
     );
 }
 
@@ -108,9 +116,13 @@ fn reused_batch_buffers_give_the_sequential_bits_for_any_size_and_shape() {
         let xs: Vec<f32> = xs.iter().map(|&v| v as f32).collect();
         let ys: Vec<f32> = ys.iter().map(|&v| v as f32).collect();
         let mut g_seq = Params::zero_gradient(m);
-        let c_seq = batch::gradient_sequential(&net, &p, &xs, &ys, &mut g_seq).unwrap();
+        let c_seq = batch::gradient_sequential(&net, &p, &xs, &ys, &mut g_seq)
+            .expect("whole samples")
+            .unwrap();
         let mut g = Params::zero_gradient(m);
-        let c = batch::gradient_into_with(&net, &p, &xs, &ys, &mut g, &mut scratch).unwrap();
+        let c = batch::gradient_into_with(&net, &p, &xs, &ys, &mut g, &mut scratch)
+            .expect("whole samples")
+            .unwrap();
         assert_eq!(c_seq.to_bits(), c.to_bits(), "case {k}: cost");
         assert_eq!(bits(&g_seq), bits(&g), "case {k}: gradient");
     }
@@ -122,9 +134,15 @@ fn empty_batch_gives_none_and_zero_gradient() {
     let net = Net::<f32>::new(&m);
     let p = Params::<f32>::init(&m, 1);
     let mut g = Params::zero_gradient(&m);
-    assert!(batch::gradient_into(&net, &p, &[], &[], &mut g).is_none());
+    assert!(batch::gradient_into(&net, &p, &[], &[], &mut g)
+        .expect("whole samples")
+        .is_none());
     assert!(bits(&g).iter().all(|&b| b == 0));
-    assert_eq!(net.cost(&p, &[], &[]), 0.0);
+    assert_eq!(
+        net.cost(&p, &[], &[])
+            .expect("operands of the model's widths"),
+        0.0
+    );
 }
 
 #[test]
@@ -164,7 +182,7 @@ fn gradient_matches_central_differences_for_every_activation_and_penalty() {
             max_per_layer: 1000,
             seed: 1,
         };
-        let checks = gradcheck::check(&m, &p, &xs, &ys, &opts);
+        let checks = gradcheck::check(&m, &p, &xs, &ys, &opts).expect("whole samples");
         for c in checks {
             assert_eq!(
                 c.failures,
@@ -194,7 +212,9 @@ fn training_lowers_the_cost_with_every_method() {
     let data = Samples::<f64>::from_rows(&inputs, &targets, Some(&[0, 1, 1, 0]));
     let net = Net::<f64>::new(&m);
     let start = Params::<f64>::init(&m, 3);
-    let before = net.cost(&start, &data.xs, &data.ys);
+    let before = net
+        .cost(&start, &data.xs, &data.ys)
+        .expect("operands of the model's widths");
     let methods = [
         None,
         Some(Method::GradientDescent { rate: 0.5 }),
@@ -221,7 +241,9 @@ fn training_lowers_the_cost_with_every_method() {
         };
         let mut seen = 0;
         let s = train(&m, &mut p, &data, None, &opts, &mut |_| seen += 1).unwrap();
-        let after = net.cost(&p, &data.xs, &data.ys);
+        let after = net
+            .cost(&p, &data.xs, &data.ys)
+            .expect("operands of the model's widths");
         assert!(seen > 0 && seen == s.history.len());
         assert!(
             after < before * 0.5,

@@ -35,7 +35,9 @@ fn every_readme_command_runs() {
         "the quick start names the test command"
     );
     // The walk-through installs the command before it uses it bare.
-    let install = commands.iter().position(|c| c == "cargo install --path compiler");
+    let install = commands
+        .iter()
+        .position(|c| c == "cargo install --path compiler");
     let first_bare = commands.iter().position(|c| c.starts_with("sinew "));
     assert!(
         matches!((install, first_bare), (Some(i), Some(b)) if i < b),

@@ -89,12 +89,18 @@ fn engine_pass<T: sinew_runtime::Real + Send + Sync>(model: &Model) {
     let x = vec![T::from_f64(0.5); model.input().width];
     let y = vec![T::ZERO; model.output().width];
     let mut out = vec![T::ZERO; model.output().width];
-    net.predict(&params, &x, &mut s, &mut out);
+    net.predict(&params, &x, &mut s, &mut out)
+        .expect("operands of the model's widths");
     let mut g = engine::Params::zero_gradient(model);
-    let _ = net.backprop(&params, &x, &y, &mut g, &mut s);
-    net.finish(&mut g, &params, 1);
+    let _ = net
+        .backprop(&params, &x, &y, &mut g, &mut s)
+        .expect("operands of the model's widths");
+    net.finish(&mut g, &params, 1)
+        .expect("operands of the model's widths");
     let mut trainer = engine::Trainer::new(model, params);
-    let _ = trainer.step(&x, &y);
+    let _ = trainer
+        .step(&x, &y)
+        .expect("operands of the model's widths");
 }
 
 /// Three small models every file input is read against: a standardized one-unit classifier
@@ -158,7 +164,8 @@ fn weights(text: &str, models: &[Model]) {
             let mut s = Scratch::new(model);
             let x = vec![1.0; model.input().width];
             let mut out = vec![0.0; model.output().width];
-            net.predict(&p, &x, &mut s, &mut out);
+            net.predict(&p, &x, &mut s, &mut out)
+                .expect("operands of the model's widths");
         }
     }
 }

@@ -3,10 +3,12 @@
 //! Forward functions work in place on a buffer that holds the pre-activations `z` and afterwards
 //! the activations `a = g(z)`. Backward functions work in place on an error buffer `d` given the
 //! layer's activations `a` (not `z`): each derivative is written in terms of the output, which is
-//! what a layer keeps. Slices of different lengths are paired by `zip`: surplus elements are left
-//! untouched.
+//! what a layer keeps. The error and the activations must have one length: the slice forms
+//! return [`LengthMismatch`] otherwise (and write nothing); the array forms (`_n`: one sample,
+//! `_batch_n`: the rows of a block of samples) take operands whose types fix the row length.
 
 use crate::linalg::{padded, LANES};
+use crate::shape::{self, LengthMismatch};
 use crate::Real;
 
 /// Identity `g(z) = z`: leaves `v` as it is.
@@ -29,11 +31,20 @@ pub fn identity<T: Real>(v: &mut [T]) {
 ///
 /// ```
 /// let mut d = [0.5];
-/// sinew_runtime::act::identity_grad(&[3.0], &mut d);
+/// sinew_runtime::act::identity_grad(&[3.0], &mut d)?;
 /// assert_eq!(d, [0.5]);
+/// # Ok::<(), sinew_runtime::LengthMismatch>(())
 /// ```
 #[inline]
-pub fn identity_grad<T: Real>(a: &[T], d: &mut [T]) {
+pub fn identity_grad<T: Real>(a: &[T], d: &mut [T]) -> Result<(), LengthMismatch> {
+    shape::expect("d", a.len(), d.len())?;
+    identity_grad_kernel(a, d);
+    Ok(())
+}
+
+/// The loop of [`identity_grad`], on operands whose lengths agree.
+#[inline]
+fn identity_grad_kernel<T: Real>(a: &[T], d: &mut [T]) {
     let _ = (a, d);
 }
 
@@ -109,10 +120,18 @@ pub(crate) fn by_lanes<T: Real>(v: &mut [T], f: impl Fn(T) -> T) {
 ///
 /// ```
 /// let mut d = [1.0];
-/// sinew_runtime::act::sigmoid_grad(&[0.5], &mut d);
+/// sinew_runtime::act::sigmoid_grad(&[0.5], &mut d)?;
 /// assert_eq!(d, [0.25]);
+/// # Ok::<(), sinew_runtime::LengthMismatch>(())
 /// ```
-pub fn sigmoid_grad<T: Real>(a: &[T], d: &mut [T]) {
+pub fn sigmoid_grad<T: Real>(a: &[T], d: &mut [T]) -> Result<(), LengthMismatch> {
+    shape::expect("d", a.len(), d.len())?;
+    sigmoid_grad_kernel(a, d);
+    Ok(())
+}
+
+/// The loop of [`sigmoid_grad`], on operands whose lengths agree.
+fn sigmoid_grad_kernel<T: Real>(a: &[T], d: &mut [T]) {
     for (dj, aj) in d.iter_mut().zip(a) {
         *dj *= *aj * (T::ONE - *aj);
     }
@@ -138,10 +157,18 @@ pub fn tanh<T: Real>(v: &mut [T]) {
 ///
 /// ```
 /// let mut d = [2.0];
-/// sinew_runtime::act::tanh_grad(&[0.5], &mut d);
+/// sinew_runtime::act::tanh_grad(&[0.5], &mut d)?;
 /// assert_eq!(d, [1.5]);
+/// # Ok::<(), sinew_runtime::LengthMismatch>(())
 /// ```
-pub fn tanh_grad<T: Real>(a: &[T], d: &mut [T]) {
+pub fn tanh_grad<T: Real>(a: &[T], d: &mut [T]) -> Result<(), LengthMismatch> {
+    shape::expect("d", a.len(), d.len())?;
+    tanh_grad_kernel(a, d);
+    Ok(())
+}
+
+/// The loop of [`tanh_grad`], on operands whose lengths agree.
+fn tanh_grad_kernel<T: Real>(a: &[T], d: &mut [T]) {
     for (dj, aj) in d.iter_mut().zip(a) {
         *dj *= T::ONE - *aj * *aj;
     }
@@ -172,10 +199,18 @@ pub fn relu<T: Real>(v: &mut [T]) {
 ///
 /// ```
 /// let mut d = [5.0, 5.0, 5.0];
-/// sinew_runtime::act::relu_grad(&[0.0, 1.0, 0.0], &mut d);
+/// sinew_runtime::act::relu_grad(&[0.0, 1.0, 0.0], &mut d)?;
 /// assert_eq!(d, [0.0, 5.0, 0.0]);
+/// # Ok::<(), sinew_runtime::LengthMismatch>(())
 /// ```
-pub fn relu_grad<T: Real>(a: &[T], d: &mut [T]) {
+pub fn relu_grad<T: Real>(a: &[T], d: &mut [T]) -> Result<(), LengthMismatch> {
+    shape::expect("d", a.len(), d.len())?;
+    relu_grad_kernel(a, d);
+    Ok(())
+}
+
+/// The loop of [`relu_grad`], on operands whose lengths agree.
+fn relu_grad_kernel<T: Real>(a: &[T], d: &mut [T]) {
     for (dj, aj) in d.iter_mut().zip(a) {
         *dj = if *aj > T::ZERO { *dj } else { T::ZERO };
     }
@@ -208,10 +243,18 @@ pub fn leaky_relu<T: Real>(v: &mut [T], alpha: T) {
 ///
 /// ```
 /// let mut d = [4.0, 4.0];
-/// sinew_runtime::act::leaky_relu_grad(&[-0.5, 3.0], &mut d, 0.25);
+/// sinew_runtime::act::leaky_relu_grad(&[-0.5, 3.0], &mut d, 0.25)?;
 /// assert_eq!(d, [1.0, 4.0]);
+/// # Ok::<(), sinew_runtime::LengthMismatch>(())
 /// ```
-pub fn leaky_relu_grad<T: Real>(a: &[T], d: &mut [T], alpha: T) {
+pub fn leaky_relu_grad<T: Real>(a: &[T], d: &mut [T], alpha: T) -> Result<(), LengthMismatch> {
+    shape::expect("d", a.len(), d.len())?;
+    leaky_relu_grad_kernel(a, d, alpha);
+    Ok(())
+}
+
+/// The loop of [`leaky_relu_grad`], on operands whose lengths agree.
+fn leaky_relu_grad_kernel<T: Real>(a: &[T], d: &mut [T], alpha: T) {
     for (dj, aj) in d.iter_mut().zip(a) {
         if *aj > T::ZERO {
             continue;
@@ -266,11 +309,99 @@ pub fn softmax<T: Real>(v: &mut [T]) {
 ///
 /// ```
 /// let mut d = [1.0, 0.0];
-/// sinew_runtime::act::softmax_grad(&[0.5, 0.5], &mut d);
+/// sinew_runtime::act::softmax_grad(&[0.5, 0.5], &mut d)?;
 /// assert_eq!(d, [0.25, -0.25]);
+/// # Ok::<(), sinew_runtime::LengthMismatch>(())
 /// ```
-pub fn softmax_grad<T: Real>(a: &[T], d: &mut [T]) {
-    crate::reference::softmax_grad(a, d);
+pub fn softmax_grad<T: Real>(a: &[T], d: &mut [T]) -> Result<(), LengthMismatch> {
+    shape::expect("d", a.len(), d.len())?;
+    softmax_grad_kernel(a, d);
+    Ok(())
+}
+
+/// The loop of [`softmax_grad`], on operands whose lengths agree.
+fn softmax_grad_kernel<T: Real>(a: &[T], d: &mut [T]) {
+    crate::reference::softmax_grad_kernel(a, d);
+}
+
+/// Array form of [`identity_grad`] for one sample of `N` units: runs the same kernel, so the same bits.
+#[inline]
+pub fn identity_grad_n<T: Real, const N: usize>(a: &[T; N], d: &mut [T; N]) {
+    identity_grad_kernel(a, d);
+}
+
+/// Array form of [`sigmoid_grad`] for one sample of `N` units: runs the same kernel, so the same bits.
+#[inline]
+pub fn sigmoid_grad_n<T: Real, const N: usize>(a: &[T; N], d: &mut [T; N]) {
+    sigmoid_grad_kernel(a, d);
+}
+
+/// Batch array form of [`sigmoid_grad`]: the rows of `N` units of a block of samples, paired by
+/// `zip` (as many samples as the shorter operand holds). Element by element, so it runs the same
+/// kernel on the paired rows as one slice: the same bits as [`sigmoid_grad_n`] on each row.
+#[inline]
+pub fn sigmoid_grad_batch_n<T: Real, const N: usize>(a: &[[T; N]], d: &mut [[T; N]]) {
+    let m = a.len().min(d.len());
+    let a = a.get(..m).unwrap_or_default().as_flattened();
+    let d = d.get_mut(..m).unwrap_or_default().as_flattened_mut();
+    sigmoid_grad_kernel(a, d);
+}
+
+/// Array form of [`tanh_grad`] for one sample of `N` units: runs the same kernel, so the same bits.
+#[inline]
+pub fn tanh_grad_n<T: Real, const N: usize>(a: &[T; N], d: &mut [T; N]) {
+    tanh_grad_kernel(a, d);
+}
+
+/// Batch array form of [`tanh_grad`]: the rows of `N` units of a block of samples, paired by
+/// `zip` (as many samples as the shorter operand holds). Element by element, so it runs the same
+/// kernel on the paired rows as one slice: the same bits as [`tanh_grad_n`] on each row.
+#[inline]
+pub fn tanh_grad_batch_n<T: Real, const N: usize>(a: &[[T; N]], d: &mut [[T; N]]) {
+    let m = a.len().min(d.len());
+    let a = a.get(..m).unwrap_or_default().as_flattened();
+    let d = d.get_mut(..m).unwrap_or_default().as_flattened_mut();
+    tanh_grad_kernel(a, d);
+}
+
+/// Array form of [`relu_grad`] for one sample of `N` units: runs the same kernel, so the same bits.
+#[inline]
+pub fn relu_grad_n<T: Real, const N: usize>(a: &[T; N], d: &mut [T; N]) {
+    relu_grad_kernel(a, d);
+}
+
+/// Batch array form of [`relu_grad`]: the rows of `N` units of a block of samples, paired by
+/// `zip` (as many samples as the shorter operand holds). Element by element, so it runs the same
+/// kernel on the paired rows as one slice: the same bits as [`relu_grad_n`] on each row.
+#[inline]
+pub fn relu_grad_batch_n<T: Real, const N: usize>(a: &[[T; N]], d: &mut [[T; N]]) {
+    let m = a.len().min(d.len());
+    let a = a.get(..m).unwrap_or_default().as_flattened();
+    let d = d.get_mut(..m).unwrap_or_default().as_flattened_mut();
+    relu_grad_kernel(a, d);
+}
+
+/// Array form of [`leaky_relu_grad`] for one sample of `N` units: runs the same kernel, so the same bits.
+#[inline]
+pub fn leaky_relu_grad_n<T: Real, const N: usize>(a: &[T; N], d: &mut [T; N], alpha: T) {
+    leaky_relu_grad_kernel(a, d, alpha);
+}
+
+/// Batch array form of [`leaky_relu_grad`]: the rows of `N` units of a block of samples, paired by
+/// `zip` (as many samples as the shorter operand holds). Element by element, so it runs the same
+/// kernel on the paired rows as one slice: the same bits as [`leaky_relu_grad_n`] on each row.
+#[inline]
+pub fn leaky_relu_grad_batch_n<T: Real, const N: usize>(a: &[[T; N]], d: &mut [[T; N]], alpha: T) {
+    let m = a.len().min(d.len());
+    let a = a.get(..m).unwrap_or_default().as_flattened();
+    let d = d.get_mut(..m).unwrap_or_default().as_flattened_mut();
+    leaky_relu_grad_kernel(a, d, alpha);
+}
+
+/// Array form of [`softmax_grad`] for one sample of `N` units: runs the same kernel, so the same bits.
+#[inline]
+pub fn softmax_grad_n<T: Real, const N: usize>(a: &[T; N], d: &mut [T; N]) {
+    softmax_grad_kernel(a, d);
 }
 
 /// An activation chosen at run time (the host engine's form; generated code calls the functions of
@@ -286,8 +417,9 @@ pub fn softmax_grad<T: Real>(a: &[T], d: &mut [T]) {
 /// g.forward(&mut v);
 /// assert_eq!(v, [-1.0, 2.0]);
 /// let mut d = [1.0, 1.0];
-/// g.backward(&v, &mut d);
+/// g.backward(&v, &mut d)?;
 /// assert_eq!(d, [0.5, 1.0]);
+/// # Ok::<(), sinew_runtime::LengthMismatch>(())
 /// ```
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub enum Activation<T> {
@@ -332,15 +464,19 @@ impl<T: Real> Activation<T> {
 
     /// Multiplies the error `d` by the derivative at the activations `a`, in place (the matching
     /// `*_grad` function; for softmax the Jacobian-vector product).
-    pub fn backward(&self, a: &[T], d: &mut [T]) {
+    ///
+    /// `a` and `d` must have one length, else [`LengthMismatch`] and `d` is left untouched.
+    pub fn backward(&self, a: &[T], d: &mut [T]) -> Result<(), LengthMismatch> {
+        shape::expect("d", a.len(), d.len())?;
         match *self {
-            Activation::Identity => identity_grad(a, d),
-            Activation::Sigmoid => sigmoid_grad(a, d),
-            Activation::Tanh => tanh_grad(a, d),
-            Activation::Relu => relu_grad(a, d),
-            Activation::LeakyRelu(alpha) => leaky_relu_grad(a, d, alpha),
-            Activation::Softmax => softmax_grad(a, d),
+            Activation::Identity => identity_grad_kernel(a, d),
+            Activation::Sigmoid => sigmoid_grad_kernel(a, d),
+            Activation::Tanh => tanh_grad_kernel(a, d),
+            Activation::Relu => relu_grad_kernel(a, d),
+            Activation::LeakyRelu(alpha) => leaky_relu_grad_kernel(a, d, alpha),
+            Activation::Softmax => softmax_grad_kernel(a, d),
         }
+        Ok(())
     }
 }
 
@@ -349,6 +485,9 @@ mod tests {
     use super::*;
     use crate::rng::SplitMix64;
     use std::vec::Vec;
+
+    /// A `_grad` kernel over `f64` slices.
+    type Grad = fn(&[f64], &mut [f64]) -> Result<(), LengthMismatch>;
 
     /// Sigmoid, tanh and softmax run in padded chunks of eight and, in [`Activation::forward`],
     /// through a kernel per width: every width 0 to 40 must give the bits of the plain
@@ -416,10 +555,10 @@ mod tests {
     }
 
     /// g'(z) from the `_grad` function: d = 1 times the derivative at a = g(z).
-    fn slope(f: fn(&mut [f64]), grad: fn(&[f64], &mut [f64]), z: f64) -> f64 {
+    fn slope(f: fn(&mut [f64]), grad: Grad, z: f64) -> f64 {
         let a = [apply(f, z)];
         let mut d = [1.0];
-        grad(&a, &mut d);
+        grad(&a, &mut d).unwrap();
         d[0]
     }
 
@@ -443,13 +582,13 @@ mod tests {
         leaky_relu(v, 0.1);
     }
 
-    fn leaky_grad(a: &[f64], d: &mut [f64]) {
-        leaky_relu_grad(a, d, 0.1);
+    fn leaky_grad(a: &[f64], d: &mut [f64]) -> Result<(), LengthMismatch> {
+        leaky_relu_grad(a, d, 0.1)
     }
 
     #[test]
     fn derivatives_match_central_differences() {
-        type Pair = (&'static str, fn(&mut [f64]), fn(&[f64], &mut [f64]));
+        type Pair = (&'static str, fn(&mut [f64]), Grad);
         let pairs: [Pair; 5] = [
             ("identity", identity, identity_grad),
             ("sigmoid", sigmoid, sigmoid_grad),
@@ -510,7 +649,7 @@ mod tests {
             let mut a = z.clone();
             softmax(&mut a);
             let mut d = u.clone();
-            softmax_grad(&a, &mut d);
+            softmax_grad(&a, &mut d).unwrap();
             for i in 0..n {
                 let h = 1e-6;
                 let (mut zp, mut zm) = (z.clone(), z.clone());
@@ -552,13 +691,13 @@ mod tests {
         relu(&mut v);
         assert_eq!(v, [0.0, 0.0, 0.0, 0.5, 3.0]);
         let mut d = [1.0; 5];
-        relu_grad(&v, &mut d);
+        relu_grad(&v, &mut d).unwrap();
         assert_eq!(d, [0.0, 0.0, 0.0, 1.0, 1.0]);
         let mut v = [-3.0_f64, 0.0, 3.0];
         leaky_relu(&mut v, 0.01);
         assert_eq!(v, [-0.03, 0.0, 3.0]);
         let mut d = [2.0; 3];
-        leaky_relu_grad(&v, &mut d, 0.01);
+        leaky_relu_grad(&v, &mut d, 0.01).unwrap();
         assert_eq!(d, [0.02, 0.02, 2.0]);
     }
 
@@ -567,7 +706,7 @@ mod tests {
         let z = [-2.5_f64, -0.1, 0.0, 0.7, 3.0];
         let u = [0.3_f64, -1.0, 0.5, 2.0, -0.25];
         type Fwd = fn(&mut [f64]);
-        type Bwd = fn(&[f64], &mut [f64]);
+        type Bwd = Grad;
         let cases: [(Activation<f64>, Fwd, Bwd); 6] = [
             (Activation::Identity, identity, identity_grad),
             (Activation::Sigmoid, sigmoid, sigmoid_grad),
@@ -581,10 +720,99 @@ mod tests {
             g.forward(&mut a1);
             f(&mut a2);
             let (mut d1, mut d2) = (u, u);
-            g.backward(&a1, &mut d1);
-            grad(&a2, &mut d2);
+            g.backward(&a1, &mut d1).unwrap();
+            grad(&a2, &mut d2).unwrap();
             assert_eq!(a1.map(f64::to_bits), a2.map(f64::to_bits), "{g:?}");
             assert_eq!(d1.map(f64::to_bits), d2.map(f64::to_bits), "{g:?}");
         }
+    }
+
+    /// Every `_grad` slice form (and `Activation::backward`): a short or long `d` is an error
+    /// naming `d`, and `d` is left as it was.
+    #[test]
+    fn a_short_operand_is_an_error_and_nothing_is_written() {
+        let a = [0.5_f64, -0.5, 2.0];
+        let grads: [(&str, Grad); 6] = [
+            ("identity", identity_grad),
+            ("sigmoid", sigmoid_grad),
+            ("tanh", tanh_grad),
+            ("relu", relu_grad),
+            ("leaky_relu", leaky_grad),
+            ("softmax", softmax_grad),
+        ];
+        for (name, grad) in grads {
+            for len in [2, 4] {
+                let mut d = std::vec![7.0; len];
+                let want = LengthMismatch {
+                    operand: "d",
+                    expected: 3,
+                    found: len,
+                };
+                assert_eq!(grad(&a, &mut d), Err(want), "{name}");
+                assert_eq!(d, std::vec![7.0; len], "{name}");
+            }
+        }
+        let mut d = [7.0; 2];
+        assert!(Activation::Tanh.backward(&a, &mut d).is_err());
+        assert!(crate::reference::softmax_grad(&a, &mut d).is_err());
+        assert_eq!(d, [7.0; 2]);
+    }
+
+    /// The array forms (`_n`, `_batch_n`) give the bits of the slice forms.
+    fn array_forms_equal_the_slice_forms<const N: usize>(seed: u64) {
+        let mut rng = SplitMix64::new(seed);
+        let a: [f32; N] = core::array::from_fn(|_| rng.uniform(-2.0, 2.0) as f32);
+        let d0: [f32; N] = core::array::from_fn(|_| rng.uniform(-2.0, 2.0) as f32);
+        type N1<const N: usize> = fn(&[f32; N], &mut [f32; N]);
+        type S1 = fn(&[f32], &mut [f32]) -> Result<(), LengthMismatch>;
+        let pairs: [(N1<N>, S1); 5] = [
+            (identity_grad_n, identity_grad),
+            (sigmoid_grad_n, sigmoid_grad),
+            (tanh_grad_n, tanh_grad),
+            (relu_grad_n, relu_grad),
+            (softmax_grad_n, softmax_grad),
+        ];
+        for (k, (array, slice)) in pairs.into_iter().enumerate() {
+            let (mut da, mut ds) = (d0, d0);
+            array(&a, &mut da);
+            slice(&a, &mut ds).unwrap();
+            assert_eq!(da.map(f32::to_bits), ds.map(f32::to_bits), "{k} {N}");
+        }
+        let (mut da, mut ds) = (d0, d0);
+        leaky_relu_grad_n(&a, &mut da, 0.1);
+        leaky_relu_grad(&a, &mut ds, 0.1).unwrap();
+        assert_eq!(da.map(f32::to_bits), ds.map(f32::to_bits), "leaky {N}");
+        // Rows of a block: the per-row array form on each row.
+        let rows_a: Vec<[f32; N]> = (0..5)
+            .map(|_| core::array::from_fn(|_| rng.uniform(-2.0, 2.0) as f32))
+            .collect();
+        type B<const N: usize> = fn(&[[f32; N]], &mut [[f32; N]]);
+        let batch: [(B<N>, N1<N>); 3] = [
+            (sigmoid_grad_batch_n, sigmoid_grad_n),
+            (tanh_grad_batch_n, tanh_grad_n),
+            (relu_grad_batch_n, relu_grad_n),
+        ];
+        for (k, (rows, one)) in batch.into_iter().enumerate() {
+            let mut db = std::vec![d0; 5];
+            rows(&rows_a, &mut db);
+            let mut leaky = std::vec![d0; 5];
+            leaky_relu_grad_batch_n(&rows_a, &mut leaky, 0.1);
+            for ((ar, dr), lr) in rows_a.iter().zip(&db).zip(&leaky) {
+                let mut want = d0;
+                one(ar, &mut want);
+                assert_eq!(dr.map(f32::to_bits), want.map(f32::to_bits), "{k} {N}");
+                let mut want = d0;
+                leaky_relu_grad_n(ar, &mut want, 0.1);
+                assert_eq!(lr.map(f32::to_bits), want.map(f32::to_bits), "leaky {N}");
+            }
+        }
+    }
+
+    #[test]
+    fn array_forms_give_the_bits_of_the_slice_forms() {
+        array_forms_equal_the_slice_forms::<1>(1);
+        array_forms_equal_the_slice_forms::<3>(2);
+        array_forms_equal_the_slice_forms::<10>(3);
+        array_forms_equal_the_slice_forms::<17>(4);
     }
 }

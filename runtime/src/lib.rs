@@ -3,22 +3,25 @@
 //!
 //! No heap, no `std`, no `unsafe`, no panicking paths; the only dependency is `libm`, which
 //! supplies every transcendental function on the host and on the device alike. The host engine
-//! calls the slice forms, generated code calls the const-generic array forms, and each array form
-//! flattens and calls the slice form, so both perform the same operations in the same order and
-//! produce the same bits. The accumulation order of every reduction is documented on the kernel
-//! and is part of the contract; [`reference`](mod@reference) holds that contract as plain
-//! loops, one per reduction, and every fast path is tested bit for bit against it. The fold
-//! order of the lane sums of a dot product is written once, in [`linalg::fold_lanes`].
+//! calls the slice forms, generated code calls the const-generic array forms, and both forms run
+//! the same kernel once the lengths are known to agree, so they perform the same operations in
+//! the same order and produce the same bits. The accumulation order of every reduction is
+//! documented on the kernel and is part of the contract; [`reference`](mod@reference) holds that
+//! contract as plain loops, one per reduction, and every fast path is tested bit for bit against
+//! it. The fold order of the lane sums of a dot product is written once, in
+//! [`linalg::fold_lanes`].
 //!
-//! Slices of mismatched lengths never panic: operands are paired with `zip` (and matrix rows cut
-//! into pieces of the row length, as `chunks_exact` would), so the shortest operand decides and
-//! surplus elements are left untouched.
+//! Lengths: a slice kernel whose operands must agree checks every length before it writes
+//! anything and returns [`LengthMismatch`] when one disagrees (never a panic, never a
+//! truncation); its array form (`_n`) takes fixed-size arrays whose types make a mismatch
+//! impossible, and returns no `Result`. See [`shape`].
 //!
 //! # Kernels
 //!
 //! | module | kernels |
 //! | --- | --- |
 //! | [`reference`](mod@reference) | the contract: plain-loop kernels ([`reference::affine`], [`reference::back`], ..., [`reference::softmax_cross_entropy_batch`]) whose docs give each formula and order of additions; [`linalg::fold_lanes`], the one fold order of the lane sums |
+//! | [`shape`] | [`LengthMismatch`], the error of the slice kernels; [`shape::Flat`], the arrays of the optimizer and penalty array forms |
 //! | [`real`] | [`Real`]: the scalar trait (`f32`, `f64`) over libm |
 //! | [`linalg`] | [`affine`] `z = W x + b`, [`back`] `out = W^T d`, [`outer_acc`] `G += d a^T`, [`add_acc`] `g += d`, [`standardize`] `(x - mean) / std`, each with an `_n` array form where shapes matter; their batch forms over a block of samples ([`affine_batch`], [`back_batch`], [`outer_acc_batch`] and its row-range form [`outer_acc_batch_rows`], [`add_acc_batch`]), bit for bit the per-sample loop (layers of at most 16 inputs or outputs run eight samples side by side, one per SIMD lane) |
 //! | [`act`] | [`act::identity`], [`act::sigmoid`], [`act::tanh`], [`act::relu`], [`act::leaky_relu`], [`act::softmax`] and their `_grad` forms; [`act::Activation`] |
@@ -46,15 +49,19 @@
 //! rt::act::sigmoid(&mut a);
 //! assert_eq!(a[0], 0.5);
 //!
-//! let loss = rt::loss::squared_error(&a, &y);
+//! let loss = rt::loss::squared_error_n(&a, &y);
 //! let mut d = [0.0; 2];
-//! rt::loss::output_error(&a, &y, &mut d);
-//! rt::act::sigmoid_grad(&a, &mut d);
+//! rt::loss::output_error_n(&a, &y, &mut d);
+//! rt::act::sigmoid_grad_n(&a, &mut d);
 //!
 //! let mut gw = [[0.0; 2]; 2];
 //! let mut gb = [0.0; 2];
 //! rt::outer_acc_n(&mut gw, &d, &x);
-//! rt::add_acc(&mut gb, &d);
+//! rt::add_acc_n(&mut gb, &d);
+//!
+//! // The slice forms check lengths: a short operand is an error, and nothing is written.
+//! let mut short = [0.0; 1];
+//! assert!(rt::loss::output_error(&a, &y, &mut short).is_err());
 //! assert_eq!(gw[0], [-0.125, -0.125]); // (0.5 - 1) * 0.5 * 0.5 * x
 //! assert!(loss > 0.0);
 //! ```
@@ -100,10 +107,12 @@ pub mod penalty;
 pub mod real;
 pub mod reference;
 pub mod rng;
+pub mod shape;
 
 pub use linalg::{
-    add_acc, add_acc_batch, affine, affine_batch, affine_batch_n, affine_n, back, back_batch,
-    back_batch_n, back_n, outer_acc, outer_acc_batch, outer_acc_batch_n, outer_acc_batch_rows,
-    outer_acc_n, standardize, standardize_n,
+    add_acc, add_acc_batch, add_acc_batch_n, add_acc_n, affine, affine_batch, affine_batch_n,
+    affine_n, back, back_batch, back_batch_n, back_n, outer_acc, outer_acc_batch,
+    outer_acc_batch_n, outer_acc_batch_rows, outer_acc_n, standardize, standardize_n,
 };
 pub use real::Real;
+pub use shape::LengthMismatch;

@@ -10,13 +10,15 @@
 //! dot product of [`affine`]: [`LANES`] partial sums folded by [`fold_lanes`], the one place
 //! that order is written.
 //!
-//! Each kernel is written once over slices (the form the host engine calls) and has a thin
-//! const-generic array wrapper (the form generated code calls) that runs the same kernel, so both
-//! perform the same operations in the same order and give identical bits.
+//! Each kernel is written once over slices (the form the host engine calls, which checks the
+//! lengths first) and has a thin const-generic array wrapper (the form generated code calls) that
+//! runs the same kernel, so both perform the same operations in the same order and give identical
+//! bits.
 //!
-//! Lengths: the slice forms never panic. Rows are paired with the other operands by `zip`, so any
-//! surplus in a longer operand is left untouched (outputs) or ignored (inputs); an incomplete last
-//! row of `w` is ignored.
+//! Lengths: the slice forms check every operand's length before they write anything and return
+//! [`LengthMismatch`] when one disagrees (never a panic, never a truncation); the array forms
+//! take operands whose types fix their lengths, and return nothing. The batch array forms pair
+//! the rows of their sample operands by `zip`, as many samples as the shorter one holds.
 //!
 //! The fast paths, by concern (each a speed choice only, none changes a bit):
 //! - `sample`: the per-sample kernels (lane sums as fixed arrays, four rows per pass);
@@ -28,6 +30,7 @@
 //! reach them.
 
 use crate::each::{pieces, pieces_mut};
+use crate::shape::{self, LengthMismatch};
 use crate::Real;
 use batch::{affine_batch_with, outer_acc_batch_with, PAIRED};
 use sample::{add_acc_rows, affine_with, back_rows, back_with, outer_acc_rows, outer_acc_with};
@@ -106,10 +109,9 @@ const ACROSS: bool = true;
 /// The row's sum is then [`fold_lanes`]`(l)` =
 /// `((l0 + l4) + (l2 + l6)) + ((l1 + l5) + (l3 + l7))`, and `z_j = s + b_j`. (Eight independent
 /// sums let the compiler use SIMD lanes and keep several additions in flight; the order is fixed
-/// in the source, so every target and every build gives the same bits.) Rows are
-/// `w.chunks_exact(n)` zipped with `b` and `z`, so the number of rows written is the least of
-/// `w.len() / n`, `b.len()` and `z.len()`. With `n = 0` every row is empty and
-/// `z_j = ZERO + b_j` for `j < min(b.len(), z.len())`.
+/// in the source, so every target and every build gives the same bits.) Lengths: `o = b.len()`
+/// rows; `w` must hold `n * o` values and `z` hold `o`, else [`LengthMismatch`] and nothing is
+/// written. With `n = 0` every row is empty and `z_j = ZERO + b_j`.
 ///
 /// Contract: [`crate::reference::affine`], bit for bit.
 ///
@@ -120,11 +122,20 @@ const ACROSS: bool = true;
 /// let w = [1.0, 2.0, 3.0, 4.0, 5.0, 6.0];
 /// let b = [0.5, -0.5, 0.0];
 /// let mut z = [0.0; 3];
-/// sinew_runtime::affine(&w, &b, &[1.0, -1.0], &mut z);
+/// sinew_runtime::affine(&w, &b, &[1.0, -1.0], &mut z)?;
 /// assert_eq!(z, [-0.5, -1.5, -1.0]);
+/// # Ok::<(), sinew_runtime::LengthMismatch>(())
 /// ```
 #[inline(always)]
-pub fn affine<T: Real>(w: &[T], b: &[T], x: &[T], z: &mut [T]) {
+pub fn affine<T: Real>(w: &[T], b: &[T], x: &[T], z: &mut [T]) -> Result<(), LengthMismatch> {
+    shape::affine(w, b, x, z)?;
+    affine_kernel(w, b, x, z);
+    Ok(())
+}
+
+/// The loop of [`affine`], on operands whose lengths agree.
+#[inline(always)]
+fn affine_kernel<T: Real>(w: &[T], b: &[T], x: &[T], z: &mut [T]) {
     // Short rows (fan-in 1 to 16, known here only at run time): a kernel for each fan-in, with
     // its lane folds inline, as the array form runs them. Same operations, same bits.
     by_length_1_to_16!(x.len(), K => {
@@ -169,8 +180,8 @@ pub fn affine_n<T: Real, const I: usize, const O: usize>(
 ///
 /// Order: every `out_i` is set to `ZERO`, then for `j` in increasing order the products
 /// `w[j*n+i] * d_j` are added, so each `out_i` is summed in increasing `j` starting from `ZERO`.
-/// Rows are `w.chunks_exact(n)` zipped with `d` (the least of `w.len() / n` and `d.len()` rows).
-/// With `n = 0` there is nothing to write.
+/// Lengths: `o = d.len()` rows; `w` must hold `n * o` values, else [`LengthMismatch`] and
+/// nothing is written. With `n = 0` there is nothing to write.
 ///
 /// Contract: [`crate::reference::back`], bit for bit.
 ///
@@ -180,11 +191,20 @@ pub fn affine_n<T: Real, const I: usize, const O: usize>(
 /// // 2 inputs -> 3 units; the error of the 3 units goes back to the 2 inputs.
 /// let w = [1.0, 2.0, 3.0, 4.0, 5.0, 6.0];
 /// let mut out = [9.0; 2];
-/// sinew_runtime::back(&w, &[1.0, 0.0, -1.0], &mut out);
+/// sinew_runtime::back(&w, &[1.0, 0.0, -1.0], &mut out)?;
 /// assert_eq!(out, [1.0 - 5.0, 2.0 - 6.0]);
+/// # Ok::<(), sinew_runtime::LengthMismatch>(())
 /// ```
 #[inline(always)]
-pub fn back<T: Real>(w: &[T], d: &[T], out: &mut [T]) {
+pub fn back<T: Real>(w: &[T], d: &[T], out: &mut [T]) -> Result<(), LengthMismatch> {
+    shape::matrix("w", w, d, out.len())?;
+    back_kernel(w, d, out);
+    Ok(())
+}
+
+/// The loop of [`back`], on operands whose lengths agree.
+#[inline(always)]
+fn back_kernel<T: Real>(w: &[T], d: &[T], out: &mut [T]) {
     // Narrow outputs (1 to 16, known here only at run time): a kernel for each width, so that
     // each row is a fixed-size vector operation. Same operations, same bits.
     by_length_1_to_16!(out.len(), K => {
@@ -196,7 +216,7 @@ pub fn back<T: Real>(w: &[T], d: &[T], out: &mut [T]) {
 
 /// Array form of [`back`]: `out = W^T d` for `W` of `O` rows and `I` columns.
 ///
-/// Calls `back(w.as_flattened(), d, out)`: same operations, same order, same bits.
+/// Runs the kernel of `back(w.as_flattened(), d, out)`: same operations, same order, same bits.
 ///
 /// # Examples
 ///
@@ -212,14 +232,15 @@ pub fn back_n<T: Real, const I: usize, const O: usize>(
     d: &[T; O],
     out: &mut [T; I],
 ) {
-    back(w.as_flattened(), d, out);
+    back_kernel(w.as_flattened(), d, out);
 }
 
 /// Outer-product accumulate (the weight gradient of one sample): `g[j*n + i] += d_j * a_i`, with
 /// `n = a.len()`.
 ///
-/// Each element receives exactly one addition, `g + (d_j * a_i)`. Rows are `g.chunks_exact_mut(n)`
-/// zipped with `d`. With `n = 0` there is nothing to write.
+/// Each element receives exactly one addition, `g + (d_j * a_i)`. Lengths: `o = d.len()` rows;
+/// `g` must hold `n * o` values, else [`LengthMismatch`] and nothing is written. With `n = 0`
+/// there is nothing to write.
 ///
 /// Contract: [`crate::reference::outer_acc`], bit for bit.
 ///
@@ -227,11 +248,20 @@ pub fn back_n<T: Real, const I: usize, const O: usize>(
 ///
 /// ```
 /// let mut g = [1.0; 6]; // 3 rows of 2
-/// sinew_runtime::outer_acc(&mut g, &[1.0, 2.0, 3.0], &[10.0, 20.0]);
+/// sinew_runtime::outer_acc(&mut g, &[1.0, 2.0, 3.0], &[10.0, 20.0])?;
 /// assert_eq!(g, [11.0, 21.0, 21.0, 41.0, 31.0, 61.0]);
+/// # Ok::<(), sinew_runtime::LengthMismatch>(())
 /// ```
 #[inline(always)]
-pub fn outer_acc<T: Real>(g: &mut [T], d: &[T], a: &[T]) {
+pub fn outer_acc<T: Real>(g: &mut [T], d: &[T], a: &[T]) -> Result<(), LengthMismatch> {
+    shape::matrix("g", g, d, a.len())?;
+    outer_acc_kernel(g, d, a);
+    Ok(())
+}
+
+/// The loop of [`outer_acc`], on operands whose lengths agree.
+#[inline(always)]
+fn outer_acc_kernel<T: Real>(g: &mut [T], d: &[T], a: &[T]) {
     // Short rows (1 to 16 columns, known here only at run time): a kernel for each length, so
     // that each row is a fixed-size vector operation. Same operations, same bits.
     by_length_1_to_16!(a.len(), K => {
@@ -243,7 +273,7 @@ pub fn outer_acc<T: Real>(g: &mut [T], d: &[T], a: &[T]) {
 
 /// Array form of [`outer_acc`]: `G += d a^T` for `G` of `O` rows and `I` columns.
 ///
-/// Calls `outer_acc(g.as_flattened_mut(), d, a)`: same operations, same bits.
+/// Runs the kernel of `outer_acc(g.as_flattened_mut(), d, a)`: same operations, same bits.
 ///
 /// # Examples
 ///
@@ -258,27 +288,52 @@ pub fn outer_acc_n<T: Real, const I: usize, const O: usize>(
     d: &[T; O],
     a: &[T; I],
 ) {
-    outer_acc(g.as_flattened_mut(), d, a);
+    outer_acc_kernel(g.as_flattened_mut(), d, a);
 }
 
-/// Vector accumulate (the bias gradient of one sample): `g_j += d_j`, over the zip of `g` and `d`.
-/// It is [`crate::reference::add_acc`] itself (one addition per element: nothing to speed up).
-///
-/// Works for arrays too (`&mut [T; N]` coerces to `&mut [T]`).
+/// Vector accumulate (the bias gradient of one sample): `g_j += d_j`, `d` as long as `g` (else
+/// [`LengthMismatch`] and nothing is written). It is [`crate::reference::add_acc`] itself (one
+/// addition per element: nothing to speed up). Array form: [`add_acc_n`].
 ///
 /// # Examples
 ///
 /// ```
 /// let mut g = [1.0, 2.0];
-/// sinew_runtime::add_acc(&mut g, &[0.5, 0.25]);
+/// sinew_runtime::add_acc(&mut g, &[0.5, 0.25])?;
+/// assert_eq!(g, [1.5, 2.25]);
+/// # Ok::<(), sinew_runtime::LengthMismatch>(())
+/// ```
+#[inline(always)]
+pub fn add_acc<T: Real>(g: &mut [T], d: &[T]) -> Result<(), LengthMismatch> {
+    shape::expect("d", g.len(), d.len())?;
+    add_acc_kernel(g, d);
+    Ok(())
+}
+
+/// The loop of [`add_acc`], on operands whose lengths agree.
+#[inline(always)]
+fn add_acc_kernel<T: Real>(g: &mut [T], d: &[T]) {
+    crate::reference::add_acc_kernel(g, d);
+}
+
+/// Array form of [`add_acc`]: `g += d` for vectors of `N` values.
+///
+/// Runs the kernel of `add_acc(g, d)`: same operations, same bits.
+///
+/// # Examples
+///
+/// ```
+/// let mut g = [1.0_f32, 2.0];
+/// sinew_runtime::add_acc_n(&mut g, &[0.5, 0.25]);
 /// assert_eq!(g, [1.5, 2.25]);
 /// ```
 #[inline(always)]
-pub fn add_acc<T: Real>(g: &mut [T], d: &[T]) {
-    crate::reference::add_acc(g, d);
+pub fn add_acc_n<T: Real, const N: usize>(g: &mut [T; N], d: &[T; N]) {
+    add_acc_kernel(g, d);
 }
 
-/// Input scaling: `out_i = (x_i - mean_i) / std_i`, over the zip of the four slices.
+/// Input scaling: `out_i = (x_i - mean_i) / std_i`, the four slices of one length (else
+/// [`LengthMismatch`] and nothing is written).
 ///
 /// It divides (it does not multiply by a stored reciprocal), so a `std_i` of 1 leaves the centred
 /// value exact. It is [`crate::reference::standardize`] itself.
@@ -287,16 +342,32 @@ pub fn add_acc<T: Real>(g: &mut [T], d: &[T]) {
 ///
 /// ```
 /// let mut out = [0.0; 2];
-/// sinew_runtime::standardize(&[3.0, 10.0], &[1.0, 10.0], &[2.0, 4.0], &mut out);
+/// sinew_runtime::standardize(&[3.0, 10.0], &[1.0, 10.0], &[2.0, 4.0], &mut out)?;
 /// assert_eq!(out, [1.0, 0.0]);
+/// # Ok::<(), sinew_runtime::LengthMismatch>(())
 /// ```
-pub fn standardize<T: Real>(x: &[T], mean: &[T], std: &[T], out: &mut [T]) {
-    crate::reference::standardize(x, mean, std, out);
+pub fn standardize<T: Real>(
+    x: &[T],
+    mean: &[T],
+    std: &[T],
+    out: &mut [T],
+) -> Result<(), LengthMismatch> {
+    let n = x.len();
+    shape::expect("mean", n, mean.len())?;
+    shape::expect("std", n, std.len())?;
+    shape::expect("out", n, out.len())?;
+    standardize_kernel(x, mean, std, out);
+    Ok(())
+}
+
+/// The loop of [`standardize`], on operands whose lengths agree.
+fn standardize_kernel<T: Real>(x: &[T], mean: &[T], std: &[T], out: &mut [T]) {
+    crate::reference::standardize_kernel(x, mean, std, out);
 }
 
 /// Array form of [`standardize`]: `out = (x - mean) ./ std`.
 ///
-/// Calls `standardize(x, mean, std, out)`: same operations, same bits.
+/// Runs the kernel of `standardize(x, mean, std, out)`: same operations, same bits.
 ///
 /// # Examples
 ///
@@ -312,14 +383,15 @@ pub fn standardize_n<T: Real, const N: usize>(
     std: &[T; N],
     out: &mut [T; N],
 ) {
-    standardize(x, mean, std, out);
+    standardize_kernel(x, mean, std, out);
 }
 
 /// Batch form of [`affine`]: for every sample `s`, `z_s = W x_s + b`, bit for bit the result of
 /// `affine(w, b, x_s, z_s)`.
 ///
-/// The samples are the pairs of `xs.chunks_exact(n)` and `zs.chunks_exact_mut(b.len())` (row-major
-/// blocks of samples). Each group of four rows of `W` is applied to every sample before the next
+/// The `m` samples are the rows of `n` of `xs` and the rows of `o = b.len()` of `zs` (row-major
+/// blocks of samples): `w` must hold `n * o` values, `xs` `m * n` and `zs` `m * o`, else
+/// [`LengthMismatch`] and nothing is written. Each group of four rows of `W` is applied to every sample before the next
 /// group is read, so a large matrix travels from memory once per call rather than once per sample;
 /// the arithmetic of each output is exactly that of [`affine`]. With `n = 0` every output row is
 /// `ZERO + b` (as [`affine`] with an empty input).
@@ -332,11 +404,26 @@ pub fn standardize_n<T: Real, const N: usize>(
 /// let w = [1.0, 2.0, 3.0, 4.0]; // 2 inputs -> 2 units
 /// let xs = [1.0, 0.0, 0.0, 1.0]; // two samples
 /// let mut zs = [0.0; 4];
-/// sinew_runtime::linalg::affine_batch(&w, &[0.5, 0.5], &xs, &mut zs, 2);
+/// sinew_runtime::linalg::affine_batch(&w, &[0.5, 0.5], &xs, &mut zs, 2)?;
 /// assert_eq!(zs, [1.5, 3.5, 2.5, 4.5]);
+/// # Ok::<(), sinew_runtime::LengthMismatch>(())
 /// ```
 #[inline(always)]
-pub fn affine_batch<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize) {
+pub fn affine_batch<T: Real>(
+    w: &[T],
+    b: &[T],
+    xs: &[T],
+    zs: &mut [T],
+    n: usize,
+) -> Result<(), LengthMismatch> {
+    shape::affine_batch(w, b, xs, zs, n)?;
+    affine_batch_kernel(w, b, xs, zs, n);
+    Ok(())
+}
+
+/// The loop of [`affine_batch`], on operands whose lengths agree.
+#[inline(always)]
+fn affine_batch_kernel<T: Real>(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize) {
     let o = b.len();
     // Short rows: whole blocks of samples with one sample per SIMD lane (a kernel for each
     // fan-in from 1 to 16), the rest below.
@@ -394,9 +481,10 @@ pub fn affine_batch_n<T: Real, const I: usize, const O: usize>(
 /// Batch form of [`back`]: for every sample `s`, `out_s = W^T d_s`, bit for bit the result of
 /// `back(w, d_s, out_s)`.
 ///
-/// `W` has `n` columns and `o = w.len() / n` rows; the samples are the pairs of
-/// `ds.chunks_exact(o)` and `outs.chunks_exact_mut(n)`. With `n = 0` or `o = 0` nothing is
-/// written.
+/// `W` has `n` columns and `o = w.len() / n` whole rows; the `m` samples are the rows of `o` of
+/// `ds` and of `n` of `outs` (`m * o` and `m * n` values), else [`LengthMismatch`] and nothing is
+/// written. With `n = 0` (then `w` and `outs` must be empty; `ds` is not checked) or `o = 0`
+/// nothing is written.
 ///
 /// Contract: [`crate::reference::back_batch`], bit for bit.
 ///
@@ -405,11 +493,25 @@ pub fn affine_batch_n<T: Real, const I: usize, const O: usize>(
 /// ```
 /// let w = [1.0, 2.0, 3.0, 4.0]; // 2 inputs -> 2 units
 /// let mut outs = [0.0; 4];
-/// sinew_runtime::linalg::back_batch(&w, &[1.0, 0.0, 0.0, 1.0], &mut outs, 2);
+/// sinew_runtime::linalg::back_batch(&w, &[1.0, 0.0, 0.0, 1.0], &mut outs, 2)?;
 /// assert_eq!(outs, [1.0, 2.0, 3.0, 4.0]);
+/// # Ok::<(), sinew_runtime::LengthMismatch>(())
 /// ```
 #[inline(always)]
-pub fn back_batch<T: Real>(w: &[T], ds: &[T], outs: &mut [T], n: usize) {
+pub fn back_batch<T: Real>(
+    w: &[T],
+    ds: &[T],
+    outs: &mut [T],
+    n: usize,
+) -> Result<(), LengthMismatch> {
+    shape::batch_of_rows(("w", w), ds, ("outs", outs), n)?;
+    back_batch_kernel(w, ds, outs, n);
+    Ok(())
+}
+
+/// The loop of [`back_batch`], on operands whose lengths agree.
+#[inline(always)]
+fn back_batch_kernel<T: Real>(w: &[T], ds: &[T], outs: &mut [T], n: usize) {
     if n == 0 {
         return;
     }
@@ -432,7 +534,7 @@ pub fn back_batch<T: Real>(w: &[T], ds: &[T], outs: &mut [T], n: usize) {
     let ds = ds.get(done * o..).unwrap_or_default();
     let outs = outs.get_mut(done * n..).unwrap_or_default();
     for (d, out) in pieces(ds, o).zip(pieces_mut(outs, n)) {
-        back(w, d, out);
+        back_kernel(w, d, out);
     }
 }
 
@@ -458,7 +560,7 @@ pub fn back_batch_n<T: Real, const I: usize, const O: usize>(
     } else {
         0
     };
-    back_batch(
+    back_batch_kernel(
         w.as_flattened(),
         ds.get(done..).unwrap_or_default().as_flattened(),
         outs.get_mut(done..).unwrap_or_default().as_flattened_mut(),
@@ -469,8 +571,9 @@ pub fn back_batch_n<T: Real, const I: usize, const O: usize>(
 /// Batch form of [`outer_acc`]: `G += sum_s d_s a_s^T`, bit for bit the result of calling
 /// `outer_acc(g, d_s, a_s)` for every sample in order.
 ///
-/// `G` has `n` columns and `o = g.len() / n` rows; the samples are the pairs of
-/// `ds.chunks_exact(o)` and `xs.chunks_exact(n)`. Order: every element receives the additions
+/// `G` has `n` columns and `o = g.len() / n` whole rows; the `m` samples are the rows of `o` of
+/// `ds` and of `n` of `xs` (`m * o` and `m * n` values), else [`LengthMismatch`] and nothing is
+/// written (with `n = 0`, `g` and `xs` must be empty and `ds` is not checked). Order: every element receives the additions
 /// `g + d_sj * a_si` of the samples in increasing `s`, exactly as the per-sample loop does. The
 /// work runs tile by tile (four rows by up to sixteen columns of `G` held in registers while all
 /// the samples pass), so `G` is read and written once per call instead of once per sample. With
@@ -482,23 +585,38 @@ pub fn back_batch_n<T: Real, const I: usize, const O: usize>(
 ///
 /// ```
 /// let mut g = [0.0; 2]; // 1 unit, 2 inputs
-/// sinew_runtime::linalg::outer_acc_batch(&mut g, &[1.0, 2.0], &[1.0, 10.0, 3.0, 30.0], 2);
+/// sinew_runtime::linalg::outer_acc_batch(&mut g, &[1.0, 2.0], &[1.0, 10.0, 3.0, 30.0], 2)?;
 /// assert_eq!(g, [7.0, 70.0]);
+/// # Ok::<(), sinew_runtime::LengthMismatch>(())
 /// ```
 #[inline(always)]
-pub fn outer_acc_batch<T: Real>(g: &mut [T], ds: &[T], xs: &[T], n: usize) {
+pub fn outer_acc_batch<T: Real>(
+    g: &mut [T],
+    ds: &[T],
+    xs: &[T],
+    n: usize,
+) -> Result<(), LengthMismatch> {
+    shape::batch_of_rows(("g", g), ds, ("xs", xs), n)?;
+    outer_acc_batch_kernel(g, ds, xs, n);
+    Ok(())
+}
+
+/// The loop of [`outer_acc_batch`], on operands whose lengths agree.
+#[inline(always)]
+fn outer_acc_batch_kernel<T: Real>(g: &mut [T], ds: &[T], xs: &[T], n: usize) {
     if n == 0 {
         return;
     }
     let o = g.len() / n;
-    outer_acc_batch_rows(g, ds, xs, n, (0, o));
+    outer_acc_batch_rows_kernel(g, ds, xs, n, (0, o));
 }
 
 /// Part of [`outer_acc_batch`] for splitting the work between threads: `g` holds the rows
 /// `first..first + g.len() / n` of a gradient with `o` rows in all (`rows = (first, o)`), and
 /// receives exactly the additions that [`outer_acc_batch`] on the whole gradient gives those
-/// rows. The error rows `ds.chunks_exact(o)` are full rows. Nothing is written for `n = 0`,
-/// `o = 0`, or rows past `o`.
+/// rows. Lengths: `g` holds whole rows of `n`, at most `o - first` of them; the `m` samples are
+/// the full rows of `o` of `ds` and of `n` of `xs`; else [`LengthMismatch`] and nothing is
+/// written. Nothing is written for `n = 0` or `o = 0`.
 ///
 /// Contract: [`crate::reference::outer_acc_batch_rows`], bit for bit.
 ///
@@ -508,13 +626,28 @@ pub fn outer_acc_batch<T: Real>(g: &mut [T], ds: &[T], xs: &[T], n: usize) {
 /// // One sample: 2 units, 1 input. The second row alone gets what the whole gives it.
 /// let (ds, xs) = ([1.0, 2.0], [3.0]);
 /// let mut whole = [0.0; 2];
-/// sinew_runtime::linalg::outer_acc_batch(&mut whole, &ds, &xs, 1);
+/// sinew_runtime::linalg::outer_acc_batch(&mut whole, &ds, &xs, 1)?;
 /// let mut second = [0.0; 1];
-/// sinew_runtime::linalg::outer_acc_batch_rows(&mut second, &ds, &xs, 1, (1, 2));
+/// sinew_runtime::linalg::outer_acc_batch_rows(&mut second, &ds, &xs, 1, (1, 2))?;
 /// assert_eq!(second[0], whole[1]);
+/// # Ok::<(), sinew_runtime::LengthMismatch>(())
 /// ```
 #[inline(always)]
 pub fn outer_acc_batch_rows<T: Real>(
+    g: &mut [T],
+    ds: &[T],
+    xs: &[T],
+    n: usize,
+    (first, o): (usize, usize),
+) -> Result<(), LengthMismatch> {
+    shape::outer_acc_batch_rows(g, ds, xs, n, (first, o))?;
+    outer_acc_batch_rows_kernel(g, ds, xs, n, (first, o));
+    Ok(())
+}
+
+/// The loop of [`outer_acc_batch_rows`], on operands whose lengths agree.
+#[inline(always)]
+fn outer_acc_batch_rows_kernel<T: Real>(
     g: &mut [T],
     ds: &[T],
     xs: &[T],
@@ -539,7 +672,7 @@ pub fn outer_acc_batch_n<T: Real, const I: usize, const O: usize>(
     ds: &[[T; O]],
     xs: &[[T; I]],
 ) {
-    outer_acc_batch(
+    outer_acc_batch_kernel(
         g.as_flattened_mut(),
         ds.as_flattened(),
         xs.as_flattened(),
@@ -547,10 +680,10 @@ pub fn outer_acc_batch_n<T: Real, const I: usize, const O: usize>(
     );
 }
 
-/// Batch form of [`add_acc`]: `g += sum_s d_s`, adding the rows `ds.chunks_exact(g.len())` in
-/// order, bit for bit the per-sample loop. With an empty `g` nothing is written.
-///
-/// Works for arrays too: pass `ds.as_flattened()` for a slice of `[T; N]` rows.
+/// Batch form of [`add_acc`]: `g += sum_s d_s`, adding the rows of `g.len()` of `ds` in order,
+/// bit for bit the per-sample loop. `ds` must hold a whole number of rows, else
+/// [`LengthMismatch`] and nothing is written. With an empty `g` (and `ds`) nothing is written.
+/// Array form: [`add_acc_batch_n`].
 ///
 /// Contract: [`crate::reference::add_acc_batch`], bit for bit.
 ///
@@ -558,11 +691,20 @@ pub fn outer_acc_batch_n<T: Real, const I: usize, const O: usize>(
 ///
 /// ```
 /// let mut g = [0.0, 1.0];
-/// sinew_runtime::linalg::add_acc_batch(&mut g, &[1.0, 2.0, 3.0, 4.0]);
+/// sinew_runtime::linalg::add_acc_batch(&mut g, &[1.0, 2.0, 3.0, 4.0])?;
 /// assert_eq!(g, [4.0, 7.0]);
+/// # Ok::<(), sinew_runtime::LengthMismatch>(())
 /// ```
 #[inline(always)]
-pub fn add_acc_batch<T: Real>(g: &mut [T], ds: &[T]) {
+pub fn add_acc_batch<T: Real>(g: &mut [T], ds: &[T]) -> Result<(), LengthMismatch> {
+    shape::samples(&[("ds", ds.len(), g.len())])?;
+    add_acc_batch_kernel(g, ds);
+    Ok(())
+}
+
+/// The loop of [`add_acc_batch`], on operands whose lengths agree.
+#[inline(always)]
+fn add_acc_batch_kernel<T: Real>(g: &mut [T], ds: &[T]) {
     if g.is_empty() {
         return;
     }
@@ -573,7 +715,23 @@ pub fn add_acc_batch<T: Real>(g: &mut [T], ds: &[T]) {
         }
     }, _ => {
         for d in pieces(ds, g.len()) {
-            add_acc(g, d);
+            add_acc_kernel(g, d);
         }
     });
+}
+
+/// Array form of [`add_acc_batch`]: `g += sum_s ds[s]` for rows of `N` values, in order.
+///
+/// Runs the kernel of `add_acc_batch(g, ds.as_flattened())`: same operations, same bits.
+///
+/// # Examples
+///
+/// ```
+/// let mut g = [0.0_f64, 1.0];
+/// sinew_runtime::linalg::add_acc_batch_n(&mut g, &[[1.0, 2.0], [3.0, 4.0]]);
+/// assert_eq!(g, [4.0, 7.0]);
+/// ```
+#[inline(always)]
+pub fn add_acc_batch_n<T: Real, const N: usize>(g: &mut [T; N], ds: &[[T; N]]) {
+    add_acc_batch_kernel(g, ds.as_flattened());
 }

@@ -8,6 +8,7 @@
 //! `dP/dw = (lambda/m) w`, for L1 `dP/dw = (lambda/m) sign(w)` (with sign(0) = 0, the usual
 //! subgradient choice).
 
+use crate::shape::{self, Flat, LengthMismatch};
 use crate::Real;
 
 /// A penalty on the weights (never on biases); the field is `lambda`.
@@ -24,11 +25,12 @@ use crate::Real;
 /// assert_eq!(pen.cost(pen.sum(&w), m), 2.5);
 /// // gradient: g / m + (lambda / m) w
 /// let mut g = [1.0, 1.0];
-/// pen.finish_weights(&mut g, &w, m);
+/// pen.finish_weights(&mut g, &w, m)?;
 /// assert_eq!(g, [0.5 + 0.5, 0.5 - 1.0]);
 /// let mut gb = [1.0];
 /// finish_bias(&mut gb, m);
 /// assert_eq!(gb, [0.5]);
+/// # Ok::<(), sinew_runtime::LengthMismatch>(())
 /// ```
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub enum Penalty<T> {
@@ -78,8 +80,33 @@ impl<T: Real> Penalty<T> {
     /// `g_k = g_k / m + (lambda / m) * w_k` (L2), `g_k = g_k / m + (lambda / m) * sign(w_k)` (L1,
     /// sign(0) = 0, NaN passes through), `g_k = g_k / m` (none).
     ///
-    /// `lambda / m` is computed once per call. Runs over the zip of `g` and `w` (none: all of `g`).
-    pub fn finish_weights(&self, g: &mut [T], w: &[T], m: T) {
+    /// `lambda / m` is computed once per call. `g` and `w` must have one length (whatever the
+    /// penalty), else [`LengthMismatch`] and `g` is left untouched.
+    pub fn finish_weights(&self, g: &mut [T], w: &[T], m: T) -> Result<(), LengthMismatch> {
+        shape::expect("w", g.len(), w.len())?;
+        self.finish_weights_kernel(g, w, m);
+        Ok(())
+    }
+
+    /// Array form of [`Penalty::finish_weights`]: `g` and `w` of one array type (a vector or a
+    /// matrix), the same kernel over their values in order, the same bits.
+    ///
+    /// # Examples
+    ///
+    /// ```
+    /// use sinew_runtime::penalty::Penalty;
+    ///
+    /// let mut g = [[1.0_f64, 1.0]];
+    /// Penalty::L2(0.5).finish_weights_n(&mut g, &[[2.0, -4.0]], 2.0);
+    /// assert_eq!(g, [[0.5 + 0.5, 0.5 - 1.0]]);
+    /// ```
+    #[inline]
+    pub fn finish_weights_n<A: Flat<T>>(&self, g: &mut A, w: &A, m: T) {
+        self.finish_weights_kernel(g.values_mut(), w.values(), m);
+    }
+
+    /// The loop of [`Penalty::finish_weights`], on operands of one length.
+    fn finish_weights_kernel(&self, g: &mut [T], w: &[T], m: T) {
         match *self {
             Penalty::None => finish_bias(g, m),
             Penalty::L2(lambda) => {
@@ -164,7 +191,7 @@ mod tests {
         ] {
             for m in [1.0, 7.0, 32.0] {
                 let mut g = [0.0; 12];
-                pen.finish_weights(&mut g, &w, m);
+                pen.finish_weights(&mut g, &w, m).unwrap();
                 for k in 0..w.len() {
                     let h = 1e-6;
                     let (mut wp, mut wm) = (w.clone(), w.clone());
@@ -200,13 +227,13 @@ mod tests {
         // L2: (1 + 0.125, -2 - 0.25, 0); L1: (1 + 0.125, -2 - 0.125, 0 + 0) as sign(0) = 0.
         let w = [1.0_f64, -2.0, 0.0];
         let mut g = [4.0, -8.0, 0.0];
-        Penalty::L2(0.5).finish_weights(&mut g, &w, 4.0);
+        Penalty::L2(0.5).finish_weights(&mut g, &w, 4.0).unwrap();
         assert_eq!(g, [1.125, -2.25, 0.0]);
         let mut g = [4.0, -8.0, 0.0];
-        Penalty::L1(0.5).finish_weights(&mut g, &w, 4.0);
+        Penalty::L1(0.5).finish_weights(&mut g, &w, 4.0).unwrap();
         assert_eq!(g, [1.125, -2.125, 0.0]);
         let mut g = [4.0, -8.0, 0.0];
-        Penalty::None.finish_weights(&mut g, &w, 4.0);
+        Penalty::None.finish_weights(&mut g, &w, 4.0).unwrap();
         assert_eq!(g, [1.0, -2.0, 0.0]);
     }
 
@@ -240,8 +267,8 @@ mod tests {
             let mut total = 0.0;
             for (x, y) in xs.chunks_exact(n).zip(ys.chunks_exact(o)) {
                 let mut z = [0.0; 2];
-                crate::affine(w, b, x, &mut z);
-                total += crate::loss::squared_error(&z, y);
+                crate::affine(w, b, x, &mut z).unwrap();
+                total += crate::loss::squared_error(&z, y).unwrap();
             }
             total / m as f64 + pen.cost(pen.sum(w), m as f64)
         };
@@ -249,13 +276,13 @@ mod tests {
             let (mut gw, mut gb) = (std::vec![0.0; n * o], std::vec![0.0; o]);
             for (x, y) in xs.chunks_exact(n).zip(ys.chunks_exact(o)) {
                 let mut z = [0.0; 2];
-                crate::affine(&w, &b, x, &mut z);
+                crate::affine(&w, &b, x, &mut z).unwrap();
                 let mut d = [0.0; 2];
-                crate::loss::output_error(&z, y, &mut d);
-                crate::outer_acc(&mut gw, &d, x);
-                crate::add_acc(&mut gb, &d);
+                crate::loss::output_error(&z, y, &mut d).unwrap();
+                crate::outer_acc(&mut gw, &d, x).unwrap();
+                crate::add_acc(&mut gb, &d).unwrap();
             }
-            pen.finish_weights(&mut gw, &w, m as f64);
+            pen.finish_weights(&mut gw, &w, m as f64).unwrap();
             finish_bias(&mut gb, m as f64);
             let h = 1e-6;
             for k in 0..w.len() {
@@ -272,6 +299,34 @@ mod tests {
                 let fd = (cost(&pen, &w, &bp) - cost(&pen, &w, &bm)) / (2.0 * h);
                 assert!((gb[k] - fd).abs() < 1e-8, "{pen:?} b{k}: {} vs {fd}", gb[k]);
             }
+        }
+    }
+
+    /// A short `w` is an error whatever the penalty, and `g` is left as it was; the array form
+    /// gives the bits of the slice form.
+    #[test]
+    fn lengths_are_checked_and_the_array_form_matches() {
+        use crate::shape::LengthMismatch;
+        let w = [[0.5_f64, -2.0, 0.0], [1.5, 0.25, -0.75]];
+        for pen in [Penalty::None, Penalty::L2(0.3), Penalty::L1(0.3)] {
+            let mut g = [1.0; 6];
+            let want = LengthMismatch {
+                operand: "w",
+                expected: 6,
+                found: 5,
+            };
+            let r = pen.finish_weights(&mut g, &w.as_flattened()[..5], 4.0);
+            assert_eq!(r, Err(want), "{pen:?}");
+            assert_eq!(g, [1.0; 6]);
+            let mut ga = [[0.25, -1.0, 3.0], [2.0, 0.5, -0.125]];
+            let mut gs = ga;
+            pen.finish_weights_n(&mut ga, &w, 3.0);
+            pen.finish_weights(gs.as_flattened_mut(), w.as_flattened(), 3.0)
+                .unwrap();
+            assert_eq!(
+                ga.map(|r| r.map(f64::to_bits)),
+                gs.map(|r| r.map(f64::to_bits))
+            );
         }
     }
 }

@@ -88,12 +88,14 @@ fn min_kink(model: &Model, p: &engine::Params<f64>, xs: &[f64]) -> f64 {
         let mut a = x.to_vec();
         if model.input().standardize {
             let mut s = vec![0.0; a.len()];
-            sinew_runtime::standardize(&a, &p.mean, &p.std, &mut s);
+            sinew_runtime::standardize(&a, &p.mean, &p.std, &mut s)
+                .expect("operands of the model's widths");
             a = s;
         }
         for (l, lp) in model.layers().iter().zip(&p.layers) {
             let mut z = vec![0.0; l.width];
-            sinew_runtime::affine(&lp.weights, &lp.bias, &a, &mut z);
+            sinew_runtime::affine(&lp.weights, &lp.bias, &a, &mut z)
+                .expect("operands of the model's widths");
             if matches!(l.activation, Activation::Relu | Activation::LeakyRelu(_)) {
                 least = z.iter().fold(least, |m, v| m.min(v.abs()));
             }
@@ -175,7 +177,8 @@ fn bitwise<M: Net, T: Real + Send + Sync + Into<f64>>(model: &Model) {
     for (x, y) in xs.iter().zip(&ys) {
         let (ex, ey) = (conv(x.as_ref()), conv(y.as_ref()));
         let mut out = vec![T::ZERO; model.output().width];
-        net.predict(&ep, &ex, &mut s, &mut out);
+        net.predict(&ep, &ex, &mut s, &mut out)
+            .expect("operands of the model's widths");
         assert_eq!(
             bits(p.forward(x).as_ref()),
             bits(&out),
@@ -184,16 +187,21 @@ fn bitwise<M: Net, T: Real + Send + Sync + Into<f64>>(model: &Model) {
         );
         assert_eq!(
             bits(&[p.sample_loss(x, y)]),
-            bits(&[net.loss(&ep, &ex, &ey, &mut s)]),
+            bits(&[net
+                .loss(&ep, &ex, &ey, &mut s)
+                .expect("operands of the model's widths")]),
             "{}: loss",
             M::NAME
         );
         let lg = p.sample_backprop(x, y, &mut g);
-        let le = net.backprop(&ep, &ex, &ey, &mut eg, &mut s);
+        let le = net
+            .backprop(&ep, &ex, &ey, &mut eg, &mut s)
+            .expect("operands of the model's widths");
         assert_eq!(bits(&[lg]), bits(&[le]), "{}: backprop loss", M::NAME);
     }
     p.finish(&mut g, xs.len());
-    net.finish(&mut eg, &ep, xs.len());
+    net.finish(&mut eg, &ep, xs.len())
+        .expect("operands of the model's widths");
     assert_eq!(
         bits(&flat_grad::<M>(&g)),
         bits(&eg.flat_f64()),
@@ -204,7 +212,9 @@ fn bitwise<M: Net, T: Real + Send + Sync + Into<f64>>(model: &Model) {
     let fy: Vec<T> = concat_rows(&ys).into_iter().map(T::from_f64).collect();
     assert_eq!(
         bits(&[p.batch_cost(&xs, &ys)]),
-        bits(&[net.cost(&ep, &fx, &fy)]),
+        bits(&[net
+            .cost(&ep, &fx, &fy)
+            .expect("operands of the model's widths")]),
         "{}: cost",
         M::NAME
     );
@@ -212,7 +222,7 @@ fn bitwise<M: Net, T: Real + Send + Sync + Into<f64>>(model: &Model) {
     let mut et = engine::Trainer::new(model, ep);
     for step in 0..3 {
         let a = M::trainer_step(&mut t, &xs, &ys);
-        let b = et.step(&fx, &fy);
+        let b = et.step(&fx, &fy).expect("operands of the model's widths");
         assert_eq!(bits(&[a]), bits(&[b]), "{}: trainer step {step}", M::NAME);
     }
     assert_eq!(
@@ -247,7 +257,7 @@ impl EndToEnd {
             max_per_layer: 12,
             seed: 31,
         };
-        for layer in gradcheck::check(model, &ep, &fx, &fy, &opts) {
+        for layer in gradcheck::check(model, &ep, &fx, &fy, &opts).expect("whole samples") {
             assert_eq!(
                 layer.failures,
                 0,

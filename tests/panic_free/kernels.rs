@@ -16,6 +16,7 @@ use sinew_runtime::act::Activation;
 use sinew_runtime::blob::{BlobError, Values, Writer};
 use sinew_runtime::penalty::Penalty;
 use sinew_runtime::rng::SplitMix64;
+use sinew_runtime::LengthMismatch;
 
 /// The const-generic array forms for one shape `(I inputs, O outputs)`.
 macro_rules! shaped {
@@ -50,6 +51,70 @@ macro_rules! shaped {
             fn outer_acc_batch_n(g: &mut [[T; $i]; $o], ds: &[[T; $o]], xs: &[[T; $i]]) {
                 rt::linalg::outer_acc_batch_n(g, ds, xs)
             }
+            #[export_name = concat!("sinew_k_", $tag, "_add_acc_n_", $o)]
+            fn add_acc_n(g: &mut [T; $o], d: &[T; $o]) {
+                rt::linalg::add_acc_n(g, d)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_add_acc_batch_n_", $o)]
+            fn add_acc_batch_n(g: &mut [T; $o], ds: &[[T; $o]]) {
+                rt::linalg::add_acc_batch_n(g, ds)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_act_grad_n_", $o)]
+            fn act_grad_n(a: &[T; $o], d: &mut [[T; $o]; 6], alpha: T) {
+                let [d0, d1, d2, d3, d4, d5] = d;
+                rt::act::identity_grad_n(a, d0);
+                rt::act::sigmoid_grad_n(a, d1);
+                rt::act::tanh_grad_n(a, d2);
+                rt::act::relu_grad_n(a, d3);
+                rt::act::leaky_relu_grad_n(a, d4, alpha);
+                rt::act::softmax_grad_n(a, d5);
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_act_grad_batch_n_", $o)]
+            fn act_grad_batch_n(a: &[[T; $o]], d: &mut [[T; $o]], alpha: T) {
+                rt::act::sigmoid_grad_batch_n(a, d);
+                rt::act::tanh_grad_batch_n(a, d);
+                rt::act::relu_grad_batch_n(a, d);
+                rt::act::leaky_relu_grad_batch_n(a, d, alpha);
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_loss_n_", $o)]
+            fn loss_n(z: &[T; $o], y: &[T; $o], a: &mut [T; $o], d: &mut [T; $o]) -> [T; 4] {
+                rt::loss::output_error_n(z, y, d);
+                [
+                    rt::loss::logistic_cross_entropy_n(z, y),
+                    rt::loss::softmax_cross_entropy_n(z, y),
+                    rt::loss::squared_error_n(z, y),
+                    rt::loss::softmax_with_cross_entropy_n(z, y, a),
+                ]
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_optim_n_", $i, "x", $o)]
+            #[allow(clippy::too_many_arguments)]
+            fn optim_n(
+                p: &mut [[T; $i]; $o],
+                g: &[[T; $i]; $o],
+                m: &mut [[T; $i]; $o],
+                v: &mut [[T; $i]; $o],
+                pb: &mut [T; $o],
+                gb: &[T; $o],
+                vb: &mut [T; $o],
+                t: u32,
+                k: [T; 5],
+            ) {
+                let [rate, mu, beta1, beta2, eps] = k;
+                rt::optim::sgd_n(p, g, rate);
+                rt::optim::momentum_n(p, g, v, rate, mu);
+                rt::optim::adam_n(p, g, m, v, t, rate, beta1, beta2, eps);
+                rt::optim::sgd_n(pb, gb, rate);
+                rt::optim::momentum_n(pb, gb, vb, rate, mu);
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_penalty_finish_weights_n_", $i, "x", $o)]
+            fn penalty_finish_weights_n(
+                pen: &Penalty<T>,
+                g: &mut [[T; $i]; $o],
+                w: &[[T; $i]; $o],
+                m: T,
+            ) {
+                Penalty::finish_weights_n(pen, g, w, m)
+            }
             #[export_name = concat!("sinew_k_", $tag, "_softmax_cross_entropy_batch_n_", $o)]
             fn softmax_cross_entropy_batch_n(
                 zs: &[[T; $o]],
@@ -72,13 +137,60 @@ macro_rules! kernels {
         const _: () = {
             type T = $t;
 
+            // reference: the contract
+            #[export_name = concat!("sinew_k_", $tag, "_reference_linalg")]
+            #[allow(clippy::too_many_arguments)]
+            fn reference_linalg(
+                w: &[T],
+                b: &[T],
+                x: &[T],
+                z: &mut [T],
+                g: &mut [T],
+                n: usize,
+                rows: (usize, usize),
+            ) -> Result<(), LengthMismatch> {
+                rt::reference::affine(w, b, x, z)?;
+                rt::reference::back(w, b, z)?;
+                rt::reference::outer_acc(g, b, x)?;
+                rt::reference::add_acc(g, b)?;
+                rt::reference::standardize(x, b, w, z)?;
+                rt::reference::affine_batch(w, b, x, z, n)?;
+                rt::reference::back_batch(w, b, z, n)?;
+                rt::reference::outer_acc_batch(g, b, x, n)?;
+                rt::reference::outer_acc_batch_rows(g, b, x, n, rows)?;
+                rt::reference::add_acc_batch(g, b)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_reference_loss")]
+            fn reference_loss(
+                z: &[T],
+                y: &[T],
+                a: &mut [T],
+                losses: &mut [T],
+                o: usize,
+            ) -> Result<[T; 5], LengthMismatch> {
+                rt::reference::softmax(a);
+                rt::reference::softmax_grad(z, a)?;
+                rt::reference::softmax_cross_entropy_batch(z, y, a, losses, o)?;
+                Ok([
+                    rt::reference::log_sum_exp(z),
+                    rt::reference::logistic_cross_entropy(z, y)?,
+                    rt::reference::softmax_cross_entropy(z, y)?,
+                    rt::reference::squared_error(z, y)?,
+                    rt::reference::softmax_with_cross_entropy(z, y, a)?,
+                ])
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_fold_lanes")]
+            fn fold_lanes(l: [T; rt::linalg::LANES]) -> T {
+                rt::linalg::fold_lanes(l, |a, b| a + b)
+            }
+
             // act
             #[export_name = concat!("sinew_k_", $tag, "_identity")]
             fn identity(v: &mut [T]) {
                 rt::act::identity(v)
             }
             #[export_name = concat!("sinew_k_", $tag, "_identity_grad")]
-            fn identity_grad(a: &[T], d: &mut [T]) {
+            fn identity_grad(a: &[T], d: &mut [T]) -> Result<(), LengthMismatch> {
                 rt::act::identity_grad(a, d)
             }
             #[export_name = concat!("sinew_k_", $tag, "_sigmoid")]
@@ -86,7 +198,7 @@ macro_rules! kernels {
                 rt::act::sigmoid(v)
             }
             #[export_name = concat!("sinew_k_", $tag, "_sigmoid_grad")]
-            fn sigmoid_grad(a: &[T], d: &mut [T]) {
+            fn sigmoid_grad(a: &[T], d: &mut [T]) -> Result<(), LengthMismatch> {
                 rt::act::sigmoid_grad(a, d)
             }
             #[export_name = concat!("sinew_k_", $tag, "_tanh")]
@@ -94,7 +206,7 @@ macro_rules! kernels {
                 rt::act::tanh(v)
             }
             #[export_name = concat!("sinew_k_", $tag, "_tanh_grad")]
-            fn tanh_grad(a: &[T], d: &mut [T]) {
+            fn tanh_grad(a: &[T], d: &mut [T]) -> Result<(), LengthMismatch> {
                 rt::act::tanh_grad(a, d)
             }
             #[export_name = concat!("sinew_k_", $tag, "_relu")]
@@ -102,7 +214,7 @@ macro_rules! kernels {
                 rt::act::relu(v)
             }
             #[export_name = concat!("sinew_k_", $tag, "_relu_grad")]
-            fn relu_grad(a: &[T], d: &mut [T]) {
+            fn relu_grad(a: &[T], d: &mut [T]) -> Result<(), LengthMismatch> {
                 rt::act::relu_grad(a, d)
             }
             #[export_name = concat!("sinew_k_", $tag, "_leaky_relu")]
@@ -110,7 +222,7 @@ macro_rules! kernels {
                 rt::act::leaky_relu(v, alpha)
             }
             #[export_name = concat!("sinew_k_", $tag, "_leaky_relu_grad")]
-            fn leaky_relu_grad(a: &[T], d: &mut [T], alpha: T) {
+            fn leaky_relu_grad(a: &[T], d: &mut [T], alpha: T) -> Result<(), LengthMismatch> {
                 rt::act::leaky_relu_grad(a, d, alpha)
             }
             #[export_name = concat!("sinew_k_", $tag, "_softmax")]
@@ -118,7 +230,7 @@ macro_rules! kernels {
                 rt::act::softmax(v)
             }
             #[export_name = concat!("sinew_k_", $tag, "_softmax_grad")]
-            fn softmax_grad(a: &[T], d: &mut [T]) {
+            fn softmax_grad(a: &[T], d: &mut [T]) -> Result<(), LengthMismatch> {
                 rt::act::softmax_grad(a, d)
             }
             #[export_name = concat!("sinew_k_", $tag, "_activation_forward")]
@@ -126,41 +238,66 @@ macro_rules! kernels {
                 Activation::forward(g, v)
             }
             #[export_name = concat!("sinew_k_", $tag, "_activation_backward")]
-            fn activation_backward(g: &Activation<T>, a: &[T], d: &mut [T]) {
+            fn activation_backward(
+                g: &Activation<T>,
+                a: &[T],
+                d: &mut [T],
+            ) -> Result<(), LengthMismatch> {
                 Activation::backward(g, a, d)
             }
 
             // linalg, slice forms
             #[export_name = concat!("sinew_k_", $tag, "_affine")]
-            fn affine(w: &[T], b: &[T], x: &[T], z: &mut [T]) {
+            fn affine(w: &[T], b: &[T], x: &[T], z: &mut [T]) -> Result<(), LengthMismatch> {
                 rt::linalg::affine(w, b, x, z)
             }
             #[export_name = concat!("sinew_k_", $tag, "_back")]
-            fn back(w: &[T], d: &[T], out: &mut [T]) {
+            fn back(w: &[T], d: &[T], out: &mut [T]) -> Result<(), LengthMismatch> {
                 rt::linalg::back(w, d, out)
             }
             #[export_name = concat!("sinew_k_", $tag, "_outer_acc")]
-            fn outer_acc(g: &mut [T], d: &[T], a: &[T]) {
+            fn outer_acc(g: &mut [T], d: &[T], a: &[T]) -> Result<(), LengthMismatch> {
                 rt::linalg::outer_acc(g, d, a)
             }
             #[export_name = concat!("sinew_k_", $tag, "_add_acc")]
-            fn add_acc(g: &mut [T], d: &[T]) {
+            fn add_acc(g: &mut [T], d: &[T]) -> Result<(), LengthMismatch> {
                 rt::linalg::add_acc(g, d)
             }
             #[export_name = concat!("sinew_k_", $tag, "_standardize")]
-            fn standardize(x: &[T], mean: &[T], std: &[T], out: &mut [T]) {
+            fn standardize(
+                x: &[T],
+                mean: &[T],
+                std: &[T],
+                out: &mut [T],
+            ) -> Result<(), LengthMismatch> {
                 rt::linalg::standardize(x, mean, std, out)
             }
             #[export_name = concat!("sinew_k_", $tag, "_affine_batch")]
-            fn affine_batch(w: &[T], b: &[T], xs: &[T], zs: &mut [T], n: usize) {
+            fn affine_batch(
+                w: &[T],
+                b: &[T],
+                xs: &[T],
+                zs: &mut [T],
+                n: usize,
+            ) -> Result<(), LengthMismatch> {
                 rt::linalg::affine_batch(w, b, xs, zs, n)
             }
             #[export_name = concat!("sinew_k_", $tag, "_back_batch")]
-            fn back_batch(w: &[T], ds: &[T], outs: &mut [T], n: usize) {
+            fn back_batch(
+                w: &[T],
+                ds: &[T],
+                outs: &mut [T],
+                n: usize,
+            ) -> Result<(), LengthMismatch> {
                 rt::linalg::back_batch(w, ds, outs, n)
             }
             #[export_name = concat!("sinew_k_", $tag, "_outer_acc_batch")]
-            fn outer_acc_batch(g: &mut [T], ds: &[T], xs: &[T], n: usize) {
+            fn outer_acc_batch(
+                g: &mut [T],
+                ds: &[T],
+                xs: &[T],
+                n: usize,
+            ) -> Result<(), LengthMismatch> {
                 rt::linalg::outer_acc_batch(g, ds, xs, n)
             }
             #[export_name = concat!("sinew_k_", $tag, "_outer_acc_batch_rows")]
@@ -170,11 +307,11 @@ macro_rules! kernels {
                 xs: &[T],
                 n: usize,
                 rows: (usize, usize),
-            ) {
+            ) -> Result<(), LengthMismatch> {
                 rt::linalg::outer_acc_batch_rows(g, ds, xs, n, rows)
             }
             #[export_name = concat!("sinew_k_", $tag, "_add_acc_batch")]
-            fn add_acc_batch(g: &mut [T], ds: &[T]) {
+            fn add_acc_batch(g: &mut [T], ds: &[T]) -> Result<(), LengthMismatch> {
                 rt::linalg::add_acc_batch(g, ds)
             }
 
@@ -188,15 +325,19 @@ macro_rules! kernels {
                 rt::loss::log_sum_exp(z)
             }
             #[export_name = concat!("sinew_k_", $tag, "_logistic_cross_entropy")]
-            fn logistic_cross_entropy(z: &[T], y: &[T]) -> T {
+            fn logistic_cross_entropy(z: &[T], y: &[T]) -> Result<T, LengthMismatch> {
                 rt::loss::logistic_cross_entropy(z, y)
             }
             #[export_name = concat!("sinew_k_", $tag, "_softmax_cross_entropy")]
-            fn softmax_cross_entropy(z: &[T], y: &[T]) -> T {
+            fn softmax_cross_entropy(z: &[T], y: &[T]) -> Result<T, LengthMismatch> {
                 rt::loss::softmax_cross_entropy(z, y)
             }
             #[export_name = concat!("sinew_k_", $tag, "_softmax_with_cross_entropy")]
-            fn softmax_with_cross_entropy(z: &[T], y: &[T], a: &mut [T]) -> T {
+            fn softmax_with_cross_entropy(
+                z: &[T],
+                y: &[T],
+                a: &mut [T],
+            ) -> Result<T, LengthMismatch> {
                 rt::loss::softmax_with_cross_entropy(z, y, a)
             }
             #[export_name = concat!("sinew_k_", $tag, "_softmax_cross_entropy_batch")]
@@ -206,25 +347,31 @@ macro_rules! kernels {
                 as_: &mut [T],
                 losses: &mut [T],
                 o: usize,
-            ) {
+            ) -> Result<(), LengthMismatch> {
                 rt::loss::softmax_cross_entropy_batch(zs, ys, as_, losses, o)
             }
             #[export_name = concat!("sinew_k_", $tag, "_squared_error")]
-            fn squared_error(a: &[T], y: &[T]) -> T {
+            fn squared_error(a: &[T], y: &[T]) -> Result<T, LengthMismatch> {
                 rt::loss::squared_error(a, y)
             }
             #[export_name = concat!("sinew_k_", $tag, "_output_error")]
-            fn output_error(a: &[T], y: &[T], d: &mut [T]) {
+            fn output_error(a: &[T], y: &[T], d: &mut [T]) -> Result<(), LengthMismatch> {
                 rt::loss::output_error(a, y, d)
             }
 
             // optim
             #[export_name = concat!("sinew_k_", $tag, "_sgd")]
-            fn sgd(p: &mut [T], g: &[T], rate: T) {
+            fn sgd(p: &mut [T], g: &[T], rate: T) -> Result<(), LengthMismatch> {
                 rt::optim::sgd(p, g, rate)
             }
             #[export_name = concat!("sinew_k_", $tag, "_momentum")]
-            fn momentum(p: &mut [T], g: &[T], v: &mut [T], rate: T, mu: T) {
+            fn momentum(
+                p: &mut [T],
+                g: &[T],
+                v: &mut [T],
+                rate: T,
+                mu: T,
+            ) -> Result<(), LengthMismatch> {
                 rt::optim::momentum(p, g, v, rate, mu)
             }
             #[export_name = concat!("sinew_k_", $tag, "_adam")]
@@ -239,7 +386,7 @@ macro_rules! kernels {
                 beta1: T,
                 beta2: T,
                 eps: T,
-            ) {
+            ) -> Result<(), LengthMismatch> {
                 rt::optim::adam(p, g, m, v, t, rate, beta1, beta2, eps)
             }
 
@@ -253,7 +400,12 @@ macro_rules! kernels {
                 Penalty::cost(p, sum, m)
             }
             #[export_name = concat!("sinew_k_", $tag, "_penalty_finish_weights")]
-            fn penalty_finish_weights(p: &Penalty<T>, g: &mut [T], w: &[T], m: T) {
+            fn penalty_finish_weights(
+                p: &Penalty<T>,
+                g: &mut [T],
+                w: &[T],
+                m: T,
+            ) -> Result<(), LengthMismatch> {
                 Penalty::finish_weights(p, g, w, m)
             }
             #[export_name = concat!("sinew_k_", $tag, "_finish_bias")]

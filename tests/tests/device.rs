@@ -303,7 +303,8 @@ fn host() -> Host {
 
     for (i, x) in demo::RAW_INPUTS.iter().enumerate() {
         let mut out = vec![0.0f32; outputs];
-        net.predict(&params, x, &mut scratch, &mut out);
+        net.predict(&params, x, &mut scratch, &mut out)
+            .expect("operands of the model's widths");
         lines.push(format!("infer {i} {}", classified(&model, &out)));
     }
     let blob = sinew::pack::encode(&model, &weights).expect("weights fit");
@@ -322,14 +323,19 @@ fn host() -> Host {
         .collect();
     let mut trainer = Trainer::new(&model, params.clone());
     for step in 0..demo::TRAIN_STEPS {
-        let cost = trainer.step(&xs, &ys);
+        let cost = trainer
+            .step(&xs, &ys)
+            .expect("operands of the model's widths");
         lines.push(format!("train {step} cost={}", bits(cost)));
     }
-    let final_cost = net.cost(&trainer.params, &xs, &ys);
+    let final_cost = net
+        .cost(&trainer.params, &xs, &ys)
+        .expect("operands of the model's widths");
     lines.push(format!("train final cost={}", bits(final_cost)));
     for (i, x) in demo::NEW_INPUTS.iter().enumerate() {
         let mut out = vec![0.0f32; outputs];
-        net.predict(&trainer.params, x, &mut scratch, &mut out);
+        net.predict(&trainer.params, x, &mut scratch, &mut out)
+            .expect("operands of the model's widths");
         lines.push(format!("after {i} {}", classified(&model, &out)));
     }
     let learned = sinew::weights::Weights::from_params(

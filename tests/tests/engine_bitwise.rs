@@ -38,7 +38,8 @@ fn same_as_engine<M: Net>(model: &sinew::ir::Model) {
     let mut eg = engine::Params::zero_gradient(model);
     for (x, y) in xs.iter().zip(&ys) {
         let mut out = vec![<M::Scalar as sinew_runtime::Real>::ZERO; model.output().width];
-        net.predict(&ep, x.as_ref(), &mut s, &mut out);
+        net.predict(&ep, x.as_ref(), &mut s, &mut out)
+            .expect("operands of the model's widths");
         assert_eq!(
             bits(p.forward(x).as_ref()),
             bits(&out),
@@ -48,14 +49,19 @@ fn same_as_engine<M: Net>(model: &sinew::ir::Model) {
         let l = p.sample_loss(x, y);
         assert_eq!(
             bits(&[l]),
-            bits(&[net.loss(&ep, x.as_ref(), y.as_ref(), &mut s)])
+            bits(&[net
+                .loss(&ep, x.as_ref(), y.as_ref(), &mut s)
+                .expect("operands of the model's widths")])
         );
         let lb = p.sample_backprop(x, y, &mut g);
-        let le = net.backprop(&ep, x.as_ref(), y.as_ref(), &mut eg, &mut s);
+        let le = net
+            .backprop(&ep, x.as_ref(), y.as_ref(), &mut eg, &mut s)
+            .expect("operands of the model's widths");
         assert_eq!(bits(&[lb]), bits(&[le]), "{}: backprop loss", M::NAME);
     }
     p.finish(&mut g, xs.len());
-    net.finish(&mut eg, &ep, xs.len());
+    net.finish(&mut eg, &ep, xs.len())
+        .expect("operands of the model's widths");
     let mut generated = Vec::new();
     M::grad_arrays(&g, &mut |a| generated.extend_from_slice(a));
     let host: Vec<M::Scalar> = eg
@@ -68,7 +74,9 @@ fn same_as_engine<M: Net>(model: &sinew::ir::Model) {
     let flat_y: Vec<M::Scalar> = ys.iter().flat_map(|y| y.as_ref().to_vec()).collect();
     assert_eq!(
         bits(&[p.batch_cost(&xs, &ys)]),
-        bits(&[net.cost(&ep, &flat_x, &flat_y)])
+        bits(&[net
+            .cost(&ep, &flat_x, &flat_y)
+            .expect("operands of the model's widths")])
     );
 
     // Three optimizer steps of each trainer, from the same parameters.
@@ -76,7 +84,9 @@ fn same_as_engine<M: Net>(model: &sinew::ir::Model) {
     let mut et = engine::Trainer::new(model, ep);
     for _ in 0..3 {
         let a = M::trainer_step(&mut t, &xs, &ys);
-        let b = et.step(&flat_x, &flat_y);
+        let b = et
+            .step(&flat_x, &flat_y)
+            .expect("operands of the model's widths");
         assert_eq!(bits(&[a]), bits(&[b]), "{}: trainer cost", M::NAME);
     }
     let mut after = Vec::new();

@@ -332,17 +332,25 @@ fn engine_run(g: &Golden) -> Computed {
     let mut losses = Vec::new();
     for (x, y) in g.xs.iter().zip(&g.ys) {
         let mut out = vec![0.0; n_out];
-        net.predict(&p, x, &mut s, &mut out);
+        net.predict(&p, x, &mut s, &mut out)
+            .expect("operands of the model's widths");
         outputs.push(out);
-        losses.push(net.loss(&p, x, y, &mut s));
+        losses.push(
+            net.loss(&p, x, y, &mut s)
+                .expect("operands of the model's widths"),
+        );
     }
     let xs: Vec<f64> = g.xs.concat();
     let ys: Vec<f64> = g.ys.concat();
     let mut grad = Params::zero_gradient(&g.model);
-    let cost = batch::gradient_into(&net, &p, &xs, &ys, &mut grad).expect("a non-empty batch");
+    let cost = batch::gradient_into(&net, &p, &xs, &ys, &mut grad)
+        .expect("whole samples")
+        .expect("a non-empty batch");
     assert_eq!(
         cost.to_bits(),
-        net.cost(&p, &xs, &ys).to_bits(),
+        net.cost(&p, &xs, &ys)
+            .expect("operands of the model's widths")
+            .to_bits(),
         "{}: the batch cost is the plain cost",
         g.file
     );

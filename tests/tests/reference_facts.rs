@@ -25,7 +25,9 @@ fn model(src: &str) -> Model {
 fn gradient(m: &Model, p: &Params<f64>, xs: &[f64], ys: &[f64]) -> (f64, Params<f64>) {
     let net = Net::<f64>::new(m);
     let mut g = Params::zero_gradient(m);
-    let cost = batch::gradient_into(&net, p, xs, ys, &mut g).expect("a non-empty batch");
+    let cost = batch::gradient_into(&net, p, xs, ys, &mut g)
+        .expect("whole samples")
+        .expect("a non-empty batch");
     (cost, g)
 }
 
@@ -47,7 +49,8 @@ fn sigmoid_derivative_at_zero_is_one_quarter() {
     let p = Params::<f64>::zeroed(&m);
     let net = Net::<f64>::new(&m);
     let mut out = [0.0];
-    net.predict(&p, &[0.7], &mut Scratch::new(&m), &mut out);
+    net.predict(&p, &[0.7], &mut Scratch::new(&m), &mut out)
+        .expect("operands of the model's widths");
     assert_eq!(out, [0.5], "sigmoid(0) = 1/2");
     let (_, g) = gradient(&m, &p, &[0.7], &[-0.5]);
     assert_eq!(g.layers[0].bias, [0.25]);
@@ -107,7 +110,9 @@ fn softmax_of_known_vectors() {
         ));
         let p = Params::<f64>::from_f64(&[FlatLayer::new(identity_matrix(n), vec![0.0; n])], None);
         let mut out = vec![0.0; n];
-        Net::<f64>::new(&m).predict(&p, x, &mut Scratch::new(&m), &mut out);
+        Net::<f64>::new(&m)
+            .predict(&p, x, &mut Scratch::new(&m), &mut out)
+            .expect("operands of the model's widths");
         let total: f64 = x.iter().map(|v| v.exp()).sum();
         for ((&a, &want), &xj) in out.iter().zip(published).zip(x) {
             assert!(
@@ -137,11 +142,14 @@ fn log_sum_exp_of_two_thousands_does_not_overflow() {
     let net = Net::<f64>::new(&m);
     let mut s = Scratch::new(&m);
     let x = [1000.0, 1000.0];
-    let loss = net.loss(&p, &x, &[1.0, 0.0], &mut s);
+    let loss = net
+        .loss(&p, &x, &[1.0, 0.0], &mut s)
+        .expect("operands of the model's widths");
     assert!(loss.is_finite());
     assert_eq!(loss + 1000.0, 1000.0 + std::f64::consts::LN_2);
     let mut out = [0.0; 2];
-    net.predict(&p, &x, &mut s, &mut out);
+    net.predict(&p, &x, &mut s, &mut out)
+        .expect("operands of the model's widths");
     assert_eq!(out, [0.5, 0.5]);
     let (cost, g) = gradient(&m, &p, &x, &[1.0, 0.0]);
     assert_eq!(cost, loss);
@@ -152,7 +160,9 @@ fn log_sum_exp_of_two_thousands_does_not_overflow() {
     );
     let p = Params::<f64>::from_f64(&[FlatLayer::new(vec![1.0], vec![0.0])], None);
     assert_eq!(
-        Net::<f64>::new(&m).loss(&p, &[1000.0], &[0.0], &mut Scratch::new(&m)),
+        Net::<f64>::new(&m)
+            .loss(&p, &[1000.0], &[0.0], &mut Scratch::new(&m))
+            .expect("a sample of the model's width"),
         1000.0
     );
 }
@@ -297,7 +307,8 @@ fn the_worked_backprop_example_through_the_engine() {
     let (x, y) = ([0.05, 0.10], [0.01, 0.99]);
     let net = Net::<f64>::new(&m);
     let mut s = Scratch::new(&m);
-    net.forward(&p, &x, &mut s);
+    net.forward(&p, &x, &mut s)
+        .expect("operands of the model's widths");
     close_to_published("out_h1", s.activations(0)[0], 0.593269992, 9);
     close_to_published("out_h2", s.activations(0)[1], 0.596884378, 9);
     close_to_published("out_o1", s.activations(1)[0], 0.75136507, 8);
@@ -310,7 +321,7 @@ fn the_worked_backprop_example_through_the_engine() {
 
     let data = Samples::<f64>::from_rows(&[x.to_vec()], &[y.to_vec()], None);
     let mut trainer = Trainer::new(&m, p);
-    let before = trainer.step(&data.xs, &data.ys);
+    let before = trainer.step(&data.xs, &data.ys).expect("whole samples");
     assert_eq!(before, cost, "the step reports J before the update");
     let hidden = [
         (0.149780716, 9),

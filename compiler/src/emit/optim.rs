@@ -164,13 +164,16 @@ enum Field {
     Vector(Ident),
 }
 
-/// `owner.field` as the slice the runtime's optimizer steps take.
+/// `owner.field` as the array the runtime's optimizer steps (`_n`) take: operands of one array
+/// type, so their lengths agree by construction.
 fn access(owner: TokenStream, field: &Field, mutable: bool) -> TokenStream {
-    match (field, mutable) {
-        (Field::Matrix(f), true) => quote!(#owner.#f.as_flattened_mut()),
-        (Field::Matrix(f), false) => quote!(#owner.#f.as_flattened()),
-        (Field::Vector(f), true) => quote!(&mut #owner.#f),
-        (Field::Vector(f), false) => quote!(&#owner.#f),
+    let f = match field {
+        Field::Matrix(f) | Field::Vector(f) => f,
+    };
+    if mutable {
+        quote!(&mut #owner.#f)
+    } else {
+        quote!(&#owner.#f)
     }
 }
 
@@ -179,16 +182,16 @@ fn update(k: &Update, field: &Field) -> TokenStream {
     let p = access(quote!(self.params), field, true);
     let g = access(quote!(self.grad), field, false);
     match k {
-        Update::Sgd { .. } => quote!(rt::optim::sgd(#p, #g, Self::RATE);),
+        Update::Sgd { .. } => quote!(rt::optim::sgd_n(#p, #g, Self::RATE);),
         Update::Momentum { .. } => {
             let v = access(quote!(self.velocity), field, true);
-            quote!(rt::optim::momentum(#p, #g, #v, Self::RATE, Self::MOMENTUM);)
+            quote!(rt::optim::momentum_n(#p, #g, #v, Self::RATE, Self::MOMENTUM);)
         }
         Update::Adam { .. } => {
             let m = access(quote!(self.m), field, true);
             let v = access(quote!(self.v), field, true);
             quote! {
-                rt::optim::adam(#p, #g, #m, #v, t, Self::RATE, Self::BETA1, Self::BETA2, Self::EPSILON);
+                rt::optim::adam_n(#p, #g, #m, #v, t, Self::RATE, Self::BETA1, Self::BETA2, Self::EPSILON);
             }
         }
     }

@@ -332,7 +332,7 @@ pub(super) fn impl_gradients(cx: &Ctx) -> TokenStream {
         let w = ident(&n.weights);
         let b = ident(&n.bias);
         quote! {
-            penalty.finish_weights(self.#w.as_flattened_mut(), params.#w.as_flattened(), m);
+            penalty.finish_weights_n(&mut self.#w, &params.#w, m);
             rt::penalty::finish_bias(&mut self.#b, m);
         }
     });

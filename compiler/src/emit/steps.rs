@@ -11,9 +11,15 @@ use crate::plan::{Buf, Head, Step};
 use proc_macro2::{Ident, TokenStream};
 use quote::{format_ident, quote};
 
-/// `rt::act::<name>` of an activation or of its derivative (`grad`), and the `leaky_relu` slope
-/// literal. `None` for the identity, which has no kernel.
-fn act_kernel(cx: &Ctx, act: Activation, grad: bool) -> Option<(TokenStream, Option<TokenStream>)> {
+/// `rt::act::<name>` of an activation or of its derivative (`grad`: its array form `_grad_n`, or
+/// `_grad_batch_n` over rows when `rows`), and the `leaky_relu` slope literal. `None` for the
+/// identity, which has no kernel.
+fn act_kernel(
+    cx: &Ctx,
+    act: Activation,
+    grad: bool,
+    rows: bool,
+) -> Option<(TokenStream, Option<TokenStream>)> {
     let (name, alpha) = match act {
         Activation::Identity => return None,
         Activation::Sigmoid => ("sigmoid", None),
@@ -22,8 +28,10 @@ fn act_kernel(cx: &Ctx, act: Activation, grad: bool) -> Option<(TokenStream, Opt
         Activation::LeakyRelu(a) => ("leaky_relu", Some(cx.scalar_lit(a))),
         Activation::Softmax => ("softmax", None),
     };
-    let f = if grad {
-        format_ident!("{}_grad", name)
+    let f = if grad && rows {
+        format_ident!("{}_grad_batch_n", name)
+    } else if grad {
+        format_ident!("{}_grad_n", name)
     } else {
         format_ident!("{}", name)
     };
@@ -31,21 +39,21 @@ fn act_kernel(cx: &Ctx, act: Activation, grad: bool) -> Option<(TokenStream, Opt
 }
 
 /// `rt::act::<f>(args.., alpha);` (nothing for the identity).
-fn act_call(cx: &Ctx, act: Activation, grad: bool, args: TokenStream) -> TokenStream {
-    match act_kernel(cx, act, grad) {
+fn act_call(cx: &Ctx, act: Activation, grad: bool, rows: bool, args: TokenStream) -> TokenStream {
+    match act_kernel(cx, act, grad, rows) {
         None => TokenStream::new(),
         Some((f, None)) => quote!(#f(#args);),
         Some((f, Some(alpha))) => quote!(#f(#args, #alpha);),
     }
 }
 
-/// `rt::loss::<kernel>` of one sample's loss under `head` (the fused softmax form is
+/// `rt::loss::<kernel>_n` of one sample's loss under `head` (the fused softmax form is
 /// [`Step::SoftmaxWithLoss`]).
 fn loss_kernel(head: Head) -> TokenStream {
     match head {
-        Head::SoftmaxCrossEntropy => quote!(rt::loss::softmax_cross_entropy),
-        Head::Logistic => quote!(rt::loss::logistic_cross_entropy),
-        Head::SquaredError(_) => quote!(rt::loss::squared_error),
+        Head::SoftmaxCrossEntropy => quote!(rt::loss::softmax_cross_entropy_n),
+        Head::Logistic => quote!(rt::loss::logistic_cross_entropy_n),
+        Head::SquaredError(_) => quote!(rt::loss::squared_error_n),
     }
 }
 
@@ -172,11 +180,11 @@ pub(super) fn sample(
                 declared.push(to);
                 bind(&s, to, rewritten(to), s.value(from))
             }
-            Step::Activate { act, buf } => act_call(cx, act, false, s.m(buf)),
+            Step::Activate { act, buf } => act_call(cx, act, false, false, s.m(buf)),
             Step::SoftmaxWithLoss { logits, out } => {
                 let d = declare(&s, &mut declared, out);
                 let (z, a) = (s.r(logits), s.m(out));
-                quote!(#d let loss = rt::loss::softmax_with_cross_entropy(#z, y, #a);)
+                quote!(#d let loss = rt::loss::softmax_with_cross_entropy_n(#z, y, #a);)
             }
             Step::Loss { head, operand } => {
                 let f = loss_kernel(head);
@@ -190,14 +198,14 @@ pub(super) fn sample(
             Step::OutputError { out: a, err } => {
                 let d = declare(&s, &mut declared, err);
                 let (a, e) = (s.r(a), s.m(err));
-                quote!(#d rt::loss::output_error(#a, y, #e);)
+                quote!(#d rt::loss::output_error_n(#a, y, #e);)
             }
             Step::ActivationGrad { act, act_of, err } => {
                 let args = {
                     let (a, e) = (s.r(act_of), s.m(err));
                     quote!(#a, #e)
                 };
-                act_call(cx, act, true, args)
+                act_call(cx, act, true, false, args)
             }
             Step::OuterAcc { layer, err, input } => {
                 let n = &cx.names.layers[layer];
@@ -218,7 +226,7 @@ pub(super) fn sample(
             Step::AddAcc { layer, err } => {
                 let b = ident(&cx.names.layers[layer].bias);
                 let d = s.r(err);
-                quote!(rt::add_acc(&mut grad.#b, #d);)
+                quote!(rt::add_acc_n(&mut grad.#b, #d);)
             }
             Step::Back { layer, err, out } => {
                 if cx.unrolled_at(layer) {
@@ -411,7 +419,7 @@ pub(super) fn block(cx: &Ctx, steps: &[Step]) -> TokenStream {
                         }
                     }
                 } else {
-                    act_call(cx, act, false, quote!(#rows.as_flattened_mut()))
+                    act_call(cx, act, false, false, quote!(#rows.as_flattened_mut()))
                 }
             }
             Step::SoftmaxWithLoss { logits, out } => {
@@ -436,7 +444,7 @@ pub(super) fn block(cx: &Ctx, steps: &[Step]) -> TokenStream {
                 let (a, d) = (name(a), name(err));
                 quote! {
                     for ((d_row, a_row), y) in #d.iter_mut().zip(#a.iter()).zip(yb) {
-                        rt::loss::output_error(a_row, y, d_row);
+                        rt::loss::output_error_n(a_row, y, d_row);
                     }
                 }
             }
@@ -445,16 +453,11 @@ pub(super) fn block(cx: &Ctx, steps: &[Step]) -> TokenStream {
                 if act == Activation::Softmax {
                     quote! {
                         for (a_row, d_row) in #a.iter().zip(#d.iter_mut()) {
-                            rt::act::softmax_grad(a_row, d_row);
+                            rt::act::softmax_grad_n(a_row, d_row);
                         }
                     }
                 } else {
-                    act_call(
-                        cx,
-                        act,
-                        true,
-                        quote!(#a.as_flattened(), #d.as_flattened_mut()),
-                    )
+                    act_call(cx, act, true, true, quote!(#a, #d))
                 }
             }
             Step::OuterAcc { layer, err, input } => {
@@ -465,7 +468,7 @@ pub(super) fn block(cx: &Ctx, steps: &[Step]) -> TokenStream {
             Step::AddAcc { layer, err } => {
                 let b = ident(&cx.names.layers[layer].bias);
                 let d = name(err);
-                quote!(rt::add_acc_batch(&mut grad.#b, #d.as_flattened());)
+                quote!(rt::add_acc_batch_n(&mut grad.#b, #d);)
             }
             Step::Back { layer, err, out } => {
                 let w = ident(&cx.names.layers[layer].weights);

@@ -218,7 +218,7 @@ fn output_is_clean_and_deterministic() {
         "pub fn predict_into(&self, x: &[Scalar; INPUTS], out: &mut [Scalar; OUTPUTS])",
         "pub fn classify(&self, x: &[Scalar; INPUTS]) -> (Class, Scalar)",
         "WornBearing",
-        "rt::loss::softmax_cross_entropy(&z_state, y)",
+        "rt::loss::softmax_cross_entropy_n(&z_state, y)",
         "pub fn step(",
         "pub m: Gradients,",
     ] {

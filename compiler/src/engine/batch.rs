@@ -13,7 +13,9 @@
 //! accumulation; neither split changes any operation, so the result does not depend on the thread
 //! count.
 
-use super::{activation, sample_loss, Net, Operands, Params, Scratch};
+use super::{
+    activation, batch_samples, sample_loss, LengthMismatch, Net, Operands, Params, Scratch,
+};
 use crate::ir;
 use crate::plan::{Buf, Buffer, Plan, Step};
 use rayon::prelude::*;
@@ -64,12 +66,19 @@ fn forward_rows<T: Real>(act: &Activation<T>, v: &mut [T], w: usize) {
 }
 
 /// `d *= g'(a)` over rows of width `w`: elementwise on the whole slices, softmax row by row.
-fn backward_rows<T: Real>(act: &Activation<T>, a: &[T], d: &mut [T], w: usize) {
+fn backward_rows<T: Real>(
+    act: &Activation<T>,
+    a: &[T],
+    d: &mut [T],
+    w: usize,
+) -> Result<(), LengthMismatch> {
     match act {
         Activation::Softmax => {
+            super::expect_len("d", a.len(), d.len())?;
             for (ar, dr) in a.chunks_exact(w).zip(d.chunks_exact_mut(w)) {
-                act.backward(ar, dr);
+                act.backward(ar, dr)?;
             }
+            Ok(())
         }
         _ => act.backward(a, d),
     }
@@ -86,8 +95,15 @@ fn width_of<T>(net: &Net<'_, T>, buf: Buf) -> usize {
 
 /// The backprop pass without its accumulation over the samples `xs` / `ys` (at most
 /// [`SUB_BLOCK`]) into `sb`: each step's batch kernel over the used rows, which gives, row by
-/// row, the bits of the per-sample kernel of `Net::deltas`.
-fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut SubBlock<T>) {
+/// row, the bits of the per-sample kernel of `Net::deltas`. A kernel's [`LengthMismatch`] (an
+/// internal invariant broken: the plan's widths size every buffer) is returned.
+fn deltas<T: Real>(
+    net: &Net<'_, T>,
+    p: &Params<T>,
+    xs: &[T],
+    ys: &[T],
+    sb: &mut SubBlock<T>,
+) -> Result<(), LengthMismatch> {
     let (n_in, n_out) = (net.model.input.width, net.model.output().width);
     let used = (xs.len() / n_in.max(1)).min(ys.len() / n_out.max(1));
     sb.used = used;
@@ -102,7 +118,7 @@ fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut
             Step::Standardize { from, to } => {
                 if let Some((x, out)) = s.io(ops, from, to) {
                     for (x, x0) in x.chunks_exact(n_in).zip(out.chunks_exact_mut(n_in)) {
-                        rt::standardize(x, &p.mean, &p.std, x0);
+                        rt::standardize(x, &p.mean, &p.std, x0)?;
                     }
                 }
             }
@@ -113,7 +129,7 @@ fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut
                 if let Some((x, z)) = s.io(ops, input, out) {
                     let (x, z) = (x.get(..rows(input)), z.get_mut(..rows(out)));
                     if let (Some(x), Some(z)) = (x, z) {
-                        rt::affine_batch(&lp.weights, &lp.bias, x, z, l.fan_in);
+                        rt::affine_batch(&lp.weights, &lp.bias, x, z, l.fan_in)?;
                     }
                 }
             }
@@ -134,8 +150,11 @@ fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut
             Step::SoftmaxWithLoss { logits, out } => {
                 let w = width_of(net, out);
                 if let Some((z, a)) = s.io(ops, logits, out) {
-                    if let (Some(z), Some(a)) = (z.get(..used * w), a.get_mut(..used * w)) {
-                        rt::loss::softmax_cross_entropy_batch(z, ops.y, a, &mut sb.losses, w);
+                    let losses = sb.losses.get_mut(..used);
+                    if let (Some(z), Some(a), Some(l)) =
+                        (z.get(..used * w), a.get_mut(..used * w), losses)
+                    {
+                        rt::loss::softmax_cross_entropy_batch(z, ops.y, a, l, w)?;
                     }
                 }
             }
@@ -143,14 +162,14 @@ fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut
                 let (v, y) = s.read2(ops, operand, Buf::Target);
                 let rows = v.chunks_exact(n_out).zip(y.chunks_exact(n_out));
                 for (loss, (v, y)) in sb.losses.iter_mut().zip(rows) {
-                    *loss = sample_loss(head, v, y);
+                    *loss = sample_loss(head, v, y)?;
                 }
             }
             Step::OutputError { out, err } => {
                 // `d = a - y` is element-wise: one call over the used rows.
                 if let Some((a, d)) = s.io(ops, out, err) {
                     if let (Some(a), Some(d)) = (a.get(..rows(out)), d.get_mut(..rows(err))) {
-                        rt::loss::output_error(a, ops.y, d);
+                        rt::loss::output_error(a, ops.y, d)?;
                     }
                 }
             }
@@ -158,7 +177,7 @@ fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut
                 let w = width_of(net, err);
                 if let Some((a, d)) = s.io(ops, act_of, err) {
                     if let (Some(a), Some(d)) = (a.get(..used * w), d.get_mut(..used * w)) {
-                        backward_rows(&activation::<T>(act), a, d, w);
+                        backward_rows(&activation::<T>(act), a, d, w)?;
                     }
                 }
             }
@@ -169,13 +188,14 @@ fn deltas<T: Real>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], sb: &mut
                 let w = width_of(net, out);
                 if let Some((d, o)) = s.io(ops, err, out) {
                     if let (Some(d), Some(o)) = (d.get(..rows(err)), o.get_mut(..used * w)) {
-                        rt::back_batch(&lp.weights, d, o, w);
+                        rt::back_batch(&lp.weights, d, o, w)?;
                     }
                 }
             }
             Step::OuterAcc { .. } | Step::AddAcc { .. } => {}
         }
     }
+    Ok(())
 }
 
 /// Reusable buffers of [`gradient_into_with`]: the sub-blocks of one block, sized for a model.
@@ -215,15 +235,16 @@ impl<T: Real> BatchScratch<T> {
 }
 
 /// Zeroes `grad`, accumulates the gradient of every sample, finishes it (1/m and penalty) and
-/// returns the batch cost J. `None` (and `grad` zero) for an empty batch. Allocates its buffers;
-/// [`gradient_into_with`] reuses them.
+/// returns the batch cost J. `None` (and `grad` zero) for an empty batch; [`LengthMismatch`]
+/// (and `grad` zero) unless `xs` and `ys` hold the same number of whole samples. Allocates its
+/// buffers; [`gradient_into_with`] reuses them.
 pub fn gradient_into<T: Real + Send + Sync>(
     net: &Net<'_, T>,
     p: &Params<T>,
     xs: &[T],
     ys: &[T],
     grad: &mut Params<T>,
-) -> Option<T> {
+) -> Result<Option<T>, LengthMismatch> {
     let mut scratch = BatchScratch {
         subs: Vec::new(),
         shape: Vec::new(),
@@ -240,16 +261,13 @@ pub fn gradient_into_with<T: Real + Send + Sync>(
     ys: &[T],
     grad: &mut Params<T>,
     scratch: &mut BatchScratch<T>,
-) -> Option<T> {
+) -> Result<Option<T>, LengthMismatch> {
     let model = net.model;
     let (n_in, n_out) = (model.input.width, model.output().width);
     grad.clear();
-    if n_in == 0 || n_out == 0 {
-        return None;
-    }
-    let m = (xs.len() / n_in).min(ys.len() / n_out);
-    if m == 0 {
-        return None;
+    let m = batch_samples(xs, n_in, Some(ys), n_out)?;
+    if n_in == 0 || n_out == 0 || m == 0 {
+        return Ok(None);
     }
     let work = model.parameters() * BLOCK;
     let parallel = work >= PARALLEL_MIN_WORK && rayon::current_num_threads() > 1;
@@ -266,14 +284,14 @@ pub fn gradient_into_with<T: Real + Send + Sync>(
             (x, y)
         };
         if parallel {
-            subs.par_iter_mut().enumerate().for_each(|(k, sb)| {
+            subs.par_iter_mut().enumerate().try_for_each(|(k, sb)| {
                 let (x, y) = piece(k);
-                deltas(net, p, x, y, sb);
-            });
+                deltas(net, p, x, y, sb)
+            })?;
         } else {
             for (k, sb) in subs.iter_mut().enumerate() {
                 let (x, y) = piece(k);
-                deltas(net, p, x, y, sb);
+                deltas(net, p, x, y, sb)?;
             }
         }
         for sb in subs.iter() {
@@ -281,10 +299,10 @@ pub fn gradient_into_with<T: Real + Send + Sync>(
                 loss_sum += l;
             }
         }
-        accumulate(net, grad, xb, subs, parallel);
+        accumulate(net, grad, xb, subs, parallel)?;
     }
-    net.finish(grad, p, m);
-    Some(loss_sum / T::from_usize(m) + net.penalty_cost(p, m))
+    net.finish(grad, p, m)?;
+    Ok(Some(loss_sum / T::from_usize(m) + net.penalty_cost(p, m)))
 }
 
 /// The rows of `buf` held by one sub-block (`x`: the sub-block's raw inputs).
@@ -305,7 +323,7 @@ fn accumulate<T: Real + Send + Sync>(
     xb: &[T],
     subs: &[SubBlock<T>],
     parallel: bool,
-) {
+) -> Result<(), LengthMismatch> {
     let n_in = net.model.input.width;
     for step in net.plan.backprop.iter().filter(|s| s.accumulates()) {
         match *step {
@@ -329,17 +347,18 @@ fn accumulate<T: Real + Send + Sync>(
                 }
                 let rows_of = |first: usize, g_rows: &mut [T]| {
                     for &(a, d) in parts.iter().take(subs.len()) {
-                        rt::outer_acc_batch_rows(g_rows, d, a, n, (first, o));
+                        rt::outer_acc_batch_rows(g_rows, d, a, n, (first, o))?;
                     }
+                    Ok(())
                 };
                 if parallel && o >= 8 {
                     let per_task = o.div_ceil(rayon::current_num_threads() * 2).max(4);
                     g.weights
                         .par_chunks_mut(per_task * n)
                         .enumerate()
-                        .for_each(|(k, rows)| rows_of(k * per_task, rows));
+                        .try_for_each(|(k, rows)| rows_of(k * per_task, rows))?;
                 } else {
-                    rows_of(0, &mut g.weights);
+                    rows_of(0, &mut g.weights)?;
                 }
             }
             Step::AddAcc { layer, err } => {
@@ -347,81 +366,102 @@ fn accumulate<T: Real + Send + Sync>(
                     continue;
                 };
                 for (sb, x) in subs.iter().zip(xb.chunks(SUB_BLOCK * n_in)) {
-                    rt::add_acc_batch(&mut g.bias, used_rows(net, err, sb, x));
+                    rt::add_acc_batch(&mut g.bias, used_rows(net, err, sb, x))?;
                 }
             }
             _ => {}
         }
     }
+    Ok(())
 }
 
 /// The per-sample reference loop (no threads, no blocks): zero, `backprop` each sample in order,
-/// finish. Used by tests to prove [`gradient_into`] equal to it bit for bit.
+/// finish. Used by tests to prove [`gradient_into`] equal to it bit for bit. The same lengths
+/// as [`gradient_into`].
 pub fn gradient_sequential<T: Real>(
     net: &Net<'_, T>,
     p: &Params<T>,
     xs: &[T],
     ys: &[T],
     grad: &mut Params<T>,
-) -> Option<T> {
+) -> Result<Option<T>, LengthMismatch> {
     let model = net.model;
     let (n_in, n_out) = (model.input.width, model.output().width);
     grad.clear();
+    let m = batch_samples(xs, n_in, Some(ys), n_out)?;
+    if n_in == 0 || n_out == 0 || m == 0 {
+        return Ok(None);
+    }
     let mut s = Scratch::new(model);
     let mut sum = T::ZERO;
-    let mut m = 0;
     for (x, y) in xs.chunks_exact(n_in).zip(ys.chunks_exact(n_out)) {
-        sum += net.backprop(p, x, y, grad, &mut s);
-        m += 1;
+        sum += net.backprop(p, x, y, grad, &mut s)?;
     }
-    if m == 0 {
-        return None;
-    }
-    net.finish(grad, p, m);
-    Some(sum / T::from_usize(m) + net.penalty_cost(p, m))
+    net.finish(grad, p, m)?;
+    Ok(Some(sum / T::from_usize(m) + net.penalty_cost(p, m)))
 }
 
 /// J over samples stored row-major (ZERO for an empty batch): per-sample losses computed in
-/// parallel, summed in sample order, so the value equals [`Net::cost`] bit for bit.
-pub fn cost<T: Real + Send + Sync>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T]) -> T {
-    let losses = per_sample(net, p, xs, ys, |net, p, x, y, s| net.loss(p, x, y, s));
+/// parallel, summed in sample order, so the value equals [`Net::cost`] bit for bit. `xs` and
+/// `ys` must hold the same number of whole samples.
+pub fn cost<T: Real + Send + Sync>(
+    net: &Net<'_, T>,
+    p: &Params<T>,
+    xs: &[T],
+    ys: &[T],
+) -> Result<T, LengthMismatch> {
+    let losses = per_sample(net, p, xs, Some(ys), |net, p, x, y, s| net.loss(p, x, y, s))?;
     let m = losses.len();
     if m == 0 {
-        return T::ZERO;
+        return Ok(T::ZERO);
     }
     let mut sum = T::ZERO;
     for l in losses {
         sum += l;
     }
-    sum / T::from_usize(m) + net.penalty_cost(p, m)
+    Ok(sum / T::from_usize(m) + net.penalty_cost(p, m))
 }
 
-/// Network outputs for every sample, row-major.
-pub fn predict_all<T: Real + Send + Sync>(net: &Net<'_, T>, p: &Params<T>, xs: &[T]) -> Vec<T> {
+/// Network outputs for every sample, row-major. `xs` must hold whole samples.
+pub fn predict_all<T: Real + Send + Sync>(
+    net: &Net<'_, T>,
+    p: &Params<T>,
+    xs: &[T],
+) -> Result<Vec<T>, LengthMismatch> {
     let n_out = net.model.output().width;
-    let rows = per_sample(net, p, xs, &[], |net, p, x, _, s| {
+    let rows = per_sample(net, p, xs, None, |net, p, x, _, s| {
         let mut out = vec![T::ZERO; n_out];
-        net.predict(p, x, s, &mut out);
-        out
-    });
-    rows.into_iter().flatten().collect()
+        net.predict(p, x, s, &mut out)?;
+        Ok(out)
+    })?;
+    Ok(rows.into_iter().flatten().collect())
 }
 
-/// Maps `f` over samples (in parallel for large sets), results in sample order. With an empty
-/// `ys` only inputs are passed (and `y` is empty).
-fn per_sample<T, R, F>(net: &Net<'_, T>, p: &Params<T>, xs: &[T], ys: &[T], f: F) -> Vec<R>
+/// Maps `f` over samples (in parallel for large sets), results in sample order; the first error
+/// in sample order is returned. Without `ys` only inputs are passed (and `y` is empty). `xs`
+/// (and `ys`) must hold the same number of whole samples.
+fn per_sample<T, R, F>(
+    net: &Net<'_, T>,
+    p: &Params<T>,
+    xs: &[T],
+    ys: Option<&[T]>,
+    f: F,
+) -> Result<Vec<R>, LengthMismatch>
 where
     T: Real + Send + Sync,
     R: Send,
-    F: Fn(&Net<'_, T>, &Params<T>, &[T], &[T], &mut Scratch<T>) -> R + Sync,
+    F: Fn(&Net<'_, T>, &Params<T>, &[T], &[T], &mut Scratch<T>) -> Result<R, LengthMismatch> + Sync,
 {
     let model = net.model;
     let (n_in, n_out) = (model.input.width, model.output().width);
+    let m = batch_samples(xs, n_in, ys, n_out)?;
+    if n_in == 0 || m == 0 {
+        return Ok(Vec::new());
+    }
     let xs_rows: Vec<&[T]> = xs.chunks_exact(n_in).collect();
-    let ys_rows: Vec<&[T]> = if ys.is_empty() {
-        vec![&[][..]; xs_rows.len()]
-    } else {
-        ys.chunks_exact(n_out).collect()
+    let ys_rows: Vec<&[T]> = match ys {
+        Some(ys) if n_out > 0 => ys.chunks_exact(n_out).collect(),
+        _ => vec![&[][..]; xs_rows.len()],
     };
     let pairs: Vec<(&[T], &[T])> = xs_rows.into_iter().zip(ys_rows).collect();
     let parallel = model.parameters() * pairs.len() >= PARALLEL_MIN_WORK * 4;
@@ -433,8 +473,10 @@ where
                 block
                     .iter()
                     .map(|(x, y)| f(net, p, x, y, &mut s))
-                    .collect::<Vec<R>>()
+                    .collect::<Vec<_>>()
             })
+            .collect::<Vec<_>>()
+            .into_iter()
             .collect()
     } else {
         let mut s = Scratch::new(model);

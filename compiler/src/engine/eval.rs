@@ -1,6 +1,6 @@
 //! Metrics of a trained model on a data set.
 
-use super::{batch, Net, Params};
+use super::{batch, expect_len, LengthMismatch, Net, Params};
 use crate::ir::Activation;
 use serde::Serialize;
 use sinew_runtime::Real;
@@ -20,25 +20,27 @@ pub fn class_of<T: Real>(out: &[T]) -> usize {
     best
 }
 
-/// Fraction of samples whose predicted class equals `labels` (0 for no samples).
+/// Fraction of samples whose predicted class equals `labels` (0 for no samples). `xs` must hold
+/// whole samples, one label each.
 pub fn accuracy<T: Real + Send + Sync>(
     net: &Net<'_, T>,
     p: &Params<T>,
     xs: &[T],
     labels: &[usize],
-) -> f64 {
+) -> Result<f64, LengthMismatch> {
     let n_out = net.model.output().width;
-    let out = batch::predict_all(net, p, xs);
-    let total = labels.len().min(out.len() / n_out.max(1));
+    let out = batch::predict_all(net, p, xs)?;
+    let total = out.len().checked_div(n_out).unwrap_or(0);
+    expect_len("labels", total, labels.len())?;
     if total == 0 {
-        return 0.0;
+        return Ok(0.0);
     }
     let hits = out
         .chunks_exact(n_out)
         .zip(labels)
         .filter(|(o, &l)| class_of(o) == l)
         .count();
-    hits as f64 / total as f64
+    Ok(hits as f64 / total as f64)
 }
 
 /// Evaluation figures.
@@ -60,19 +62,23 @@ pub struct Evaluation {
     pub rmse: Option<Vec<f64>>,
 }
 
-/// Evaluates `p` on samples (row-major); `labels` for classifiers.
+/// Evaluates `p` on samples (row-major); `labels` for classifiers. `xs` and `ys` must hold the
+/// same number of whole samples, and `labels` one per sample.
 pub fn evaluate<T: Real + Send + Sync>(
     net: &Net<'_, T>,
     p: &Params<T>,
     xs: &[T],
     ys: &[T],
     labels: Option<&[usize]>,
-) -> Evaluation {
+) -> Result<Evaluation, LengthMismatch> {
     let model = net.model;
     let n_out = model.output().width;
-    let out = batch::predict_all(net, p, xs);
-    let cost = batch::cost(net, p, xs, ys).to_f64();
-    let samples = out.len() / n_out.max(1);
+    let cost = batch::cost(net, p, xs, ys)?.to_f64();
+    let out = batch::predict_all(net, p, xs)?;
+    let samples = out.len().checked_div(n_out).unwrap_or(0);
+    if let Some(l) = labels {
+        expect_len("labels", samples, l.len())?;
+    }
     if model.is_classifier() {
         let n_classes = if n_out == 1 && model.output().activation == Activation::Sigmoid {
             2
@@ -102,7 +108,7 @@ pub fn evaluate<T: Real + Send + Sync>(
             .classes
             .clone()
             .or_else(|| Some((0..n_classes).map(|i| i.to_string()).collect()));
-        Evaluation {
+        Ok(Evaluation {
             samples,
             cost,
             accuracy: Some(if samples == 0 {
@@ -114,7 +120,7 @@ pub fn evaluate<T: Real + Send + Sync>(
             classes,
             mae: None,
             rmse: None,
-        }
+        })
     } else {
         let mut abs = vec![0.0f64; n_out];
         let mut sq = vec![0.0f64; n_out];
@@ -126,7 +132,7 @@ pub fn evaluate<T: Real + Send + Sync>(
             }
         }
         let n = samples.max(1) as f64;
-        Evaluation {
+        Ok(Evaluation {
             samples,
             cost,
             accuracy: None,
@@ -134,6 +140,6 @@ pub fn evaluate<T: Real + Send + Sync>(
             classes: None,
             mae: Some(abs.iter().map(|a| a / n).collect()),
             rmse: Some(sq.iter().map(|s| (s / n).sqrt()).collect()),
-        }
+        })
     }
 }

@@ -9,7 +9,7 @@
 //! practice) is reported for information; a correct f64 gradient scores about 1e-9 where the
 //! gradient is not tiny.
 
-use super::{batch, Net, Params};
+use super::{batch, LengthMismatch, Net, Params};
 use crate::ir::Model;
 use serde::Serialize;
 use sinew_runtime::rng::SplitMix64;
@@ -107,18 +107,18 @@ pub fn relative_error(a: f64, b: f64) -> f64 {
 
 /// Compares backprop with central differences on `xs`/`ys` (row-major f64) for every parameter,
 /// or for `opts.max_per_layer` parameters drawn at random (seeded) per layer when a layer has
-/// more.
+/// more. `xs` and `ys` must hold the same number of whole samples.
 pub fn check(
     model: &Model,
     params: &Params<f64>,
     xs: &[f64],
     ys: &[f64],
     opts: &CheckOptions,
-) -> Vec<LayerCheck> {
+) -> Result<Vec<LayerCheck>, LengthMismatch> {
     let (h, max_per_layer) = (opts.step, opts.max_per_layer);
     let net = Net::<f64>::new(model);
     let mut grad = Params::zero_gradient(model);
-    let _ = batch::gradient_into(&net, params, xs, ys, &mut grad);
+    batch::gradient_into(&net, params, xs, ys, &mut grad)?;
     let mut rng = SplitMix64::new(opts.seed);
     let mut p = params.clone();
     let mut out = Vec::new();
@@ -145,9 +145,9 @@ pub fn check(
             };
             let orig = value(&p, l, k, n_w);
             set(&mut p, l, k, n_w, orig + h);
-            let plus = batch::cost(&net, &p, xs, ys);
+            let plus = batch::cost(&net, &p, xs, ys)?;
             set(&mut p, l, k, n_w, orig - h);
-            let minus = batch::cost(&net, &p, xs, ys);
+            let minus = batch::cost(&net, &p, xs, ys)?;
             set(&mut p, l, k, n_w, orig);
             let numeric = (plus - minus) / (2.0 * h);
             let e = relative_error(analytic, numeric);
@@ -170,7 +170,7 @@ pub fn check(
             failures,
         });
     }
-    out
+    Ok(out)
 }
 
 fn value(p: &Params<f64>, l: usize, k: usize, n_w: usize) -> f64 {

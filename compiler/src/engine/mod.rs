@@ -21,6 +21,12 @@ use crate::plan::{Buf, Head, Plan, Step, Update};
 use crate::weights::{FlatLayer, Standardization};
 use sinew_runtime::{self as rt, act::Activation, penalty::Penalty, rng::SplitMix64, Real};
 
+/// The error of every engine entry point that takes caller slices: an operand whose length
+/// disagrees with the model (a sample `x` or target `y` of the wrong width, a batch that is not
+/// a whole number of samples, an `out` of the wrong width). Checked before any output is
+/// written; the engine never truncates.
+pub use sinew_runtime::LengthMismatch;
+
 pub mod aligned;
 pub mod batch;
 pub mod eval;
@@ -301,13 +307,48 @@ pub fn penalty<T: Real>(p: ir::Penalty) -> Penalty<T> {
     }
 }
 
-/// One sample's loss under `head` from its operand (logits or outputs) and target.
-pub fn sample_loss<T: Real>(head: Head, v: &[T], y: &[T]) -> T {
+/// One sample's loss under `head` from its operand (logits or outputs) and target, which must
+/// have one length.
+pub fn sample_loss<T: Real>(head: Head, v: &[T], y: &[T]) -> Result<T, LengthMismatch> {
     match head {
         Head::SoftmaxCrossEntropy => rt::loss::softmax_cross_entropy(v, y),
         Head::Logistic => rt::loss::logistic_cross_entropy(v, y),
         Head::SquaredError(_) => rt::loss::squared_error(v, y),
     }
+}
+
+/// `Ok` when `found == expected`, else the mismatch of `operand`.
+pub(crate) fn expect_len(
+    operand: &'static str,
+    expected: usize,
+    found: usize,
+) -> Result<(), LengthMismatch> {
+    if found == expected {
+        Ok(())
+    } else {
+        Err(LengthMismatch {
+            operand,
+            expected,
+            found,
+        })
+    }
+}
+
+/// The number of samples `m` of a batch stored row-major: `xs` must hold `m` rows of `n_in`
+/// values and `ys` (when given) `m` rows of `n_out`. A partial row or a count that disagrees is
+/// an error, never a truncation.
+pub(crate) fn batch_samples<T>(
+    xs: &[T],
+    n_in: usize,
+    ys: Option<&[T]>,
+    n_out: usize,
+) -> Result<usize, LengthMismatch> {
+    let m = xs.len().checked_div(n_in).unwrap_or(0);
+    expect_len("xs", m * n_in, xs.len())?;
+    if let Some(ys) = ys {
+        expect_len("ys", m.saturating_mul(n_out), ys.len())?;
+    }
+    Ok(m)
 }
 
 impl<'m, T: Real> Net<'m, T> {
@@ -322,7 +363,8 @@ impl<'m, T: Real> Net<'m, T> {
 
     /// Runs `steps` on one sample: the kernel of each step, in order. Accumulation steps add to
     /// `grad` when one is given and are skipped otherwise. Returns the sample's loss (ZERO for a
-    /// pass without one).
+    /// pass without one), or the first kernel's [`LengthMismatch`] (the plan's widths and the
+    /// buffers agree, so only a caller's operand of the wrong width can cause one).
     fn run(
         &self,
         steps: &[Step],
@@ -330,18 +372,18 @@ impl<'m, T: Real> Net<'m, T> {
         ops: Operands<'_, T>,
         s: &mut Scratch<T>,
         mut grad: Option<&mut Params<T>>,
-    ) -> T {
+    ) -> Result<T, LengthMismatch> {
         let mut loss = T::ZERO;
         for step in steps {
             match *step {
                 Step::Standardize { from, to } => {
                     if let Some((x, out)) = s.io(ops, from, to) {
-                        rt::standardize(x, &p.mean, &p.std, out);
+                        rt::standardize(x, &p.mean, &p.std, out)?;
                     }
                 }
                 Step::Affine { layer, input, out } => {
                     if let (Some(lp), Some((x, z))) = (p.layers.get(layer), s.io(ops, input, out)) {
-                        rt::affine(&lp.weights, &lp.bias, x, z);
+                        rt::affine(&lp.weights, &lp.bias, x, z)?;
                     }
                 }
                 Step::Copy { from, to } => {
@@ -356,69 +398,111 @@ impl<'m, T: Real> Net<'m, T> {
                 }
                 Step::SoftmaxWithLoss { logits, out } => {
                     if let Some((z, a)) = s.io(ops, logits, out) {
-                        loss = rt::loss::softmax_with_cross_entropy(z, ops.y, a);
+                        loss = rt::loss::softmax_with_cross_entropy(z, ops.y, a)?;
                     }
                 }
                 Step::Loss { head, operand } => {
                     let (v, y) = s.read2(ops, operand, Buf::Target);
-                    loss = sample_loss(head, v, y);
+                    loss = sample_loss(head, v, y)?;
                 }
                 Step::OutputError { out, err } => {
                     if let Some((a, d)) = s.io(ops, out, err) {
-                        rt::loss::output_error(a, ops.y, d);
+                        rt::loss::output_error(a, ops.y, d)?;
                     }
                 }
                 Step::ActivationGrad { act, act_of, err } => {
                     if let Some((a, d)) = s.io(ops, act_of, err) {
-                        activation::<T>(act).backward(a, d);
+                        activation::<T>(act).backward(a, d)?;
                     }
                 }
                 Step::OuterAcc { layer, err, input } => {
                     if let Some(g) = grad.as_deref_mut().and_then(|g| g.layers.get_mut(layer)) {
                         let (d, a) = s.read2(ops, err, input);
-                        rt::outer_acc(&mut g.weights, d, a);
+                        rt::outer_acc(&mut g.weights, d, a)?;
                     }
                 }
                 Step::AddAcc { layer, err } => {
                     if let Some(g) = grad.as_deref_mut().and_then(|g| g.layers.get_mut(layer)) {
-                        rt::add_acc(&mut g.bias, s.get(err));
+                        rt::add_acc(&mut g.bias, s.get(err))?;
                     }
                 }
                 Step::Back { layer, err, out } => {
                     if let (Some(lp), Some((d, o))) = (p.layers.get(layer), s.io(ops, err, out)) {
-                        rt::back(&lp.weights, d, o);
+                        rt::back(&lp.weights, d, o)?;
                     }
                 }
             }
         }
-        loss
+        Ok(loss)
+    }
+
+    /// `x` (and `y`, when given) against the model's input (output) width.
+    fn check_sample(&self, x: &[T], y: Option<&[T]>) -> Result<(), LengthMismatch> {
+        expect_len("x", self.model.input.width, x.len())?;
+        match y {
+            Some(y) => expect_len("y", self.model.output().width, y.len()),
+            None => Ok(()),
+        }
     }
 
     /// The inference pass: the activations of every layer into `s` (see
-    /// [`Scratch::activations`]).
-    pub fn forward(&self, p: &Params<T>, x: &[T], s: &mut Scratch<T>) {
-        self.run(&self.plan.inference, p, Operands { x, y: &[] }, s, None);
+    /// [`Scratch::activations`]). `x` must hold the model's inputs.
+    pub fn forward(
+        &self,
+        p: &Params<T>,
+        x: &[T],
+        s: &mut Scratch<T>,
+    ) -> Result<(), LengthMismatch> {
+        self.check_sample(x, None)?;
+        self.run(&self.plan.inference, p, Operands { x, y: &[] }, s, None)
+            .map(|_| ())
     }
 
-    /// Network output for one sample, written to `out` (the generated `predict_into`).
-    pub fn predict(&self, p: &Params<T>, x: &[T], s: &mut Scratch<T>, out: &mut [T]) {
-        self.forward(p, x, s);
+    /// Network output for one sample, written to `out` (the generated `predict_into`). `x` must
+    /// hold the model's inputs and `out` its outputs; on a mismatch nothing is written to `out`.
+    pub fn predict(
+        &self,
+        p: &Params<T>,
+        x: &[T],
+        s: &mut Scratch<T>,
+        out: &mut [T],
+    ) -> Result<(), LengthMismatch> {
+        expect_len("out", self.model.output().width, out.len())?;
+        self.forward(p, x, s)?;
         let a = s.activations(self.plan.output);
+        expect_len("out", a.len(), out.len())?;
         out.iter_mut().zip(a).for_each(|(o, &v)| *o = v);
+        Ok(())
     }
 
-    /// The loss of one sample (no penalty).
-    pub fn loss(&self, p: &Params<T>, x: &[T], y: &[T], s: &mut Scratch<T>) -> T {
+    /// The loss of one sample (no penalty). `x` and `y` must hold the model's inputs and
+    /// outputs.
+    pub fn loss(
+        &self,
+        p: &Params<T>,
+        x: &[T],
+        y: &[T],
+        s: &mut Scratch<T>,
+    ) -> Result<T, LengthMismatch> {
+        self.check_sample(x, Some(y))?;
         self.run(&self.plan.loss, p, Operands { x, y }, s, None)
     }
 
     /// Forward pass and error terms of one sample (the backprop pass without its
     /// accumulation), leaving activations and errors in `s`; returns the sample's loss.
-    pub fn deltas(&self, p: &Params<T>, x: &[T], y: &[T], s: &mut Scratch<T>) -> T {
+    pub fn deltas(
+        &self,
+        p: &Params<T>,
+        x: &[T],
+        y: &[T],
+        s: &mut Scratch<T>,
+    ) -> Result<T, LengthMismatch> {
+        self.check_sample(x, Some(y))?;
         self.run(&self.plan.backprop, p, Operands { x, y }, s, None)
     }
 
     /// Per-sample backprop: accumulates this sample's gradient into `grad` and returns its loss.
+    /// On a mismatch of `x` or `y` nothing is added to `grad`.
     pub fn backprop(
         &self,
         p: &Params<T>,
@@ -426,17 +510,26 @@ impl<'m, T: Real> Net<'m, T> {
         y: &[T],
         grad: &mut Params<T>,
         s: &mut Scratch<T>,
-    ) -> T {
+    ) -> Result<T, LengthMismatch> {
+        self.check_sample(x, Some(y))?;
         self.run(&self.plan.backprop, p, Operands { x, y }, s, Some(grad))
     }
 
     /// Batch finish: divides by `m` and adds the penalty gradient to the weights (never biases).
-    pub fn finish(&self, grad: &mut Params<T>, p: &Params<T>, m: usize) {
+    /// `grad` must have the shape of `p`.
+    pub fn finish(
+        &self,
+        grad: &mut Params<T>,
+        p: &Params<T>,
+        m: usize,
+    ) -> Result<(), LengthMismatch> {
         let m = T::from_usize(m);
+        expect_len("grad", p.layers.len(), grad.layers.len())?;
         for (g, w) in grad.layers.iter_mut().zip(&p.layers) {
-            self.penalty.finish_weights(&mut g.weights, &w.weights, m);
+            self.penalty.finish_weights(&mut g.weights, &w.weights, m)?;
             rt::penalty::finish_bias(&mut g.bias, m);
         }
+        Ok(())
     }
 
     /// The penalty term of J for a batch of `m` samples.
@@ -449,37 +542,38 @@ impl<'m, T: Real> Net<'m, T> {
     }
 
     /// J = (1/m) sum loss + penalty over samples stored row-major in `xs` / `ys`
-    /// (ZERO for an empty batch).
-    pub fn cost(&self, p: &Params<T>, xs: &[T], ys: &[T]) -> T {
+    /// (ZERO for an empty batch). `xs` and `ys` must hold the same number of whole samples.
+    pub fn cost(&self, p: &Params<T>, xs: &[T], ys: &[T]) -> Result<T, LengthMismatch> {
         let (n_in, n_out) = (self.model.input.width, self.model.output().width);
+        let m = batch_samples(xs, n_in, Some(ys), n_out)?;
+        if m == 0 {
+            return Ok(T::ZERO);
+        }
         let mut s = Scratch::new(self.model);
         let mut sum = T::ZERO;
-        let mut m = 0;
         for (x, y) in xs.chunks_exact(n_in).zip(ys.chunks_exact(n_out)) {
-            sum += self.loss(p, x, y, &mut s);
-            m += 1;
+            sum += self.loss(p, x, y, &mut s)?;
         }
-        if m == 0 {
-            return T::ZERO;
-        }
-        sum / T::from_usize(m) + self.penalty_cost(p, m)
+        Ok(sum / T::from_usize(m) + self.penalty_cost(p, m))
     }
 
     /// The optimizer update of the spec's `train` line (or `optimizer`), over every weight and
-    /// bias array in layer order (weights, then bias), as the generated trainer does.
+    /// bias array in layer order (weights, then bias), as the generated trainer does. `g` (and
+    /// the optimizer state) must have the shape of `p`.
     pub fn update(
         &self,
         optimizer: Optimizer,
         p: &mut Params<T>,
         g: &Params<T>,
         state: &mut OptState<T>,
-    ) {
+    ) -> Result<(), LengthMismatch> {
+        expect_len("g", p.layers.len(), g.layers.len())?;
         match Update::of(optimizer) {
             Update::Sgd { rate } => {
                 let rate = T::from_f64(rate);
                 for (pl, gl) in p.layers.iter_mut().zip(&g.layers) {
-                    rt::optim::sgd(&mut pl.weights, &gl.weights, rate);
-                    rt::optim::sgd(&mut pl.bias, &gl.bias, rate);
+                    rt::optim::sgd(&mut pl.weights, &gl.weights, rate)?;
+                    rt::optim::sgd(&mut pl.bias, &gl.bias, rate)?;
                 }
             }
             Update::Momentum { rate, mu } => {
@@ -488,8 +582,8 @@ impl<'m, T: Real> Net<'m, T> {
                     .first
                     .get_or_insert_with(|| Params::zero_gradient(self.model));
                 for ((pl, gl), vl) in p.layers.iter_mut().zip(&g.layers).zip(&mut v.layers) {
-                    rt::optim::momentum(&mut pl.weights, &gl.weights, &mut vl.weights, rate, mu);
-                    rt::optim::momentum(&mut pl.bias, &gl.bias, &mut vl.bias, rate, mu);
+                    rt::optim::momentum(&mut pl.weights, &gl.weights, &mut vl.weights, rate, mu)?;
+                    rt::optim::momentum(&mut pl.bias, &gl.bias, &mut vl.bias, rate, mu)?;
                 }
             }
             Update::Adam {
@@ -530,7 +624,7 @@ impl<'m, T: Real> Net<'m, T> {
                         b1,
                         b2,
                         eps,
-                    );
+                    )?;
                     rt::optim::adam(
                         &mut pl.bias,
                         &gl.bias,
@@ -541,10 +635,11 @@ impl<'m, T: Real> Net<'m, T> {
                         b1,
                         b2,
                         eps,
-                    );
+                    )?;
                 }
             }
         }
+        Ok(())
     }
 }
 
@@ -594,8 +689,9 @@ impl<'m, T: Real + Send + Sync> Trainer<'m, T> {
     }
 
     /// One step over the samples in `xs` / `ys` (row-major): returns J before the update. An
-    /// empty batch returns ZERO and changes nothing.
-    pub fn step(&mut self, xs: &[T], ys: &[T]) -> T {
+    /// empty batch returns ZERO and changes nothing; so does a batch whose `xs` and `ys` do not
+    /// hold the same number of whole samples, which is an error.
+    pub fn step(&mut self, xs: &[T], ys: &[T]) -> Result<T, LengthMismatch> {
         let Some(cost) = batch::gradient_into_with(
             &self.net,
             &self.params,
@@ -603,15 +699,16 @@ impl<'m, T: Real + Send + Sync> Trainer<'m, T> {
             ys,
             &mut self.grad,
             &mut self.scratch,
-        ) else {
-            return T::ZERO;
+        )?
+        else {
+            return Ok(T::ZERO);
         };
         self.net.update(
             self.optimizer,
             &mut self.params,
             &self.grad,
             &mut self.state,
-        );
-        cost
+        )?;
+        Ok(cost)
     }
 }

@@ -7,7 +7,7 @@
 //! a lower validation cost and keeps the best parameters. A non-finite cost stops training with
 //! [`TrainError::Diverged`].
 
-use super::{batch, eval, Net, OptState, Params};
+use super::{batch, eval, LengthMismatch, Net, OptState, Params};
 use crate::data::shuffle;
 use crate::ir::{defaults, Model, Optimizer};
 use sinew_runtime::{rng::SplitMix64, Real};
@@ -176,6 +176,15 @@ pub enum TrainError {
     },
     /// There are no training samples.
     NoData,
+    /// An internal invariant broken: an engine operand whose length disagrees with the model
+    /// (the samples are checked against the spec before training, so this is a bug).
+    Internal(LengthMismatch),
+}
+
+impl From<LengthMismatch> for TrainError {
+    fn from(e: LengthMismatch) -> Self {
+        TrainError::Internal(e)
+    }
 }
 
 impl std::fmt::Display for TrainError {
@@ -190,6 +199,7 @@ impl std::fmt::Display for TrainError {
                 write!(f, "training diverged in epoch {epoch}: the cost is not finite")
             }
             TrainError::NoData => write!(f, "there are no training samples"),
+            TrainError::Internal(e) => write!(f, "internal: {e} (this is a bug in sinew)"),
         }
     }
 }
@@ -292,22 +302,25 @@ pub fn train<T: Real + Send + Sync>(
     };
     let mut history = Vec::new();
     let mut stopped_early = false;
-    let report = |epoch: u32, p: &Params<T>| -> EpochReport {
-        let train_cost = batch::cost(&net, p, &train.xs, &train.ys).to_f64();
+    let report = |epoch: u32, p: &Params<T>| -> Result<EpochReport, LengthMismatch> {
+        let train_cost = batch::cost(&net, p, &train.xs, &train.ys)?.to_f64();
         let (validation_cost, validation_accuracy) = match valid {
             Some(v) if v.m > 0 => (
-                Some(batch::cost(&net, p, &v.xs, &v.ys).to_f64()),
-                v.labels.as_ref().map(|l| eval::accuracy(&net, p, &v.xs, l)),
+                Some(batch::cost(&net, p, &v.xs, &v.ys)?.to_f64()),
+                match v.labels.as_ref() {
+                    Some(l) => Some(eval::accuracy(&net, p, &v.xs, l)?),
+                    None => None,
+                },
             ),
             _ => (None, None),
         };
-        EpochReport {
+        Ok(EpochReport {
             epoch,
             epochs,
             train_cost,
             validation_cost,
             validation_accuracy,
-        }
+        })
     };
     let mut last: Option<(u32, Params<T>)> = None;
     match method {
@@ -329,7 +342,14 @@ pub fn train<T: Real + Send + Sync>(
                         continue;
                     }
                     p.set_flat_f64(&flat);
-                    let r = report(epoch, &p);
+                    let r = match report(epoch, &p) {
+                        Ok(r) => r,
+                        Err(e) => {
+                            stop.store(true, Ordering::Relaxed);
+                            result = Err(TrainError::Internal(e));
+                            continue;
+                        }
+                    };
                     on_epoch(&r);
                     history.push(r);
                     if !r.train_cost.is_finite() {
@@ -389,13 +409,13 @@ pub fn train<T: Real + Send + Sync>(
                         by.extend(train.ys.iter().skip(i * n_out).take(n_out));
                     }
                     let cost =
-                        batch::gradient_into_with(&net, &p, &bx, &by, &mut grad, &mut scratch);
+                        batch::gradient_into_with(&net, &p, &bx, &by, &mut grad, &mut scratch)?;
                     if cost.is_some_and(|c| !c.to_f64().is_finite()) {
                         return Err(diverged(epoch));
                     }
-                    net.update(optimizer, &mut p, &grad, &mut state);
+                    net.update(optimizer, &mut p, &grad, &mut state)?;
                 }
-                let r = report(epoch, &p);
+                let r = report(epoch, &p)?;
                 on_epoch(&r);
                 history.push(r);
                 if !r.train_cost.is_finite() {
@@ -453,6 +473,7 @@ mod lbfgs {
             let (p, g, s) = &mut *guard;
             p.set_flat_f64(flat);
             let cost = batch::gradient_into_with(self.net, p, &self.data.xs, &self.data.ys, g, s)
+                .map_err(|e| Error::msg(format!("internal: {e}")))?
                 .map(|c| c.to_f64())
                 .unwrap_or(0.0);
             Ok((cost, g.flat_f64()))

@@ -3,7 +3,7 @@
 use super::convert::{params_of, samples};
 use super::WorkflowError;
 use crate::data::{self, Dataset};
-use crate::engine::{batch, eval, Net, Params};
+use crate::engine::{batch, eval, LengthMismatch, Net, Params};
 use crate::ir::{Model, Scalar};
 use crate::weights::FlatLayer;
 use crate::weights::Weights;
@@ -18,8 +18,8 @@ pub fn evaluate(
 ) -> Result<eval::Evaluation, WorkflowError> {
     let ds = data::read_csv(data, model)?;
     Ok(match model.scalar {
-        Scalar::F32 => eval_t::<f32>(model, weights, &ds),
-        Scalar::F64 => eval_t::<f64>(model, weights, &ds),
+        Scalar::F32 => eval_t::<f32>(model, weights, &ds)?,
+        Scalar::F64 => eval_t::<f64>(model, weights, &ds)?,
     })
 }
 
@@ -27,7 +27,7 @@ fn eval_t<T: Real + Send + Sync>(
     model: &Model,
     weights: &Weights,
     ds: &Dataset,
-) -> eval::Evaluation {
+) -> Result<eval::Evaluation, LengthMismatch> {
     let p = params_of::<T>(model, weights);
     let s = samples::<T>(ds);
     eval::evaluate(&Net::new(model), &p, &s.xs, &s.ys, s.labels.as_deref())
@@ -75,8 +75,8 @@ impl Gradient {
 pub fn gradient(model: &Model, weights: &Weights, data: &Path) -> Result<Gradient, WorkflowError> {
     let ds = data::read_csv(data, model)?;
     let (cost, grad) = match model.scalar {
-        Scalar::F32 => grad_t::<f32>(model, weights, &ds),
-        Scalar::F64 => grad_t::<f64>(model, weights, &ds),
+        Scalar::F32 => grad_t::<f32>(model, weights, &ds)?,
+        Scalar::F64 => grad_t::<f64>(model, weights, &ds)?,
     };
     let layers = model
         .layers
@@ -103,11 +103,11 @@ fn grad_t<T: Real + Send + Sync>(
     model: &Model,
     weights: &Weights,
     ds: &Dataset,
-) -> (f64, Vec<FlatLayer>) {
+) -> Result<(f64, Vec<FlatLayer>), LengthMismatch> {
     let p = params_of::<T>(model, weights);
     let s = samples::<T>(ds);
     let net = Net::new(model);
     let mut g = Params::zero_gradient(model);
-    let cost = batch::gradient_into(&net, &p, &s.xs, &s.ys, &mut g).map_or(0.0, |c| c.to_f64());
-    (cost, g.layers_f64())
+    let cost = batch::gradient_into(&net, &p, &s.xs, &s.ys, &mut g)?.map_or(0.0, |c| c.to_f64());
+    Ok((cost, g.layers_f64()))
 }

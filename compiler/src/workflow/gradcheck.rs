@@ -77,7 +77,7 @@ pub fn gradcheck(
         max_per_layer: opts.max_per_layer,
         seed: opts.seed,
     };
-    let layers = gradcheck::check(model, &p, &xs, &ys, &check);
+    let layers = gradcheck::check(model, &p, &xs, &ys, &check)?;
     let verdict = Verdict::of(&layers);
     Ok(GradcheckOutcome { layers, verdict })
 }

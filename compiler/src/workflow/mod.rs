@@ -25,6 +25,7 @@ pub use train::{train, TrainOutcome, TrainRequest};
 use crate::code::{Code, ExitStatus};
 use crate::data::DataError;
 use crate::engine::train::TrainError;
+use crate::engine::LengthMismatch;
 use crate::weights::WeightsError;
 use std::fmt;
 
@@ -39,6 +40,9 @@ pub enum WorkflowError {
     Train(TrainError),
     /// Another I/O problem.
     Io(String),
+    /// An internal invariant broken: the data and weights were checked against the spec, so
+    /// every engine operand has the width the plan gives it; a kernel found one that does not.
+    Internal(LengthMismatch),
 }
 
 impl WorkflowError {
@@ -47,13 +51,13 @@ impl WorkflowError {
         match self {
             WorkflowError::Data(e) => Some(e.code),
             WorkflowError::Weights(e) => Some(e.code),
-            WorkflowError::Train(_) | WorkflowError::Io(_) => None,
+            WorkflowError::Train(_) | WorkflowError::Io(_) | WorkflowError::Internal(_) => None,
         }
     }
 
     /// The exit status of the command that failed: by the code ([`Code::exit_status`]) for data
     /// and weights errors, [`ExitStatus::Usage`] for other I/O, [`ExitStatus::Spec`] for training
-    /// that diverged or had no samples.
+    /// that diverged or had no samples (and for an internal error).
     pub fn exit_status(&self) -> ExitStatus {
         match (self, self.code()) {
             (_, Some(code)) => code.exit_status(),
@@ -70,6 +74,10 @@ impl fmt::Display for WorkflowError {
             WorkflowError::Weights(e) => write!(f, "{e}"),
             WorkflowError::Train(e) => write!(f, "error: {e}"),
             WorkflowError::Io(e) => write!(f, "error: {e}"),
+            WorkflowError::Internal(e) => write!(
+                f,
+                "error: internal: {e} (the engine's operands disagree with the checked spec; this is a bug in sinew)"
+            ),
         }
     }
 }
@@ -90,6 +98,15 @@ impl From<WeightsError> for WorkflowError {
 
 impl From<TrainError> for WorkflowError {
     fn from(e: TrainError) -> Self {
-        WorkflowError::Train(e)
+        match e {
+            TrainError::Internal(e) => WorkflowError::Internal(e),
+            e => WorkflowError::Train(e),
+        }
+    }
+}
+
+impl From<LengthMismatch> for WorkflowError {
+    fn from(e: LengthMismatch) -> Self {
+        WorkflowError::Internal(e)
     }
 }

@@ -98,10 +98,11 @@ fn train_t<T: Real + Send + Sync>(
     let summary = train::train(model, &mut p, &ts, vs.as_ref(), &req.options, on_epoch)?;
     let elapsed = start.elapsed();
     let net = Net::<T>::new(model);
-    let train_eval = eval::evaluate(&net, &p, &ts.xs, &ts.ys, ts.labels.as_deref());
+    let train_eval = eval::evaluate(&net, &p, &ts.xs, &ts.ys, ts.labels.as_deref())?;
     let validation = vs
         .as_ref()
-        .map(|v| eval::evaluate(&net, &p, &v.xs, &v.ys, v.labels.as_deref()));
+        .map(|v| eval::evaluate(&net, &p, &v.xs, &v.ys, v.labels.as_deref()))
+        .transpose()?;
     let provenance = Provenance {
         optimizer: summary.method.clone(),
         epochs: summary.history.len() as u64,

@@ -86,24 +86,24 @@ fn per_sample_sweep<T: Real>() {
             let at = |k: &str| std::format!("{k} {n}x{o} special {special}");
 
             let (mut z, mut want) = (vec![T::ONE; o], vec![T::ONE; o]);
-            affine(&w, &b, &x, &mut z);
-            naive::affine(&w, &b, &x, &mut want);
+            affine(&w, &b, &x, &mut z).unwrap();
+            naive::affine(&w, &b, &x, &mut want).unwrap();
             assert_eq!(same_bits(&z), same_bits(&want), "{}", at("affine"));
 
             let (mut out, mut want) = (vec![T::ONE; n], vec![T::ONE; n]);
-            back(&w, &d, &mut out);
-            naive::back(&w, &d, &mut want);
+            back(&w, &d, &mut out).unwrap();
+            naive::back(&w, &d, &mut want).unwrap();
             assert_eq!(same_bits(&out), same_bits(&want), "{}", at("back"));
 
             let (mut g, mut want) = (g0.clone(), g0.clone());
-            outer_acc(&mut g, &d, &x);
-            naive::outer_acc(&mut want, &d, &x);
+            outer_acc(&mut g, &d, &x).unwrap();
+            naive::outer_acc(&mut want, &d, &x).unwrap();
             assert_eq!(same_bits(&g), same_bits(&want), "{}", at("outer_acc"));
 
             // The reference written out once more, from the formula: one addition per element.
             let (mut gb, want): (Vec<T>, Vec<T>) =
                 (b.clone(), (0..o).map(|j| b[j] + d[j]).collect());
-            add_acc(&mut gb, &d);
+            add_acc(&mut gb, &d).unwrap();
             assert_eq!(same_bits(&gb), same_bits(&want), "{}", at("add_acc"));
 
             let mean = values::<T>(n, &mut rng, special);
@@ -112,7 +112,7 @@ fn per_sample_sweep<T: Real>() {
                 .map(|s| s.abs() + T::HALF)
                 .collect();
             let mut xs = vec![T::ZERO; n];
-            standardize(&x, &mean, &std, &mut xs);
+            standardize(&x, &mean, &std, &mut xs).unwrap();
             let want: Vec<T> = (0..n).map(|i| (x[i] - mean[i]) / std[i]).collect();
             assert_eq!(same_bits(&xs), same_bits(&want), "{}", at("standardize"));
         }
@@ -152,9 +152,9 @@ fn batch_sweep<T: Real>() {
             let at = |k: &str| std::format!("{k} {n}x{o} m={m}");
 
             let mut want = vec![T::ONE; m * o];
-            naive::affine_batch(&w, &b, &xs, &mut want, n);
+            naive::affine_batch(&w, &b, &xs, &mut want, n).unwrap();
             let mut zs = vec![T::ONE; m * o];
-            affine_batch(&w, &b, &xs, &mut zs, n);
+            affine_batch(&w, &b, &xs, &mut zs, n).unwrap();
             assert_eq!(same_bits(&zs), same_bits(&want), "{}", at("affine_batch"));
             // Both sample groupings, whichever the target picks, and both lane-sum forms.
             let mut paired = vec![T::ONE; m * o];
@@ -165,21 +165,21 @@ fn batch_sweep<T: Real>() {
             assert_eq!(same_bits(&single), same_bits(&want), "{}", at("one by one"));
 
             let mut want = vec![T::ONE; m * n];
-            naive::back_batch(&w, &ds, &mut want, n);
+            naive::back_batch(&w, &ds, &mut want, n).unwrap();
             let mut outs = vec![T::ONE; m * n];
-            back_batch(&w, &ds, &mut outs, n);
+            back_batch(&w, &ds, &mut outs, n).unwrap();
             assert_eq!(same_bits(&outs), same_bits(&want), "{}", at("back_batch"));
 
             let mut want = g0.clone();
-            naive::outer_acc_batch(&mut want, &ds, &xs, n);
+            naive::outer_acc_batch(&mut want, &ds, &xs, n).unwrap();
             let mut g = g0.clone();
-            outer_acc_batch(&mut g, &ds, &xs, n);
+            outer_acc_batch(&mut g, &ds, &xs, n).unwrap();
             assert_eq!(same_bits(&g), same_bits(&want), "{}", at("outer_acc_batch"));
 
             let mut want = b.clone();
-            naive::add_acc_batch(&mut want, &ds);
+            naive::add_acc_batch(&mut want, &ds).unwrap();
             let mut gb = b.clone();
-            add_acc_batch(&mut gb, &ds);
+            add_acc_batch(&mut gb, &ds).unwrap();
             assert_eq!(same_bits(&gb), same_bits(&want), "{}", at("add_acc_batch"));
         }
     }
@@ -204,19 +204,20 @@ fn the_batch_references_are_the_per_sample_references_in_order() {
         let xs = data::<f64>(m * n, &mut rng);
         let ds = data::<f64>(m * o, &mut rng);
         let mut zs = vec![0.0; m * o];
-        naive::affine_batch(&w, &b, &xs, &mut zs, n);
+        naive::affine_batch(&w, &b, &xs, &mut zs, n).unwrap();
         let mut g = vec![0.5; n * o];
-        naive::outer_acc_batch(&mut g, &ds, &xs, n);
+        naive::outer_acc_batch(&mut g, &ds, &xs, n).unwrap();
         let mut g_each = vec![0.5; n * o];
         for s in 0..m {
             let mut z = vec![0.0; o];
-            naive::affine(&w, &b, &xs[s * n..(s + 1) * n], &mut z);
+            naive::affine(&w, &b, &xs[s * n..(s + 1) * n], &mut z).unwrap();
             assert_eq!(same_bits(&z), same_bits(&zs[s * o..(s + 1) * o]));
             naive::outer_acc(
                 &mut g_each,
                 &ds[s * o..(s + 1) * o],
                 &xs[s * n..(s + 1) * n],
-            );
+            )
+            .unwrap();
         }
         assert_eq!(same_bits(&g), same_bits(&g_each));
     }
@@ -231,15 +232,15 @@ fn row_parts_of_the_batch_outer_product_equal_the_whole() {
         let xs = data::<f32>(m * n, &mut rng);
         let g0 = data::<f32>(n * o, &mut rng);
         let mut whole = g0.clone();
-        outer_acc_batch(&mut whole, &ds, &xs, n);
+        outer_acc_batch(&mut whole, &ds, &xs, n).unwrap();
         for split in [1, 3, 4, 5] {
             let mut parts = g0.clone();
             let mut naive_parts = g0.clone();
             for (k, part) in parts.chunks_mut(split * n).enumerate() {
-                outer_acc_batch_rows(part, &ds, &xs, n, (k * split, o));
+                outer_acc_batch_rows(part, &ds, &xs, n, (k * split, o)).unwrap();
             }
             for (k, part) in naive_parts.chunks_mut(split * n).enumerate() {
-                naive::outer_acc_batch_rows(part, &ds, &xs, n, (k * split, o));
+                naive::outer_acc_batch_rows(part, &ds, &xs, n, (k * split, o)).unwrap();
             }
             assert_eq!(
                 same_bits(&parts),
@@ -271,16 +272,16 @@ fn array_forms<T: Real, const I: usize, const O: usize>(seed: u64) {
 
     let (mut za, mut want) = ([T::ONE; O], [T::ONE; O]);
     affine_n(&w, &b, &x, &mut za);
-    naive::affine(wf, &b, &x, &mut want);
+    naive::affine(wf, &b, &x, &mut want).unwrap();
     assert_eq!(same_bits(&za), same_bits(&want), "affine_n {I}x{O}");
     let (mut oa, mut want) = ([T::ONE; I], [T::ONE; I]);
     back_n(&w, &d, &mut oa);
-    naive::back(wf, &d, &mut want);
+    naive::back(wf, &d, &mut want).unwrap();
     assert_eq!(same_bits(&oa), same_bits(&want), "back_n {I}x{O}");
     let mut ga = w.clone();
     let mut want = wf.to_vec();
     outer_acc_n(&mut ga, &d, &x);
-    naive::outer_acc(&mut want, &d, &x);
+    naive::outer_acc(&mut want, &d, &x).unwrap();
     assert_eq!(
         same_bits(ga.as_flattened()),
         same_bits(&want),
@@ -288,7 +289,7 @@ fn array_forms<T: Real, const I: usize, const O: usize>(seed: u64) {
     );
     let (mut xa, mut want) = ([T::ZERO; I], [T::ZERO; I]);
     standardize_n(&x, &s, &s, &mut xa);
-    naive::standardize(&x, &s, &s, &mut want);
+    naive::standardize(&x, &s, &s, &mut want).unwrap();
     assert_eq!(same_bits(&xa), same_bits(&want), "standardize_n {I}");
 
     for m in BATCHES {
@@ -301,7 +302,7 @@ fn array_forms<T: Real, const I: usize, const O: usize>(seed: u64) {
         let at = |k: &str| std::format!("{k} {I}x{O}, {m} samples");
 
         let mut want = vec![T::ONE; m * O];
-        naive::affine_batch(wf, &b, xs.as_flattened(), &mut want, I);
+        naive::affine_batch(wf, &b, xs.as_flattened(), &mut want, I).unwrap();
         let mut zs = vec![[T::ONE; O]; m];
         affine_batch_n(&w, &b, &xs, &mut zs);
         assert_eq!(
@@ -322,7 +323,7 @@ fn array_forms<T: Real, const I: usize, const O: usize>(seed: u64) {
         );
 
         let mut want = vec![T::ONE; m * I];
-        naive::back_batch(wf, ds.as_flattened(), &mut want, I);
+        naive::back_batch(wf, ds.as_flattened(), &mut want, I).unwrap();
         let mut outs = vec![[T::ONE; I]; m];
         back_batch_n(&w, &ds, &mut outs);
         assert_eq!(
@@ -333,7 +334,7 @@ fn array_forms<T: Real, const I: usize, const O: usize>(seed: u64) {
         );
 
         let mut want = wf.to_vec();
-        naive::outer_acc_batch(&mut want, ds.as_flattened(), xs.as_flattened(), I);
+        naive::outer_acc_batch(&mut want, ds.as_flattened(), xs.as_flattened(), I).unwrap();
         let mut g = w.clone();
         outer_acc_batch_n(&mut g, &ds, &xs);
         assert_eq!(
@@ -370,11 +371,12 @@ fn array_forms_equal_the_reference_f64() {
     array_sweep::<f64>();
 }
 
-/// Mismatched lengths: the fast kernels and the reference truncate alike (the shortest operand
-/// decides), and neither panics.
+/// Mismatched lengths: the fast kernels and the reference reject alike (the same error), never
+/// panic, and leave every output untouched; with lengths that agree both write the same bits.
 #[test]
-fn mismatched_lengths_truncate_alike() {
+fn mismatched_lengths_are_rejected_alike() {
     let mut rng = SplitMix64::new(53);
+    let mut rejected = 0;
     for _ in 0..3000 {
         let mut len = || (rng.next_u64() % 24) as usize;
         let (wl, bl, xl, zl, dl) = (len(), len(), len(), len(), len());
@@ -384,65 +386,169 @@ fn mismatched_lengths_truncate_alike() {
         let x = data::<f32>(xl, &mut rng);
         let d = data::<f32>(dl, &mut rng);
         let (mut z, mut want) = (vec![7.0; zl], vec![7.0; zl]);
-        affine(&w, &b, &x, &mut z);
-        naive::affine(&w, &b, &x, &mut want);
+        let r = affine(&w, &b, &x, &mut z);
+        assert_eq!(r, naive::affine(&w, &b, &x, &mut want));
         assert_eq!(
             same_bits(&z),
             same_bits(&want),
             "affine {wl} {bl} {xl} {zl}"
         );
+        rejected += usize::from(r.is_err());
         let (mut out, mut want) = (vec![7.0; zl], vec![7.0; zl]);
-        back(&w, &d, &mut out);
-        naive::back(&w, &d, &mut want);
+        let r = back(&w, &d, &mut out);
+        assert_eq!(r, naive::back(&w, &d, &mut want));
         assert_eq!(same_bits(&out), same_bits(&want), "back {wl} {dl} {zl}");
         let (mut g, mut want) = (vec![7.0; zl], vec![7.0; zl]);
-        outer_acc(&mut g, &d, &x);
-        naive::outer_acc(&mut want, &d, &x);
+        let r = outer_acc(&mut g, &d, &x);
+        assert_eq!(r, naive::outer_acc(&mut want, &d, &x));
         assert_eq!(same_bits(&g), same_bits(&want), "outer_acc {zl} {dl} {xl}");
         // Batch forms, the row length `n` chosen apart from the slices.
         let (mut zs, mut want) = (vec![7.0; zl * 2], vec![7.0; zl * 2]);
-        affine_batch(&w, &b, &x, &mut zs, n);
-        naive::affine_batch(&w, &b, &x, &mut want, n);
+        let r = affine_batch(&w, &b, &x, &mut zs, n);
+        assert_eq!(r, naive::affine_batch(&w, &b, &x, &mut want, n));
         assert_eq!(
             same_bits(&zs),
             same_bits(&want),
             "affine_batch {wl} {bl} {xl} {zl} {n}"
         );
         let (mut outs, mut want) = (vec![7.0; zl * 2], vec![7.0; zl * 2]);
-        back_batch(&w, &d, &mut outs, n);
-        naive::back_batch(&w, &d, &mut want, n);
+        let r = back_batch(&w, &d, &mut outs, n);
+        assert_eq!(r, naive::back_batch(&w, &d, &mut want, n));
         assert_eq!(
             same_bits(&outs),
             same_bits(&want),
             "back_batch {wl} {dl} {zl} {n}"
         );
         let (mut g, mut want) = (vec![7.0; zl], vec![7.0; zl]);
-        outer_acc_batch(&mut g, &d, &x, n);
-        naive::outer_acc_batch(&mut want, &d, &x, n);
+        let r = outer_acc_batch(&mut g, &d, &x, n);
+        assert_eq!(r, naive::outer_acc_batch(&mut want, &d, &x, n));
         assert_eq!(
             same_bits(&g),
             same_bits(&want),
             "outer_acc_batch {zl} {dl} {xl} {n}"
         );
+        let (mut g, mut want) = (vec![7.0; zl], vec![7.0; zl]);
+        let r = outer_acc_batch_rows(&mut g, &d, &x, n, (bl, wl));
+        assert_eq!(
+            r,
+            naive::outer_acc_batch_rows(&mut want, &d, &x, n, (bl, wl))
+        );
+        assert_eq!(same_bits(&g), same_bits(&want), "outer_acc_batch_rows");
         let (mut g, mut want) = (vec![7.0; bl], vec![7.0; bl]);
-        add_acc_batch(&mut g, &d);
-        naive::add_acc_batch(&mut want, &d);
+        let r = add_acc_batch(&mut g, &d);
+        assert_eq!(r, naive::add_acc_batch(&mut want, &d));
         assert_eq!(same_bits(&g), same_bits(&want), "add_acc_batch {bl} {dl}");
     }
-    // By hand: two full rows of 2 and a stray element; the rows without a bias or output stay.
-    let w = [1.0, 2.0, 3.0, 4.0, 5.0];
-    let mut z = [7.0; 4];
-    affine(&w, &[0.0; 4], &[1.0, 1.0], &mut z);
-    assert_eq!(z, [3.0, 7.0, 7.0, 7.0]);
+    assert!(rejected > 2000, "{rejected}");
+}
+
+/// Every checked kernel of `linalg`, and its reference, with one operand too short or too long:
+/// `Err` naming that operand, and every output as it was.
+#[test]
+fn a_short_operand_is_an_error_and_nothing_is_written() {
+    use crate::shape::LengthMismatch;
+    let miss = |operand, expected, found| {
+        Err(LengthMismatch {
+            operand,
+            expected,
+            found,
+        })
+    };
+    let (w, b, x, d) = ([1.0_f64; 6], [1.0; 3], [1.0; 2], [1.0; 3]);
     let mut z = [7.0; 2];
-    affine(&w, &[1.0, 2.0], &[], &mut z);
-    assert_eq!(z, [1.0, 2.0]);
-    let mut out = [0.0; 2];
-    back(&w, &[1.0], &mut out);
-    assert_eq!(out, [1.0, 2.0]);
-    let mut g = [0.0; 3];
-    add_acc(&mut g, &[1.0]);
-    assert_eq!(g, [1.0, 0.0, 0.0]);
+    assert_eq!(affine(&w, &b, &x, &mut z), miss("z", 3, 2));
+    assert_eq!(naive::affine(&w, &b, &x, &mut z), miss("z", 3, 2));
+    assert_eq!(affine(&w[..5], &b, &x, &mut [7.0; 3]), miss("w", 6, 5));
+    assert_eq!(z, [7.0; 2]);
+    let mut out = [7.0; 3];
+    assert_eq!(back(&w, &d, &mut out), miss("w", 9, 6));
+    assert_eq!(naive::back(&w, &d, &mut out), miss("w", 9, 6));
+    assert_eq!(out, [7.0; 3]);
+    let mut g = [7.0; 5];
+    assert_eq!(outer_acc(&mut g, &d, &x), miss("g", 6, 5));
+    assert_eq!(naive::outer_acc(&mut g, &d, &x), miss("g", 6, 5));
+    assert_eq!(g, [7.0; 5]);
+    let mut gb = [7.0; 3];
+    assert_eq!(add_acc(&mut gb, &x), miss("d", 3, 2));
+    assert_eq!(naive::add_acc(&mut gb, &x), miss("d", 3, 2));
+    assert_eq!(gb, [7.0; 3]);
+    let mut xs = [7.0; 2];
+    assert_eq!(standardize(&x, &x, &d, &mut xs), miss("std", 2, 3));
+    assert_eq!(naive::standardize(&x, &x, &d, &mut xs), miss("std", 2, 3));
+    assert_eq!(standardize(&x, &x, &x, &mut [7.0; 1]), miss("out", 2, 1));
+    assert_eq!(xs, [7.0; 2]);
+    // Batches: two samples of 2 inputs and 3 outputs, one operand a sample short.
+    let (xs, ds) = ([1.0; 4], [1.0; 6]);
+    let mut zs = [7.0; 3];
+    assert_eq!(affine_batch(&w, &b, &xs, &mut zs, 2), miss("zs", 6, 3));
+    assert_eq!(
+        naive::affine_batch(&w, &b, &xs, &mut zs, 2),
+        miss("zs", 6, 3)
+    );
+    assert_eq!(zs, [7.0; 3]);
+    assert_eq!(
+        affine_batch(&w, &b, &xs[..3], &mut [7.0; 6], 2),
+        miss("xs", 2, 3)
+    );
+    let mut outs = [7.0; 2];
+    assert_eq!(back_batch(&w, &ds, &mut outs, 2), miss("ds", 3, 6));
+    assert_eq!(naive::back_batch(&w, &ds, &mut outs, 2), miss("ds", 3, 6));
+    assert_eq!(outs, [7.0; 2]);
+    assert_eq!(back_batch(&w[..5], &ds, &mut [7.0; 4], 2), miss("w", 4, 5));
+    let mut g = [7.0; 6];
+    assert_eq!(outer_acc_batch(&mut g, &ds[..3], &xs, 2), miss("ds", 6, 3));
+    assert_eq!(
+        naive::outer_acc_batch(&mut g, &ds[..3], &xs, 2),
+        miss("ds", 6, 3)
+    );
+    assert_eq!(g, [7.0; 6]);
+    let mut rows = [7.0; 4];
+    assert_eq!(
+        outer_acc_batch_rows(&mut rows, &ds, &xs, 2, (2, 3)),
+        miss("g", 2, 4)
+    );
+    assert_eq!(
+        naive::outer_acc_batch_rows(&mut rows, &ds, &xs, 2, (2, 3)),
+        miss("g", 2, 4)
+    );
+    assert_eq!(
+        outer_acc_batch_rows(&mut rows, &ds, &xs[..3], 2, (0, 3)),
+        miss("xs", 2, 3)
+    );
+    assert_eq!(rows, [7.0; 4]);
+    let mut gb = [7.0; 4];
+    assert_eq!(add_acc_batch(&mut gb, &ds), miss("ds", 4, 6));
+    assert_eq!(naive::add_acc_batch(&mut gb, &ds), miss("ds", 4, 6));
+    assert_eq!(gb, [7.0; 4]);
+}
+
+/// The array forms without a sweep of their own (`add_acc_n`, `add_acc_batch_n`) against their
+/// slice forms, bit for bit, over a few shapes.
+fn add_acc_forms<const N: usize>(seed: u64) {
+    let mut rng = SplitMix64::new(seed);
+    let g0: [f32; N] = core::array::from_fn(|_| edgy(&mut rng));
+    let d: [f32; N] = core::array::from_fn(|_| edgy(&mut rng));
+    let (mut ga, mut gs) = (g0, g0);
+    add_acc_n(&mut ga, &d);
+    add_acc(&mut gs, &d).unwrap();
+    assert_eq!(same_bits(&ga), same_bits(&gs), "add_acc_n {N}");
+    for m in BATCHES {
+        let ds: Vec<[f32; N]> = (0..m)
+            .map(|_| core::array::from_fn(|_| edgy(&mut rng)))
+            .collect();
+        let (mut ga, mut gs) = (g0, g0);
+        add_acc_batch_n(&mut ga, &ds);
+        add_acc_batch(&mut gs, ds.as_flattened()).unwrap();
+        assert_eq!(same_bits(&ga), same_bits(&gs), "add_acc_batch_n {N} x {m}");
+    }
+}
+
+#[test]
+fn add_acc_array_forms_equal_the_slice_forms() {
+    add_acc_forms::<1>(1);
+    add_acc_forms::<3>(2);
+    add_acc_forms::<8>(3);
+    add_acc_forms::<17>(4);
 }
 
 #[test]
@@ -476,7 +582,7 @@ fn lane_order_stays_close_to_the_sequential_sum() {
         let b = data::<f64>(o, &mut rng);
         let x = data::<f64>(n, &mut rng);
         let mut z = vec![0.0; o];
-        affine(&w, &b, &x, &mut z);
+        affine(&w, &b, &x, &mut z).unwrap();
         for (j, a) in z.iter().enumerate() {
             let e = (0..n).map(|i| w[j * n + i] * x[i]).sum::<f64>() + b[j];
             let scale: f64 = (0..n).map(|i| (w[j * n + i] * x[i]).abs()).sum::<f64>() + b[j].abs();
