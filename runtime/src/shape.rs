@@ -33,6 +33,27 @@ pub struct LengthMismatch {
     pub found: usize,
 }
 
+impl LengthMismatch {
+    /// `Ok` when `found == expected`, else the mismatch of `operand`: the one length rule every
+    /// check is made of, for callers that check their own operands too.
+    ///
+    /// # Examples
+    /// ```
+    /// use sinew_runtime::LengthMismatch;
+    /// assert!(LengthMismatch::check("x", 3, 3).is_ok());
+    /// let e = LengthMismatch::check("x", 3, 2).unwrap_err();
+    /// assert_eq!((e.operand, e.expected, e.found), ("x", 3, 2));
+    /// ```
+    #[inline(always)]
+    pub fn check(
+        operand: &'static str,
+        expected: usize,
+        found: usize,
+    ) -> Result<(), LengthMismatch> {
+        expect(operand, expected, found)
+    }
+}
+
 impl core::fmt::Display for LengthMismatch {
     fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
         write!(

@@ -478,7 +478,13 @@ macro_rules! kernels {
 kernels!(f32, "f32");
 kernels!(f64, "f64");
 
-// The functions of no scalar: the blob's bytes, sinew's own f32 functions, the generator.
+// The functions of no scalar: the length rule, the blob's bytes, sinew's own f32 functions, the
+// generator.
+
+#[no_mangle]
+fn sinew_k_length_check(expected: usize, found: usize) -> Result<(), LengthMismatch> {
+    LengthMismatch::check("operand", expected, found)
+}
 
 #[no_mangle]
 fn sinew_k_crc32(bytes: &[u8]) -> u32 {

@@ -355,33 +355,16 @@ fn provisional(
 ) -> Option<ir::Model> {
     parts.budget?;
     let input = parts.input?;
-    let output = parts.output?;
-    let mut fan_in = widths.input?;
-    let decls = parts
-        .layers
-        .iter()
-        .copied()
-        .chain(std::iter::once(output.layer));
-    let mut layers = Vec::new();
-    for (i, (decl, width)) in decls.zip(&widths.layers).enumerate() {
-        let width = (*width)?;
-        layers.push(ir::Layer {
-            name: decl.name.node.clone(),
-            width,
-            fan_in,
-            activation: activations
+    let identity = |i: usize| {
+        Some(
+            activations
                 .get(i)
                 .copied()
                 .flatten()
                 .unwrap_or(ir::Activation::Identity),
-        });
-        fan_in = width;
-    }
-    let scalar = match parts.scalar.map(|s| s.node) {
-        Some(ScalarKind::F32) => ir::Scalar::F32,
-        Some(ScalarKind::F64) => ir::Scalar::F64,
-        None => ir::defaults::SCALAR,
+        )
     };
+    let (layers, scalar) = assemble(parts, widths, identity)?;
     Some(ir::Model {
         name: parts
             .model
@@ -403,6 +386,39 @@ fn provisional(
     })
 }
 
+/// The layers (sizes from `widths`, activation `i` from `activation(i)`) and the scalar; `None`
+/// when a size or an activation is unknown.
+fn assemble(
+    parts: &Parts<'_>,
+    widths: &shapes::Widths,
+    activation: impl Fn(usize) -> Option<ir::Activation>,
+) -> Option<(Vec<ir::Layer>, ir::Scalar)> {
+    let output = parts.output?;
+    let mut fan_in = widths.input?;
+    let decls = parts
+        .layers
+        .iter()
+        .copied()
+        .chain(std::iter::once(output.layer));
+    let mut layers = Vec::new();
+    for (i, (decl, width)) in decls.zip(&widths.layers).enumerate() {
+        let width = (*width)?;
+        layers.push(ir::Layer {
+            name: decl.name.node.clone(),
+            width,
+            fan_in,
+            activation: activation(i)?,
+        });
+        fan_in = width;
+    }
+    let scalar = match parts.scalar.map(|s| s.node) {
+        Some(ScalarKind::F32) => ir::Scalar::F32,
+        Some(ScalarKind::F64) => ir::Scalar::F64,
+        None => ir::defaults::SCALAR,
+    };
+    Some((layers, scalar))
+}
+
 /// Assembles the model once every check has passed.
 fn build(
     parts: &Parts<'_>,
@@ -413,28 +429,7 @@ fn build(
 ) -> Option<ir::Model> {
     let input = parts.input?;
     let output = parts.output?;
-    let mut fan_in = widths.input?;
-    let decls = parts
-        .layers
-        .iter()
-        .copied()
-        .chain(std::iter::once(output.layer));
-    let mut layers = Vec::new();
-    for ((decl, width), act) in decls.zip(&widths.layers).zip(activations) {
-        let width = (*width)?;
-        layers.push(ir::Layer {
-            name: decl.name.node.clone(),
-            width,
-            fan_in,
-            activation: (*act)?,
-        });
-        fan_in = width;
-    }
-    let scalar = match parts.scalar.map(|s| s.node) {
-        Some(ScalarKind::F32) => ir::Scalar::F32,
-        Some(ScalarKind::F64) => ir::Scalar::F64,
-        None => ir::defaults::SCALAR,
-    };
+    let (layers, scalar) = assemble(parts, widths, |i| activations.get(i).copied().flatten())?;
     let loss = match parts.loss?.node {
         LossKind::CrossEntropy => ir::Loss::CrossEntropy,
         LossKind::SquaredError => ir::Loss::SquaredError,

@@ -74,7 +74,7 @@ fn backward_rows<T: Real>(
 ) -> Result<(), LengthMismatch> {
     match act {
         Activation::Softmax => {
-            super::expect_len("d", a.len(), d.len())?;
+            LengthMismatch::check("d", a.len(), d.len())?;
             for (ar, dr) in a.chunks_exact(w).zip(d.chunks_exact_mut(w)) {
                 act.backward(ar, dr)?;
             }

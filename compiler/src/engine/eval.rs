@@ -1,6 +1,6 @@
 //! Metrics of a trained model on a data set.
 
-use super::{batch, expect_len, LengthMismatch, Net, Params};
+use super::{batch, LengthMismatch, Net, Params};
 use crate::ir::Activation;
 use serde::Serialize;
 use sinew_runtime::Real;
@@ -31,7 +31,7 @@ pub fn accuracy<T: Real + Send + Sync>(
     let n_out = net.model.output().width;
     let out = batch::predict_all(net, p, xs)?;
     let total = out.len().checked_div(n_out).unwrap_or(0);
-    expect_len("labels", total, labels.len())?;
+    LengthMismatch::check("labels", total, labels.len())?;
     if total == 0 {
         return Ok(0.0);
     }
@@ -77,7 +77,7 @@ pub fn evaluate<T: Real + Send + Sync>(
     let out = batch::predict_all(net, p, xs)?;
     let samples = out.len().checked_div(n_out).unwrap_or(0);
     if let Some(l) = labels {
-        expect_len("labels", samples, l.len())?;
+        LengthMismatch::check("labels", samples, l.len())?;
     }
     if model.is_classifier() {
         let n_classes = if n_out == 1 && model.output().activation == Activation::Sigmoid {

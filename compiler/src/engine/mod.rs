@@ -317,23 +317,6 @@ pub fn sample_loss<T: Real>(head: Head, v: &[T], y: &[T]) -> Result<T, LengthMis
     }
 }
 
-/// `Ok` when `found == expected`, else the mismatch of `operand`.
-pub(crate) fn expect_len(
-    operand: &'static str,
-    expected: usize,
-    found: usize,
-) -> Result<(), LengthMismatch> {
-    if found == expected {
-        Ok(())
-    } else {
-        Err(LengthMismatch {
-            operand,
-            expected,
-            found,
-        })
-    }
-}
-
 /// The number of samples `m` of a batch stored row-major: `xs` must hold `m` rows of `n_in`
 /// values and `ys` (when given) `m` rows of `n_out`. A partial row or a count that disagrees is
 /// an error, never a truncation.
@@ -344,9 +327,9 @@ pub(crate) fn batch_samples<T>(
     n_out: usize,
 ) -> Result<usize, LengthMismatch> {
     let m = xs.len().checked_div(n_in).unwrap_or(0);
-    expect_len("xs", m * n_in, xs.len())?;
+    LengthMismatch::check("xs", m * n_in, xs.len())?;
     if let Some(ys) = ys {
-        expect_len("ys", m.saturating_mul(n_out), ys.len())?;
+        LengthMismatch::check("ys", m.saturating_mul(n_out), ys.len())?;
     }
     Ok(m)
 }
@@ -438,9 +421,9 @@ impl<'m, T: Real> Net<'m, T> {
 
     /// `x` (and `y`, when given) against the model's input (output) width.
     fn check_sample(&self, x: &[T], y: Option<&[T]>) -> Result<(), LengthMismatch> {
-        expect_len("x", self.model.input.width, x.len())?;
+        LengthMismatch::check("x", self.model.input.width, x.len())?;
         match y {
-            Some(y) => expect_len("y", self.model.output().width, y.len()),
+            Some(y) => LengthMismatch::check("y", self.model.output().width, y.len()),
             None => Ok(()),
         }
     }
@@ -467,10 +450,10 @@ impl<'m, T: Real> Net<'m, T> {
         s: &mut Scratch<T>,
         out: &mut [T],
     ) -> Result<(), LengthMismatch> {
-        expect_len("out", self.model.output().width, out.len())?;
+        LengthMismatch::check("out", self.model.output().width, out.len())?;
         self.forward(p, x, s)?;
         let a = s.activations(self.plan.output);
-        expect_len("out", a.len(), out.len())?;
+        LengthMismatch::check("out", a.len(), out.len())?;
         out.iter_mut().zip(a).for_each(|(o, &v)| *o = v);
         Ok(())
     }
@@ -524,7 +507,7 @@ impl<'m, T: Real> Net<'m, T> {
         m: usize,
     ) -> Result<(), LengthMismatch> {
         let m = T::from_usize(m);
-        expect_len("grad", p.layers.len(), grad.layers.len())?;
+        LengthMismatch::check("grad", p.layers.len(), grad.layers.len())?;
         for (g, w) in grad.layers.iter_mut().zip(&p.layers) {
             self.penalty.finish_weights(&mut g.weights, &w.weights, m)?;
             rt::penalty::finish_bias(&mut g.bias, m);
@@ -567,7 +550,7 @@ impl<'m, T: Real> Net<'m, T> {
         g: &Params<T>,
         state: &mut OptState<T>,
     ) -> Result<(), LengthMismatch> {
-        expect_len("g", p.layers.len(), g.layers.len())?;
+        LengthMismatch::check("g", p.layers.len(), g.layers.len())?;
         match Update::of(optimizer) {
             Update::Sgd { rate } => {
                 let rate = T::from_f64(rate);
