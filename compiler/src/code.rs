@@ -112,6 +112,8 @@ codes! {
     S0702,
     /// A budget amount does not fit in 64 bits of bytes.
     S0703,
+    /// On-device training needs more RAM than `budget train_ram` allows.
+    S0704,
     // Spec warnings: the spec is accepted.
     /// `squared_error` with a softmax output (learns slowly when confidently wrong).
     W0101,

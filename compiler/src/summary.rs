@@ -196,12 +196,30 @@ pub fn table(model: &Model) -> String {
     );
     let _ = writeln!(
         s,
-        "  parameters {} ({}), flash {}, RAM inference {}, RAM training {}",
+        "  parameters {} ({})",
         r.parameters,
-        human_bytes(r.parameter_bytes),
-        budget_text(r.flash_bytes, model.budget.flash),
-        budget_text(r.ram_inference_bytes, model.budget.ram),
-        human_bytes(r.ram_training_bytes),
+        human_bytes(r.parameter_bytes)
+    );
+    let scaling = if r.scaling_bytes > 0 {
+        ", input mean and std"
+    } else {
+        ""
+    };
+    let _ = writeln!(
+        s,
+        "  flash {}: weights, biases{scaling} (machine code not counted)",
+        budget_text(r.flash_bytes, model.budget.flash, "flash")
+    );
+    let _ = writeln!(
+        s,
+        "  RAM for inference {}: layer buffers and call frames",
+        budget_text(r.ram_inference_bytes, model.budget.ram, "ram")
+    );
+    let _ = writeln!(
+        s,
+        "  RAM for on-device training {}: parameters, gradient, optimizer state, buffers and \
+         call frames",
+        budget_text(r.ram_training_bytes, model.budget.train_ram, "train_ram")
     );
     let _ = writeln!(
         s,
@@ -211,10 +229,16 @@ pub fn table(model: &Model) -> String {
     s
 }
 
-fn budget_text(used: u64, limit: Option<u64>) -> String {
+/// A figure with the budget word that limits it: `788 B of 16 KiB (budget flash)`, or
+/// `4.84 KiB (no budget train_ram)`.
+fn budget_text(used: u64, limit: Option<u64>, word: &str) -> String {
     match limit {
-        Some(l) => format!("{} of {}", human_bytes(used), human_bytes(l)),
-        None => human_bytes(used),
+        Some(l) => format!(
+            "{} of {} (budget {word})",
+            human_bytes(used),
+            human_bytes(l)
+        ),
+        None => format!("{} (no budget {word})", human_bytes(used)),
     }
 }
 

@@ -274,7 +274,8 @@ fn numbers_in_exponent_form_and_every_option() {
         m.budget(),
         sinew::ir::Budget {
             flash: None,
-            ram: Some(1024 * 1024)
+            ram: Some(1024 * 1024),
+            train_ram: None,
         }
     );
 }

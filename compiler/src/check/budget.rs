@@ -1,14 +1,16 @@
 //! The memory budget (`S07xx`).
 //!
 //! `budget flash N UNIT` is checked against [`Report::flash_bytes`] (every weight and bias, plus
-//! the standardization mean and std), and `budget ram N UNIT` against
+//! the standardization mean and std), `budget ram N UNIT` against
 //! [`Report::ram_inference_bytes`] (the buffers `predict` holds plus the allowance for its call
-//! frames, which the device test holds against the stack measured on microcontrollers). Both
-//! figures appear in the message.
+//! frames) and `budget train_ram N UNIT` against [`Report::ram_training_bytes`] (the trainer's
+//! parameters, gradient and optimizer state, the per-sample buffers of one step and the allowance
+//! for its call frames). The device test holds both frame allowances against the stack measured
+//! on microcontrollers. The figure and the limit appear in each message.
 
 use super::Parts;
 use crate::diag::{Code, Diagnostic};
-use crate::ir::{Budget, Model};
+use crate::ir::{Budget, Model, Optimizer};
 use crate::report::{human_bytes, Report};
 use crate::syntax::ast::{Size, Unit};
 
@@ -49,11 +51,13 @@ pub(crate) fn limits(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Option<B
     };
     let flash = b.flash.map(|s| bytes(s, "flash", diags));
     let ram = b.ram.map(|s| bytes(s, "ram", diags));
-    match (flash, ram) {
-        (Some(None), _) | (_, Some(None)) => None,
-        (f, r) => Some(Budget {
+    let train_ram = b.train_ram.map(|s| bytes(s, "train_ram", diags));
+    match (flash, ram, train_ram) {
+        (Some(None), _, _) | (_, Some(None), _) | (_, _, Some(None)) => None,
+        (f, r, t) => Some(Budget {
             flash: f.flatten(),
             ram: r.flatten(),
+            train_ram: t.flatten(),
         }),
     }
 }
@@ -78,7 +82,8 @@ fn enough(n: u64) -> String {
     }
 }
 
-/// Checks a built model against its budget (`S0701` flash, `S0702` RAM).
+/// Checks a built model against its budget (`S0701` flash, `S0702` inference RAM, `S0704`
+/// training RAM).
 pub(crate) fn check(model: &Model, parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) {
     let Some(b) = parts.budget else { return };
     let report = Report::of(model);
@@ -183,6 +188,47 @@ pub(crate) fn check(model: &Model, parts: &Parts<'_>, diags: &mut Vec<Diagnostic
             )));
         }
     }
+
+    if let (Some(limit), Some(size)) = (model.budget.train_ram, b.train_ram) {
+        if report.ram_training_bytes > limit {
+            let mut d = Diagnostic::error(
+                Code::S0704,
+                format!(
+                    "one on-device training step needs {} of RAM, more than the budget of {}",
+                    figure(report.ram_training_bytes),
+                    figure(limit)
+                ),
+                size.span,
+            )
+            .label(format!("budget of {}", figure(limit)));
+            let (copies, state, lighter) = match model.train.optimizer {
+                Optimizer::Sgd { momentum: 0.0, .. } => ("", "", ""),
+                Optimizer::Sgd { .. } => (
+                    " and a velocity",
+                    "momentum keeps a velocity",
+                    " (sgd without momentum)",
+                ),
+                Optimizer::Adam { .. } => (
+                    " and two moment estimates",
+                    "adam keeps two moment estimates",
+                    " (sgd)",
+                ),
+            };
+            if let (Some(t), false) = (parts.train, state.is_empty()) {
+                d = d.with_secondary(t.optimizer.span, format!("{state} per parameter"));
+            }
+            diags.push(d.with_help(format!(
+                "a step keeps the {} parameters ({}), their gradient{copies}, and the buffers \
+                 of one sample: {} in all, plus {} of call frames; raise the train_ram budget \
+                 to at least {}, or use a lighter optimizer{lighter} or narrower layers",
+                report.parameters,
+                human_bytes(report.parameter_bytes),
+                human_bytes(report.buffer_training_bytes),
+                human_bytes(report.frames_training_bytes),
+                enough(report.ram_training_bytes)
+            )));
+        }
+    }
 }
 
 #[cfg(test)]
@@ -220,6 +266,16 @@ mod tests {
         assert!(codes("budget flash 788 B ram 1388 B").is_empty());
         assert_eq!(codes("budget flash 787 B"), ["S0701"]);
         assert_eq!(codes("budget ram 1387 B"), ["S0702"]);
+        // Training (default optimizer adam): 185 parameters x 4 copies (parameters, gradient,
+        // two moments) + 27 inference values + 3 output values + 21 error terms = 791 values
+        // = 3164 B, plus 1792 B of frames = 4956 B (report.rs works through this figure).
+        assert!(codes("budget train_ram 4956 B").is_empty());
+        assert_eq!(codes("budget train_ram 4955 B"), ["S0704"]);
+        assert_eq!(
+            codes("budget flash 787 B ram 1387 B train_ram 4955 B"),
+            ["S0701", "S0702", "S0704"]
+        );
+        assert!(codes("budget ram 2 KiB train_ram 5 KiB").is_empty());
         let d = &check_source(&spec("budget flash 787 B")).diagnostics[0];
         assert_eq!(
             d.message,

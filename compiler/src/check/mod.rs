@@ -185,6 +185,7 @@ pub(crate) struct TrainPart<'a> {
 pub(crate) struct BudgetPart<'a> {
     pub flash: Option<&'a Size>,
     pub ram: Option<&'a Size>,
+    pub train_ram: Option<&'a Size>,
 }
 
 /// The first statement of each section (later duplicates are reported and ignored), and every
@@ -288,10 +289,15 @@ fn sections<'a>(spec: &'a Spec, diags: &mut Vec<Diagnostic>) -> Parts<'a> {
                     epochs: epochs.as_ref(),
                 })
             }
-            Item::Budget { flash, ram } => {
+            Item::Budget {
+                flash,
+                ram,
+                train_ram,
+            } => {
                 parts.budget = Some(BudgetPart {
                     flash: flash.as_ref(),
                     ram: ram.as_ref(),
+                    train_ram: train_ram.as_ref(),
                 })
             }
             Item::Invalid { .. } => {}

@@ -51,8 +51,8 @@ pub fn dump(model: &Model) -> String {
     );
     let _ = writeln!(
         s,
-        "budget flash {:?} ram {:?}",
-        model.budget.flash, model.budget.ram
+        "budget flash {:?} ram {:?} train_ram {:?}",
+        model.budget.flash, model.budget.ram, model.budget.train_ram
     );
     let _ = writeln!(s, "parameters {}", model.parameters());
     let _ = writeln!(s, "fingerprint {:016x}", model.fingerprint());

@@ -174,6 +174,9 @@ pub struct Budget {
     pub flash: Option<u64>,
     /// Limit on RAM held by inference (`report::Report::ram_inference_bytes`), if given.
     pub ram: Option<u64>,
+    /// Limit on RAM held by one on-device training step
+    /// (`report::Report::ram_training_bytes`), if given.
+    pub train_ram: Option<u64>,
 }
 
 /// The input vector.

@@ -110,7 +110,9 @@ impl Section {
                 "train sgd rate R [momentum M] [batch N] [epochs N] \
                  | train adam rate R [beta1 B1] [beta2 B2] [batch N] [epochs N]"
             }
-            Section::Budget => "budget [flash N UNIT] [ram N UNIT] (UNIT is B, KiB or MiB)",
+            Section::Budget => {
+                "budget [flash N UNIT] [ram N UNIT] [train_ram N UNIT] (UNIT is B, KiB or MiB)"
+            }
         }
     }
 }
@@ -172,12 +174,14 @@ pub enum Item {
         /// Passes over the data, if given.
         epochs: Option<Integer>,
     },
-    /// `budget [flash N UNIT] [ram N UNIT]`
+    /// `budget [flash N UNIT] [ram N UNIT] [train_ram N UNIT]`
     Budget {
         /// The flash limit, if given.
         flash: Option<Size>,
-        /// The RAM limit, if given.
+        /// The limit on the RAM of inference, if given.
         ram: Option<Size>,
+        /// The limit on the RAM of one on-device training step, if given.
+        train_ram: Option<Size>,
     },
     /// A line with a syntax error (already reported by the parser).
     Invalid {

@@ -260,8 +260,9 @@ fn build_statement(stmt: Pair<'_, Rule>, off: usize) -> Option<Statement> {
         Rule::budget_stmt => {
             let mut flash = None;
             let mut ram = None;
+            let mut train_ram = None;
             for limit in it {
-                let is_flash = limit.as_rule() == Rule::flash_limit;
+                let rule = limit.as_rule();
                 let mut parts = limit.into_inner();
                 let _kw = parts.next()?;
                 let size = parts.next()?;
@@ -279,13 +280,17 @@ fn build_statement(stmt: Pair<'_, Rule>, off: usize) -> Option<Statement> {
                     amount,
                     unit: Spanned::new(unit, span_of(&u, off)),
                 };
-                if is_flash {
-                    flash = Some(size);
-                } else {
-                    ram = Some(size);
+                match rule {
+                    Rule::flash_limit => flash = Some(size),
+                    Rule::ram_limit => ram = Some(size),
+                    _ => train_ram = Some(size),
                 }
             }
-            Item::Budget { flash, ram }
+            Item::Budget {
+                flash,
+                ram,
+                train_ram,
+            }
         }
         _ => return None,
     };
@@ -398,6 +403,7 @@ fn expectation(rule: Rule) -> Option<Want> {
         Rule::budget_stmt | Rule::kw_budget => Word("budget"),
         Rule::flash_limit | Rule::kw_flash => Word("flash"),
         Rule::ram_limit | Rule::kw_ram => Word("ram"),
+        Rule::train_ram_limit | Rule::kw_train_ram => Word("train_ram"),
         Rule::spec
         | Rule::single_line
         | Rule::line
@@ -741,7 +747,7 @@ fn syntax_error(
 }
 
 /// Every fixed word of the language, for "expected X after `rate`" messages.
-const KEYWORDS: [&str; 30] = [
+const KEYWORDS: [&str; 31] = [
     "model",
     "scalar",
     "input",
@@ -772,6 +778,7 @@ const KEYWORDS: [&str; 30] = [
     "budget",
     "flash",
     "ram",
+    "train_ram",
 ];
 
 /// The unit meant by a common spelling that sinew does not use.
