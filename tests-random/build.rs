@@ -84,7 +84,7 @@ fn spec(i: usize, rng: &mut SplitMix64) -> String {
     let std = if rng.next_u64().is_multiple_of(3) {
         " standardize"
     } else {
-        ""
+        " unscaled"
     };
     let _ = writeln!(s, "input features {}{std}", width(rng));
     let hidden = int(rng, 1, 4);

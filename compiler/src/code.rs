@@ -123,6 +123,13 @@ codes! {
     W0103,
     /// A penalty of strength 0, which has no effect.
     W0104,
+    /// An input line with neither `standardize` nor `unscaled`.
+    W0105,
+    // Training warnings: the weights are written.
+    /// The input columns of a model without `standardize` are on very different or large scales.
+    W0201,
+    /// A class with samples in the validation split (the training data without one) is never predicted there.
+    W0202,
     // Data file errors (`sinew train`, `eval`, `grad`, `gradcheck --data`).
     /// The file cannot be opened or read.
     D01,

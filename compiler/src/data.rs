@@ -860,7 +860,8 @@ pub fn shuffle<X>(v: &mut [X], rng: &mut SplitMix64) {
 /// Two passes in sample order: `mean_j = (1/n) sum_i x_ij`, then
 /// `std_j = sqrt((1/n) sum_i (x_ij - mean_j)^2)`. A constant feature (std 0) gets std 1.0, so
 /// scaling only centres it instead of dividing by zero. With no samples every mean is 0 and
-/// every std 1. The width is the number of input columns ([`Dataset::input_names`]).
+/// every std 1. The width is the number of input columns ([`Dataset::input_names`]). Bits are
+/// those of [`mean_spread`], the std of a constant feature replaced by 1.
 ///
 /// # Examples
 /// ```
@@ -875,10 +876,22 @@ pub fn shuffle<X>(v: &mut [X], rng: &mut SplitMix64) {
 /// assert_eq!(mean_std(&ds), (vec![2.0, 5.0], vec![1.0, 1.0]));
 /// ```
 pub fn mean_std(ds: &Dataset) -> (Vec<f64>, Vec<f64>) {
+    let (mean, spread) = mean_spread(ds);
+    let std = spread
+        .into_iter()
+        .map(|s| if s > 0.0 { s } else { 1.0 })
+        .collect();
+    (mean, std)
+}
+
+/// Per-feature mean and population standard deviation as computed, a constant feature keeping
+/// std 0 (the figures [`mean_std`] starts from; `workflow::advice` judges the data's scales by
+/// them). With no samples every mean and std is 0.
+pub fn mean_spread(ds: &Dataset) -> (Vec<f64>, Vec<f64>) {
     let width = ds.input_names.len();
     let n = ds.len();
     if n == 0 {
-        return (vec![0.0; width], vec![1.0; width]);
+        return (vec![0.0; width], vec![0.0; width]);
     }
     let mut mean = vec![0.0; width];
     for row in &ds.inputs {
@@ -895,17 +908,7 @@ pub fn mean_std(ds: &Dataset) -> (Vec<f64>, Vec<f64>) {
             *v += (x - m) * (x - m);
         }
     }
-    let std = var
-        .iter()
-        .map(|v| {
-            let s = (v / n as f64).sqrt();
-            if s > 0.0 {
-                s
-            } else {
-                1.0
-            }
-        })
-        .collect();
+    let std = var.iter().map(|v| (v / n as f64).sqrt()).collect();
     (mean, std)
 }
 

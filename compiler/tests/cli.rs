@@ -282,7 +282,7 @@ fn check_json_gives_line_and_column_of_each_span() {
     let spec = dir.join("wide.sinew");
     std::fs::write(
         &spec,
-        "# pompe à eau\nmodel m\ninput x 0\noutput y 1 sigmoid\nloss cross_entropy\n",
+        "# pompe à eau\nmodel m\ninput x 0 unscaled\noutput y 1 sigmoid\nloss cross_entropy\n",
     )
     .unwrap();
     let o = sinew(&["check", "--json", spec.to_str().unwrap()]);
@@ -295,5 +295,57 @@ fn check_json_gives_line_and_column_of_each_span() {
     assert_eq!(d["location"]["end"]["column"], 10);
     // The byte span is still there.
     assert_eq!(d["primary"]["span"]["start"], 31);
+    let _ = std::fs::remove_dir_all(dir);
+}
+
+#[test]
+fn training_on_unscaled_columns_warns_about_scales_and_a_class_never_predicted() {
+    // Breast Cancer Wisconsin (Diagnostic), the copy scikit-learn ships (tests/data/NOTICE.md):
+    // `worst_area` spreads in the hundreds, `fractal_dimension_error` in the thousandths. Fed
+    // raw, the reference spec's network settles on the majority class (`benign`, 357 of 569).
+    let dir = scratch("cli", "unscaled");
+    let reference =
+        std::fs::read_to_string(common::root().join("tests/reference/specs/breast_cancer.sinew"))
+            .unwrap();
+    let raw = reference.replace("input nuclei 30 standardize", "input nuclei 30");
+    assert_ne!(raw, reference);
+    let spec = dir.join("raw.sinew");
+    std::fs::write(&spec, raw).unwrap();
+    let weights = dir.join("w.json");
+    let run = |spec: &str| {
+        sinew(&[
+            "train",
+            spec,
+            "--data",
+            "tests/data/breast_cancer.csv",
+            "-o",
+            weights.to_str().unwrap(),
+        ])
+    };
+    let o = run(spec.to_str().unwrap());
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o));
+    assert!(err.contains("warning[W0105]"), "{err}");
+    assert!(
+        err.contains(
+            "tests/data/breast_cancer.csv: warning[W0201]: the spreads of the input columns"
+        ),
+        "{err}"
+    );
+    assert!(
+        err.contains(
+            "warning[W0202]: class `malignant` is never predicted on the validation split"
+        ),
+        "{err}"
+    );
+    assert!(weights.exists(), "the weights are still written");
+    // Standardized, the same network predicts both classes: no finding.
+    let o = run("tests/reference/specs/breast_cancer.sinew");
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o));
+    assert!(
+        !String::from_utf8_lossy(&o.stderr).contains("warning"),
+        "{}",
+        text(&o)
+    );
     let _ = std::fs::remove_dir_all(dir);
 }

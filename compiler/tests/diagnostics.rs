@@ -140,7 +140,7 @@ fn samples_check_clean_and_dump_as_reviewed() {
 }
 
 /// A valid spec to which each warning case adds one suspicious line.
-const BASE: &str = "model pump_health\ninput features 6\n";
+const BASE: &str = "model pump_health\ninput features 6 unscaled\n";
 
 fn warning_case(name: &str, body: &str) {
     let src = format!("{BASE}{body}");
@@ -193,6 +193,30 @@ fn warnings_accompany_a_model() {
     );
 }
 
+/// A greenhouse model fed raw readings: air temperature in degrees, humidity in percent, CO2 in
+/// ppm and light in lux differ by orders of magnitude (invented scenario).
+const UNSCALED: &str = "model greenhouse_raw\ninput climate 4\nlayer hidden 12 relu\n\
+                        output humidity 1 identity\nloss squared_error\n";
+
+#[test]
+fn an_input_without_scaling_warns_unless_declared() {
+    let checked = sinew::check_source(UNSCALED);
+    assert!(
+        checked.model.is_some(),
+        "a warning must not reject the spec"
+    );
+    let codes: Vec<_> = checked.diagnostics.iter().map(|d| d.code).collect();
+    assert_eq!(codes, ["W0105"]);
+    insta::assert_snapshot!(
+        "warn_unscaled_input",
+        rendered("greenhouse_raw.sinew", UNSCALED)
+    );
+    for word in ["standardize", "unscaled"] {
+        let src = UNSCALED.replace("climate 4", &format!("climate 4 {word}"));
+        assert!(sinew::check_source(&src).diagnostics.is_empty(), "{word}");
+    }
+}
+
 #[test]
 fn every_documented_warning_is_exercised() {
     let cases = [
@@ -202,12 +226,15 @@ fn every_documented_warning_is_exercised() {
         "output state 3 softmax\nloss cross_entropy\ntrain adam rate 0.001 batch 4096\n",
         "output state 3 softmax\nloss cross_entropy\npenalty l2 0\n",
     ];
-    let seen: Vec<String> = cases
+    let mut seen: Vec<String> = cases
         .iter()
         .flat_map(|body| sinew::check_source(&format!("{BASE}{body}")).diagnostics)
         .map(|d| d.code.to_string())
         .collect();
-    for code in documented_codes().iter().filter(|c| c.starts_with('W')) {
+    let unscaled = sinew::check_source(UNSCALED).diagnostics;
+    seen.extend(unscaled.iter().map(|d| d.code.to_string()));
+    // `W02xx` come after training: `compiler/tests/cli.rs` and `workflow::advice` cover them.
+    for code in documented_codes().iter().filter(|c| c.starts_with("W01")) {
         assert!(seen.contains(code), "no case produces {code}");
     }
 }
@@ -284,9 +311,9 @@ fn numbers_in_exponent_form_and_every_option() {
 fn a_budget_that_is_exactly_met_passes() {
     // 2-1 sigmoid: 2 weights + 1 bias = 3 values * 4 B = 12 B of flash; 1 buffer value = 4 B
     // of RAM plus the f32 frame allowance of 1280 B = 1284 B (report.rs documents both figures).
-    let src = "model gate\ninput x 2\noutput y 1 sigmoid\nloss cross_entropy\nbudget flash 12 B ram 1284 B\n";
+    let src = "model gate\ninput x 2 unscaled\noutput y 1 sigmoid\nloss cross_entropy\nbudget flash 12 B ram 1284 B\n";
     assert!(sinew::check_source(src).diagnostics.is_empty());
-    let src = "model gate\ninput x 2\noutput y 1 sigmoid\nloss cross_entropy\nbudget flash 11 B ram 1283 B\n";
+    let src = "model gate\ninput x 2 unscaled\noutput y 1 sigmoid\nloss cross_entropy\nbudget flash 11 B ram 1283 B\n";
     let codes: Vec<_> = sinew::check_source(src)
         .diagnostics
         .iter()

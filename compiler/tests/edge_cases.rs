@@ -369,7 +369,7 @@ fn dead_relu_units_get_exactly_zero_gradient_and_stay_put() {
 fn a_zero_penalty_is_exactly_no_penalty() {
     // Behaviour: `penalty l2 0` and `penalty l1 0` are accepted with warning W0104 and give
     // the same cost and gradient, bit for bit, as `penalty none`.
-    let base = "model z\nscalar f64\ninput x 3\nlayer h 4 tanh\noutput y 2 identity\n\
+    let base = "model z\nscalar f64\ninput x 3 unscaled\nlayer h 4 tanh\noutput y 2 identity\n\
                 loss squared_error\n";
     let none = model(&format!("{base}penalty none\n"));
     let xs = [0.5, -1.0, 2.0, 1.5, 0.25, -0.75];

@@ -472,7 +472,7 @@ fn enormous_widths_are_refused_before_any_allocation() {
     // past 64 bits are refused as S0402, and nothing is allocated for either.
     std::fs::write(
         dir.join("enormous.sinew"),
-        "model enormous\ninput x 65535\nlayer a 65535 relu\nlayer b 65535 relu\n\
+        "model enormous\ninput x 65535 unscaled\nlayer a 65535 relu\nlayer b 65535 relu\n\
          layer c 99999999999999999999999999999 relu\noutput y 65535 softmax\nloss cross_entropy\n",
     )
     .unwrap();
@@ -493,7 +493,7 @@ fn enormous_widths_are_refused_before_any_allocation() {
     );
     assert_small_peak(&o, "enormous widths");
     // Without the over-long width the total is what is refused.
-    let no_c = "model enormous\ninput x 65535\nlayer a 65535 relu\nlayer b 65535 relu\n\
+    let no_c = "model enormous\ninput x 65535 unscaled\nlayer a 65535 relu\nlayer b 65535 relu\n\
                 output y 65535 softmax\nloss cross_entropy\n";
     std::fs::write(dir.join("enormous.sinew"), no_c).unwrap();
     let codes: Vec<&str> = sinew::check_source(no_c)

@@ -115,7 +115,7 @@ fn spec_text(name: &str, net: &Value) -> String {
     let std = if net["standardize"].as_bool() == Some(true) {
         " standardize"
     } else {
-        ""
+        " unscaled"
     };
     s += &format!("input x {}{std}\n", net["inputs"]);
     let layers = net["layers"].as_array().expect("layers");

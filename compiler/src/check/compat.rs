@@ -1,9 +1,10 @@
 //! Compatibility of layers, output and loss (`S05xx`), and the warnings about legal but
-//! suspicious architectures (`W0101`, `W0102`).
+//! suspicious architectures (`W0101`, `W0102`) and about inputs fed without scaling (`W0105`).
 
 use super::shapes::Widths;
 use super::Parts;
 use crate::diag::{Code, Diagnostic};
+use crate::span::Span;
 use crate::syntax::ast::*;
 
 /// Sigmoid hidden layers in a row beyond this count draw a warning.
@@ -22,6 +23,27 @@ fn act_word(a: &ActivationKind) -> &'static str {
 
 /// Checks softmax placement, the loss against the output activation, and the classes list.
 pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnostic>) {
+    if let Some(input) = &parts.input {
+        if !input.standardize && !input.unscaled {
+            diags.push(
+                Diagnostic::warning(
+                    Code::W0105,
+                    format!(
+                        "input `{}` is fed to the network without scaling",
+                        input.name.node
+                    ),
+                    Span::new(input.name.span.start, input.width.span.end),
+                )
+                .label("neither `standardize` nor `unscaled`")
+                .with_help(
+                    "features on very different scales slow training and can leave a model \
+                     predicting the majority class; add `standardize` (the model then scales \
+                     each feature by the training data's mean and standard deviation), or \
+                     `unscaled` when the features are already on comparable scales",
+                ),
+            );
+        }
+    }
     for layer in &parts.layers {
         if layer.activation.node == ActivationKind::Softmax {
             diags.push(
@@ -221,7 +243,7 @@ mod tests {
     use crate::diag::Code;
 
     fn codes(output: &str, loss: &str) -> Vec<Code> {
-        let src = format!("model m\ninput x 4\n{output}\nloss {loss}\n");
+        let src = format!("model m\ninput x 4 unscaled\n{output}\nloss {loss}\n");
         check_source(&src)
             .diagnostics
             .iter()

@@ -38,7 +38,7 @@ impl Checked {
     /// # Examples
     /// ```
     /// let checked = sinew::check_source(
-    ///     "model demo\ninput x 0\noutput y 1 sigmoid\nloss cross_entropy\n",
+    ///     "model demo\ninput x 0 unscaled\noutput y 1 sigmoid\nloss cross_entropy\n",
     /// );
     /// assert!(checked.has_errors());
     /// assert!(checked.model.is_none());
@@ -55,7 +55,7 @@ impl Checked {
 /// # Examples
 /// ```
 /// let checked = sinew::check_source(
-///     "model demo\ninput x 2\noutput y 1 sigmoid\nloss cross_entropy\n",
+///     "model demo\ninput x 2 unscaled\noutput y 1 sigmoid\nloss cross_entropy\n",
 /// );
 /// let model = checked.model.expect("a valid spec");
 /// assert_eq!(model.parameters(), 3);
@@ -108,7 +108,7 @@ fn cap(mut diags: Vec<Diagnostic>) -> Vec<Diagnostic> {
 ///
 /// # Examples
 /// ```
-/// let (spec, _) = sinew::syntax::parse("model demo\ninput x 2\noutput y 1 softmax\n");
+/// let (spec, _) = sinew::syntax::parse("model demo\ninput x 2 unscaled\noutput y 1 softmax\n");
 /// let checked = sinew::check::check(&spec);
 /// let codes: Vec<_> = checked.diagnostics.iter().map(|d| d.code).collect();
 /// assert_eq!(codes, ["S0204", "S0502"]); // no `loss` line; softmax needs 2 units
@@ -163,6 +163,7 @@ pub(crate) struct InputPart<'a> {
     pub name: &'a Name,
     pub width: &'a Integer,
     pub standardize: bool,
+    pub unscaled: bool,
 }
 
 /// The output line's parts.
@@ -261,11 +262,13 @@ fn sections<'a>(spec: &'a Spec, diags: &mut Vec<Diagnostic>) -> Parts<'a> {
                 name,
                 width,
                 standardize,
+                unscaled,
             } => {
                 parts.input = Some(InputPart {
                     name,
                     width,
                     standardize: standardize.is_some(),
+                    unscaled: unscaled.is_some(),
                 })
             }
             Item::Layer(layer) => parts.layers.push(layer),
@@ -473,13 +476,14 @@ mod tests {
             .collect()
     }
 
-    const OK: &str = "model m\ninput x 2\noutput y 1 sigmoid\nloss cross_entropy\n";
+    const OK: &str = "model m\ninput x 2 unscaled\noutput y 1 sigmoid\nloss cross_entropy\n";
 
     #[test]
     fn a_budget_error_is_reported_with_the_others() {
         // Two unrelated errors (a layer name used twice, a bad rate) and a flash budget far
         // below the model's parameters: all three are reported in one run.
-        let src = "model m\ninput x 2\nlayer h 16 relu\nlayer h 4 relu\noutput y 1 sigmoid\n\
+        let src =
+            "model m\ninput x 2 unscaled\nlayer h 16 relu\nlayer h 4 relu\noutput y 1 sigmoid\n\
                    loss cross_entropy\ntrain sgd rate -1\nbudget flash 8 B\n";
         let found = codes(src);
         assert!(found.contains(&Code::S0701), "{found:?}");

@@ -460,7 +460,9 @@ mod tests {
     }
 
     fn net(input: &str, output: &str) -> String {
-        format!("model m\ninput x {input}\noutput y {output} identity\nloss squared_error\n")
+        format!(
+            "model m\ninput x {input} unscaled\noutput y {output} identity\nloss squared_error\n"
+        )
     }
 
     #[test]
@@ -486,7 +488,7 @@ mod tests {
     fn parameter_count_uses_wide_arithmetic() {
         // Every width at the maximum: 65535 * 65535 + 65535 per layer, about 4.3e9 each; the
         // sum over many layers does not overflow.
-        let mut src = String::from("model m\ninput x 65535\n");
+        let mut src = String::from("model m\ninput x 65535 unscaled\n");
         for i in 0..50 {
             src.push_str(&format!("layer h{i} 65535 relu\n"));
         }

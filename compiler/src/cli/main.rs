@@ -245,6 +245,14 @@ fn train(a: &TrainArgs) -> Done {
     }
     commands::save_weights(&outcome.weights, &a.output)?;
     print!("{}", sinew::summary::training(model, &outcome));
+    for finding in &outcome.advice {
+        eprintln!(
+            "{}: warning[{}]: {finding}\n  = help: {}",
+            a.data.display(),
+            finding.code(),
+            finding.help()
+        );
+    }
     println!("wrote {}", a.output.display());
     if let Some(plot) = &a.plot {
         println!("plotted {}", plot.display());

@@ -100,7 +100,7 @@ impl Section {
         match self {
             Section::Model => "model NAME",
             Section::Scalar => "scalar f32|f64",
-            Section::Input => "input NAME WIDTH [standardize]",
+            Section::Input => "input NAME WIDTH [standardize | unscaled]",
             Section::Layer => "layer NAME WIDTH ACTIVATION",
             Section::Output => "output NAME WIDTH ACTIVATION [classes A, B, ...]",
             Section::Loss => "loss cross_entropy|squared_error",
@@ -130,7 +130,7 @@ pub enum Item {
         /// The type.
         kind: Spanned<ScalarKind>,
     },
-    /// `input NAME WIDTH [standardize]`
+    /// `input NAME WIDTH [standardize | unscaled]`
     Input {
         /// The input's name.
         name: Name,
@@ -138,6 +138,8 @@ pub enum Item {
         width: Integer,
         /// Where `standardize` was written, if it was.
         standardize: Option<Span>,
+        /// Where `unscaled` was written, if it was: the features are fed as they are on purpose.
+        unscaled: Option<Span>,
     },
     /// `layer NAME WIDTH ACTIVATION`
     Layer(LayerDecl),

@@ -145,11 +145,20 @@ fn build_statement(stmt: Pair<'_, Rule>, off: usize) -> Option<Statement> {
         Rule::input_stmt => {
             let name = text(&it.next()?, off);
             let width = text(&it.next()?, off);
-            let standardize = it.next().map(|p| span_of(&p, off));
+            let scaling = it.next();
+            let (mut standardize, mut unscaled) = (None, None);
+            if let Some(p) = scaling {
+                if p.as_rule() == Rule::kw_unscaled {
+                    unscaled = Some(span_of(&p, off));
+                } else {
+                    standardize = Some(span_of(&p, off));
+                }
+            }
             Item::Input {
                 name,
                 width,
                 standardize,
+                unscaled,
             }
         }
         Rule::layer_stmt => Item::Layer(build_layer(&mut it, off)?),
@@ -377,6 +386,7 @@ fn expectation(rule: Rule) -> Option<Want> {
         Rule::scalar_stmt | Rule::kw_scalar => Word("scalar"),
         Rule::input_stmt | Rule::kw_input => Word("input"),
         Rule::kw_standardize => Word("standardize"),
+        Rule::kw_unscaled => Word("unscaled"),
         Rule::layer_stmt | Rule::kw_layer => Word("layer"),
         Rule::output_stmt | Rule::kw_output => Word("output"),
         Rule::classes | Rule::kw_classes => Word("classes"),
@@ -747,11 +757,12 @@ fn syntax_error(
 }
 
 /// Every fixed word of the language, for "expected X after `rate`" messages.
-const KEYWORDS: [&str; 31] = [
+const KEYWORDS: [&str; 32] = [
     "model",
     "scalar",
     "input",
     "standardize",
+    "unscaled",
     "layer",
     "output",
     "classes",

@@ -5,12 +5,14 @@
 //! - [`init`]: the spec's initial parameters;
 //! - [`train`]: read, split, standardize, train and evaluate;
 //! - [`evaluate`]: figures and the batch gradient on a data file;
-//! - [`gradcheck`]: backprop against central differences.
+//! - [`gradcheck`]: backprop against central differences;
+//! - [`advice`]: findings after training that do not stop it (data scales, unpredicted classes).
 //!
 //! Each workflow dispatches once on the model's scalar type and then runs the engine in that
 //! type, so what the workstation computes is what the device computes. Loading a weights file
 //! checked against a spec is [`crate::weights::Weights::load_checked`].
 
+pub mod advice;
 pub mod convert;
 pub mod evaluate;
 pub mod gradcheck;

@@ -1,5 +1,6 @@
 //! Training on a data file: read, split, standardize from the training split, train, evaluate.
 
+use super::advice::{self, Advice};
 use super::convert::{params_of, samples, weights_of};
 use super::WorkflowError;
 use crate::data::{self, Dataset};
@@ -39,6 +40,9 @@ pub struct TrainOutcome {
     pub validation: Option<eval::Evaluation>,
     /// Wall time of the training loop.
     pub elapsed: Duration,
+    /// Findings that did not stop training (`W02xx`): the data's scales, classes never
+    /// predicted.
+    pub advice: Vec<Advice>,
 }
 
 /// Reads the data, splits it, sets the standardization from the training split, trains, and
@@ -64,10 +68,19 @@ pub fn train(
             .map(|f| f.to_string_lossy().into_owned())
             .unwrap_or_default()
     };
-    match model.scalar {
+    let mut outcome = match model.scalar {
         Scalar::F32 => train_t::<f32>(model, req, &tr, va.as_ref(), file_name, hash, on_epoch),
         Scalar::F64 => train_t::<f64>(model, req, &tr, va.as_ref(), file_name, hash, on_epoch),
+    }?;
+    if !model.input.standardize {
+        outcome.advice.extend(advice::scales(&tr));
     }
+    let judged = match &outcome.validation {
+        Some(v) => advice::never_predicted(v, "validation"),
+        None => advice::never_predicted(&outcome.train, "training"),
+    };
+    outcome.advice.extend(judged);
+    Ok(outcome)
 }
 
 #[allow(clippy::too_many_arguments)]
@@ -117,5 +130,6 @@ fn train_t<T: Real + Send + Sync>(
         train: train_eval,
         validation,
         elapsed,
+        advice: Vec::new(),
     })
 }
