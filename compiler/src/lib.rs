@@ -1,7 +1,7 @@
 //! sinew: a compiler for small neural networks.
 //!
 //! ```text
-//! spec text --(pest, grammar/sinew.pest)--> syntax::Spec (AST with byte spans)
+//! spec text --(pest, compiler/grammar/sinew.pest)--> syntax::Spec (AST with byte spans)
 //! syntax::Spec --(check)--> ir::Model + diagnostics (all findings at once)
 //! ir::Model --> emit   : Rust source (quote -> syn::File -> prettyplease) calling sinew-runtime
 //!           --> report : parameters, flash bytes, RAM bytes, multiply-adds
@@ -22,6 +22,8 @@ pub mod diag;
 pub mod engine;
 pub mod fsutil;
 pub mod ir;
+#[cfg(feature = "cli")]
+pub mod new_firmware;
 pub mod pack;
 pub mod plan;
 #[cfg(feature = "cli")]

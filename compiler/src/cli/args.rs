@@ -94,6 +94,27 @@ pub enum Command {
         #[arg(short, long)]
         output: PathBuf,
     },
+    /// Write a ready no_std firmware crate around a spec: Cargo.toml, build.rs, src/lib.rs and
+    /// models/ with a copy of the spec (and of the weights).
+    NewFirmware {
+        /// Folder of the new crate: created, or empty; its last component names the package.
+        #[arg(value_name = "DIR")]
+        dir: PathBuf,
+        /// Spec file (must check without errors).
+        #[arg(long, value_name = "SPEC")]
+        spec: PathBuf,
+        /// Trained weights to bake in as `TRAINED` (checked against the spec).
+        #[arg(long, value_name = "W.json")]
+        weights: Option<PathBuf>,
+        /// Path dependencies on this sinew checkout (the folder holding compiler/ and runtime/)
+        /// instead of the one this binary was built from.
+        #[arg(long, value_name = "DIR", conflicts_with = "registry")]
+        sinew_path: Option<PathBuf>,
+        /// Registry dependencies ("0.1") even when the checkout this binary was built from
+        /// exists.
+        #[arg(long)]
+        registry: bool,
+    },
     /// Compare backprop with central finite differences, layer by layer.
     Gradcheck {
         /// Spec file.

@@ -12,6 +12,7 @@ use sinew::commands::{self, CommandError, SpecFile};
 use sinew::diag::render;
 use sinew::engine::gradcheck::Verdict;
 use sinew::engine::train::{EpochReport, Method, TrainOptions};
+use sinew::new_firmware::{self as firmware, Dependencies, Firmware, Shape};
 use sinew::summary::{table, FileSummary};
 use sinew::weights::Weights;
 use sinew::workflow::{self, GradcheckOptions, TrainRequest};
@@ -51,6 +52,19 @@ fn main() -> ExitCode {
             weights,
             output,
         } => pack(&spec, &weights, &output),
+        Command::NewFirmware {
+            dir,
+            spec,
+            weights,
+            sinew_path,
+            registry,
+        } => new_firmware(
+            &dir,
+            &spec,
+            weights.as_deref(),
+            sinew_path.as_deref(),
+            registry,
+        ),
         Command::Gradcheck {
             spec,
             weights,
@@ -316,5 +330,63 @@ fn pack(spec: &Path, weights: &Path, output: &Path) -> Done {
         model.fingerprint(),
         p.crc32
     );
+    Ok(None)
+}
+
+fn new_firmware(
+    dir: &Path,
+    spec_path: &Path,
+    weights: Option<&Path>,
+    sinew_path: Option<&Path>,
+    registry: bool,
+) -> Done {
+    // Everything is checked and rendered before anything is written.
+    firmware::check_target(dir)?;
+    let package = firmware::package_name(dir)?;
+    let deps = match (sinew_path, registry) {
+        (Some(root), _) => Dependencies::checkout(root)?,
+        (None, true) => Dependencies::Registry,
+        (None, false) => Dependencies::of_this_build(),
+    };
+    let spec = SpecFile::read(spec_path)?;
+    print_diagnostics(&spec);
+    let Some(model) = &spec.checked.model else {
+        let n = spec
+            .checked
+            .diagnostics
+            .iter()
+            .filter(|d| d.is_error())
+            .count();
+        let s = if n == 1 { "" } else { "s" };
+        eprintln!("error: {} has {n} error{s}; nothing was written", spec.name);
+        return Ok(Some(ExitStatus::Spec));
+    };
+    let weights = match weights {
+        None => None,
+        Some(w) => {
+            Weights::load_checked(w, model)?;
+            let bytes = sinew::fsutil::read_limited(w, sinew::fsutil::MAX_WEIGHTS_BYTES).map_err(
+                |source| CommandError::Read {
+                    path: w.to_path_buf(),
+                    source,
+                },
+            )?;
+            Some(bytes)
+        }
+    };
+    let fw = Firmware::new(&package, model, &spec.src, weights.as_deref(), &deps);
+    fw.write(dir)?;
+    let exposes = match fw.shape {
+        Shape::Classes => "decide",
+        Shape::Outputs => "predict",
+    };
+    println!(
+        "wrote {} (package {}, model {}: `{exposes}` and `learn`; sinew from {})",
+        dir.display(),
+        fw.package,
+        model.name(),
+        deps.describe()
+    );
+    println!("build it with: cd {} && cargo build", dir.display());
     Ok(None)
 }

@@ -11,11 +11,11 @@ use crate::text::{quote, suggest};
 use pest::iterators::Pair;
 use pest::Parser;
 
-/// The parser generated from `grammar/sinew.pest` (private: rule names never reach users).
+/// The parser generated from `compiler/grammar/sinew.pest` (private: rule names never reach users).
 mod generated {
     #![allow(missing_docs)]
     #[derive(pest_derive::Parser)]
-    #[grammar = "../../grammar/sinew.pest"]
+    #[grammar = "grammar/sinew.pest"]
     pub struct SpecParser;
 }
 pub(crate) use generated::{Rule, SpecParser};

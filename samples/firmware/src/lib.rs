@@ -2,8 +2,9 @@
 //! pressure features and keeps learning on the device from labelled samples a technician
 //! confirms (invented scenario).
 //!
-//! The network is generated at build time by sinew from `samples/pump_health.sinew` (see
-//! `build.rs`); this crate is `no_std`, allocates nothing and has no `unsafe`. Everything large is
+//! The network is generated at build time by sinew from `models/pump_health.sinew` (see
+//! `build.rs`; a copy of `samples/pump_health.sinew`, checked equal to it by the workspace's
+//! tests); this crate is `no_std`, allocates nothing and has no `unsafe`. Everything large is
 //! held in one [`PumpMonitor`], which a firmware keeps in a `static` (its constructor is a
 //! `const fn`), so no parameter array is ever copied through the stack.
 //!
