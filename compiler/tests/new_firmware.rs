@@ -204,7 +204,7 @@ fn refusals_write_nothing() {
     let bad = scratch.join("bad.sinew");
     std::fs::write(
         &bad,
-        "model door\ninput x 0\noutput y 1 sigmoid\nloss cross_entropy\n",
+        "model door\ninput x 0 unscaled\noutput y 1 sigmoid\nloss cross_entropy\n",
     )
     .unwrap();
     let b = bad.to_string_lossy().into_owned();
