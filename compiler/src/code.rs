@@ -48,6 +48,8 @@ codes! {
     S0105,
     /// An invisible character (no-break space, control character, zero-width space) between words.
     S0106,
+    /// `x` where it does not belong: not between two sizes (`100 x 6`), or sizes written without spaces (`100x6`).
+    S0107,
     /// No `model` line.
     S0201,
     /// No `input` line.
@@ -72,12 +74,24 @@ codes! {
     S0305,
     /// A class name is listed twice.
     S0306,
-    /// A width of 0.
+    /// A size of 0 (width, steps, rows, columns, channels, filters, kernel or window).
     S0401,
-    /// A width above 65535.
+    /// A size above 65535.
     S0402,
     /// More than 16 Mi parameters in total.
     S0403,
+    /// A kernel larger than its (padded) input.
+    S0404,
+    /// A stride of 0.
+    S0405,
+    /// A pooling window larger than its input.
+    S0406,
+    /// `conv`, `depthwise` or `pool` on a vector (a vector input, or after a dense layer).
+    S0407,
+    /// A map (the input, or what a layer writes) of more than 1 Mi values.
+    S0408,
+    /// A shape with the wrong number of sizes (an input of more than 3, a kernel that does not fit the input's rank).
+    S0409,
     /// Softmax on a hidden layer.
     S0501,
     /// A softmax output with 1 unit.

@@ -431,8 +431,13 @@ fn read_from<R: Read>(
             out.name
         )));
     } else {
+        // A window or a grid says how its columns add up: `100 x 6 = 600 input columns`.
+        let n_in_words = match model.input.shape.rank {
+            1 => n_in.to_string(),
+            _ => format!("{} = {n_in}", model.input.shape.words()),
+        };
         let outputs = format!(
-            "{} ({n_in} input {} for `{}`, then {n_out} output {} for `{}`)",
+            "{} ({n_in_words} input {} for `{}`, then {n_out} output {} for `{}`)",
             n_in + n_out,
             plural(n_in, "column", "columns"),
             model.input.name,
@@ -443,7 +448,7 @@ fn read_from<R: Read>(
             format!("{} or a `label` column)", outputs.trim_end_matches(')'))
         } else if classifier {
             format!(
-                "{outputs} or {} ({n_in} input columns, then a `label` column)",
+                "{outputs} or {} ({n_in_words} input columns, then a `label` column)",
                 n_in + 1
             )
         } else {
@@ -884,6 +889,42 @@ pub fn mean_std(ds: &Dataset) -> (Vec<f64>, Vec<f64>) {
     (mean, std)
 }
 
+/// [`mean_std`] for a window or a grid of `channels` channels: one mean and one standard
+/// deviation per channel over every position of every sample (the value at flat index `i`
+/// belongs to channel `i mod channels`), repeated for every position so that the result has one
+/// entry per input value, as the model's scaling holds it. Same two passes in sample order, then
+/// position order; a constant channel gets std 1.
+pub fn mean_std_channels(ds: &Dataset, channels: usize) -> (Vec<f64>, Vec<f64>) {
+    let width = ds.input_names.len();
+    let c = channels.max(1);
+    let n = (ds.len() * width.div_ceil(c)) as f64;
+    let mut mean = vec![0.0; c];
+    let mut var = vec![0.0; c];
+    if ds.len() > 0 {
+        for row in &ds.inputs {
+            for (i, x) in row.iter().enumerate() {
+                mean[i % c] += x;
+            }
+        }
+        for m in &mut mean {
+            *m /= n;
+        }
+        for row in &ds.inputs {
+            for (i, x) in row.iter().enumerate() {
+                let d = x - mean[i % c];
+                var[i % c] += d * d;
+            }
+        }
+    }
+    let std: Vec<f64> = var
+        .iter()
+        .map(|v| if ds.len() > 0 { (v / n).sqrt() } else { 0.0 })
+        .map(|s| if s > 0.0 { s } else { 1.0 })
+        .collect();
+    let spread = |v: &[f64]| (0..width).map(|i| v[i % c]).collect::<Vec<f64>>();
+    (spread(&mean), spread(&std))
+}
+
 /// Per-feature mean and population standard deviation as computed, a constant feature keeping
 /// std 0 (the figures [`mean_std`] starts from; `workflow::advice` judges the data's scales by
 /// them). With no samples every mean and std is 0.
@@ -922,17 +963,8 @@ mod tests {
         Model {
             name: "m".into(),
             scalar: Scalar::F64,
-            input: Input {
-                name: "x".into(),
-                width: 1,
-                standardize: false,
-            },
-            layers: vec![Layer {
-                name: "y".into(),
-                width: 1,
-                fan_in: 1,
-                activation: Activation::Identity,
-            }],
+            input: Input::vector("x", 1, false),
+            layers: vec![Layer::dense("y", 1, 1, Activation::Identity)],
             classes: None,
             loss: Loss::SquaredError,
             penalty: Penalty::None,

@@ -46,10 +46,16 @@ pub const TRAINING_FRAMES_F32: u64 = 1792;
 pub struct LayerReport {
     /// Layer name.
     pub name: String,
-    /// Units.
+    /// What it computes: `dense`, `conv`, `depthwise`, `pool max`, `pool average`.
+    pub kind: &'static str,
+    /// Rows of its weights: units, filters or channels (0 for a pooling).
     pub width: usize,
-    /// Units feeding it.
+    /// Columns of its weights: the values feeding one unit (0 for a pooling).
     pub fan_in: usize,
+    /// The shape it writes, as the spec writes shapes (`48 x 8`).
+    pub shape: String,
+    /// Values it writes per sample.
+    pub size: usize,
     /// Activation keyword.
     pub activation: &'static str,
     /// `width * fan_in`.
@@ -58,7 +64,9 @@ pub struct LayerReport {
     pub biases: u64,
     /// `weights + biases`.
     pub parameters: u64,
-    /// Multiply-adds in the forward pass: `width * fan_in`.
+    /// Multiply-adds in the forward pass: `width * fan_in` for a dense layer; for a
+    /// convolution, the taps inside the input summed over the output values
+    /// ([`crate::ir::Layer::macs`]); none for a pooling.
     pub macs: u64,
 }
 
@@ -111,13 +119,16 @@ impl Report {
                 let weights = (l.width * l.fan_in) as u64;
                 LayerReport {
                     name: l.name.clone(),
+                    kind: l.kind.words(),
                     width: l.width,
                     fan_in: l.fan_in,
+                    shape: l.output.words(),
+                    size: l.size(),
                     activation: l.activation.keyword(),
                     weights,
                     biases: l.width as u64,
                     parameters: weights + l.width as u64,
-                    macs: weights,
+                    macs: l.macs(),
                 }
             })
             .collect();
@@ -127,7 +138,7 @@ impl Report {
         } else {
             0
         };
-        let widths: u64 = layers.iter().map(|l| l.width as u64).sum();
+        let widths: u64 = layers.iter().map(|l| l.size as u64).sum();
         let out = model.output().width as u64;
         let optimizer_copies = match model.train.optimizer {
             Optimizer::Sgd { momentum: 0.0, .. } => 0,
@@ -184,23 +195,14 @@ mod tests {
     use crate::ir::*;
 
     fn layer(name: &str, width: usize, fan_in: usize, activation: Activation) -> Layer {
-        Layer {
-            name: name.into(),
-            width,
-            fan_in,
-            activation,
-        }
+        Layer::dense(name, width, fan_in, activation)
     }
 
     fn net_6_10_8_3(scalar: Scalar, standardize: bool, optimizer: Optimizer) -> Model {
         Model {
             name: "pump_health".into(),
             scalar,
-            input: Input {
-                name: "features".into(),
-                width: 6,
-                standardize,
-            },
+            input: Input::vector("features", 6, standardize),
             layers: vec![
                 layer("hidden1", 10, 6, Activation::Sigmoid),
                 layer("hidden2", 8, 10, Activation::Tanh),

@@ -121,39 +121,67 @@ fn activation_text(a: Activation) -> String {
 /// The compact human table: one row per layer, then the report figures and the settings.
 pub fn table(model: &Model) -> String {
     let r = Report::of(model);
-    let mut rows: Vec<[String; 5]> = vec![[
-        "layer".into(),
-        "units".into(),
-        "activation".into(),
-        "parameters".into(),
-        "mult-adds".into(),
-    ]];
-    rows.push([
-        format!("{} (input)", model.input.name),
-        model.input.width.to_string(),
-        if model.input.standardize {
-            "standardize".into()
-        } else {
-            "-".into()
-        },
-        "-".into(),
-        "-".into(),
-    ]);
-    for (l, lr) in model.layers.iter().zip(&r.layers) {
-        rows.push([
-            l.name.clone(),
-            l.width.to_string(),
-            activation_text(l.activation),
-            lr.parameters.to_string(),
-            lr.macs.to_string(),
+    // A model with a window or a grid shows each layer's kind and the shape it writes
+    // (`edges  conv  48 x 8`); a dense model keeps the units column.
+    let shaped = !model.input.shape.is_vector();
+    let mut rows: Vec<Vec<String>> = Vec::new();
+    let head: &[&str] = if shaped {
+        &["layer", "kind", "shape", "activation", "parameters", "mult-adds"]
+    } else {
+        &["layer", "units", "activation", "parameters", "mult-adds"]
+    };
+    rows.push(head.iter().map(|h| h.to_string()).collect());
+    let scaling = if model.input.standardize {
+        "standardize".to_string()
+    } else {
+        "-".to_string()
+    };
+    if shaped {
+        rows.push(vec![
+            format!("{} (input)", model.input.name),
+            "-".into(),
+            model.input.shape.words(),
+            scaling,
+            "-".into(),
+            "-".into(),
+        ]);
+    } else {
+        rows.push(vec![
+            format!("{} (input)", model.input.name),
+            model.input.width.to_string(),
+            scaling,
+            "-".into(),
+            "-".into(),
         ]);
     }
-    let mut widths = [0usize; 5];
+    for (l, lr) in model.layers.iter().zip(&r.layers) {
+        let mut row = vec![l.name.clone()];
+        if shaped {
+            row.push(l.kind.words().to_string());
+            row.push(l.output.words());
+        } else {
+            row.push(l.width.to_string());
+        }
+        let act = match l.kind {
+            crate::ir::LayerKind::Pool { .. } => "-".to_string(),
+            _ => activation_text(l.activation),
+        };
+        row.extend([act, lr.parameters.to_string(), lr.macs.to_string()]);
+        rows.push(row);
+    }
+    let n = head.len();
+    let mut widths = vec![0usize; n];
     for row in &rows {
         for (w, cell) in widths.iter_mut().zip(row) {
             *w = (*w).max(cell.chars().count());
         }
     }
+    // Text columns to the left, numbers to the right.
+    let right: &[bool] = if shaped {
+        &[false, false, true, false, true, true]
+    } else {
+        &[false, true, false, true, true]
+    };
     let mut s = String::new();
     let _ = writeln!(
         s,
@@ -163,22 +191,15 @@ pub fn table(model: &Model) -> String {
         model.fingerprint()
     );
     for (i, row) in rows.iter().enumerate() {
-        let _ = writeln!(
-            s,
-            "  {:<w0$}  {:>w1$}  {:<w2$}  {:>w3$}  {:>w4$}",
-            row[0],
-            row[1],
-            row[2],
-            row[3],
-            row[4],
-            w0 = widths[0],
-            w1 = widths[1],
-            w2 = widths[2],
-            w3 = widths[3],
-            w4 = widths[4]
-        );
+        let cells: Vec<String> = row
+            .iter()
+            .zip(&widths)
+            .zip(right)
+            .map(|((c, &w), &r)| if r { format!("{c:>w$}") } else { format!("{c:<w$}") })
+            .collect();
+        let _ = writeln!(s, "  {}", cells.join("  ").trim_end());
         if i == 0 {
-            let total: usize = widths.iter().sum::<usize>() + 8;
+            let total: usize = widths.iter().sum::<usize>() + 2 * (n - 1);
             let _ = writeln!(s, "  {}", "-".repeat(total));
         }
     }

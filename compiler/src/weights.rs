@@ -267,9 +267,11 @@ impl Weights {
                 Scalar::F32 => v.into_iter().map(|x| f64::from(x as f32)).collect(),
             }
         };
+        // A pooling has no parameters and no entry in the file.
         let layers = layers
             .into_iter()
             .enumerate()
+            .filter(|(i, _)| model.layers.get(*i).is_none_or(|l| l.parameters() > 0))
             .map(
                 |(
                     i,
@@ -538,9 +540,19 @@ impl Weights {
     /// to make a [`crate::emit::Trained`], so the emitter never checks shapes again.
     pub fn fit<'m>(&self, model: &'m Model) -> Result<crate::emit::Trained<'m>, WeightsError> {
         self.check_against(model)?;
+        // One entry per layer of the model: a pooling's is empty.
+        let mut file = self.layers_flat().into_iter();
+        let layers = model
+            .layers
+            .iter()
+            .map(|l| match l.parameters() {
+                0 => FlatLayer::default(),
+                _ => file.next().unwrap_or_default(),
+            })
+            .collect();
         Ok(crate::emit::Trained {
             model,
-            layers: self.layers_flat(),
+            layers,
             standardization: self.standardization.clone(),
         })
     }
@@ -599,19 +611,22 @@ impl Weights {
                 ),
             ));
         }
-        if self.layers.len() != model.layers.len() {
-            let names: Vec<&str> = model.layers.iter().map(|l| l.name.as_str()).collect();
+        // Layers with parameters: a pooling has no entry.
+        let layers: Vec<&crate::ir::Layer> =
+            model.layers.iter().filter(|l| l.parameters() > 0).collect();
+        if self.layers.len() != layers.len() {
+            let names: Vec<&str> = layers.iter().map(|l| l.name.as_str()).collect();
             return Err(err(
                 Code::F08,
                 format!(
-                    "the file has {} layers, the spec declares {} ({})",
+                    "the file has {} layers, the spec declares {} with parameters ({})",
                     self.layers.len(),
-                    model.layers.len(),
+                    layers.len(),
                     names.join(", ")
                 ),
             ));
         }
-        for (i, (fl, ml)) in self.layers.iter().zip(&model.layers).enumerate() {
+        for (i, (fl, ml)) in self.layers.iter().zip(layers.iter().copied()).enumerate() {
             if fl.name != ml.name {
                 return Err(err(
                     Code::F09,

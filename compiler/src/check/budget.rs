@@ -115,7 +115,7 @@ pub(crate) fn check(model: &Model, parts: &Parts<'_>, diags: &mut Vec<Diagnostic
                 .max_by_key(|(l, _)| l.parameters);
             if let Some((l, d_)) = biggest {
                 d = d.with_secondary(
-                    d_.width.span,
+                    d_.size_span(),
                     format!(
                         "layer `{}` holds {} parameters: {}",
                         l.name,
@@ -157,15 +157,15 @@ pub(crate) fn check(model: &Model, parts: &Parts<'_>, diags: &mut Vec<Diagnostic
                 .layers
                 .iter()
                 .zip(&decls)
-                .max_by_key(|(l, _)| l.width);
+                .max_by_key(|(l, _)| l.size);
             if let Some((l, d_)) = widest {
                 d = d.with_secondary(
-                    d_.width.span,
+                    d_.size_span(),
                     format!(
                         "layer `{}` keeps {} values: {}",
                         l.name,
-                        l.width,
-                        human_bytes(l.width as u64 * sb)
+                        l.size,
+                        human_bytes(l.size as u64 * sb)
                     ),
                 );
             }
@@ -177,7 +177,7 @@ pub(crate) fn check(model: &Model, parts: &Parts<'_>, diags: &mut Vec<Diagnostic
             } else {
                 String::new()
             };
-            let values: usize = model.layers.iter().map(|l| l.width).sum();
+            let values: usize = model.layers.iter().map(|l| l.size()).sum();
             diags.push(d.with_help(format!(
                 "inference keeps one buffer per layer ({values} {scalar} values){std}, {} in \
                  all, and {} of call frames; raise the ram budget to at least {}, or make the \

@@ -32,7 +32,7 @@ pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnost
                         "input `{}` is fed to the network without scaling",
                         input.name.node
                     ),
-                    Span::new(input.name.span.start, input.width.span.end),
+                    Span::new(input.name.span.start, input.shape.span.end),
                 )
                 .label("neither `standardize` nor `unscaled`")
                 .with_help(
@@ -101,7 +101,7 @@ pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnost
             Diagnostic::error(
                 Code::S0502,
                 format!("softmax output `{}` has 1 unit", out.name.node),
-                out.width.span,
+                out.size_span(),
             )
             .label("softmax needs at least 2 units")
             .with_secondary(out.activation.span, "softmax here")
@@ -231,7 +231,7 @@ pub(crate) fn check(parts: &Parts<'_>, widths: &Widths, diags: &mut Vec<Diagnost
                 "{found} {}",
                 if found == 1 { "name" } else { "names" }
             ))
-            .with_secondary(out.width.span, secondary)
+            .with_secondary(out.size_span(), secondary)
             .with_help(help),
         );
     }

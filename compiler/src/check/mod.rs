@@ -15,6 +15,7 @@
 
 pub mod budget;
 pub mod compat;
+pub mod geometry;
 pub mod names;
 pub mod shapes;
 
@@ -161,7 +162,7 @@ fn check_all(spec: &Spec) -> Checked {
 #[derive(Debug, Clone, Copy)]
 pub(crate) struct InputPart<'a> {
     pub name: &'a Name,
-    pub width: &'a Integer,
+    pub shape: &'a Dims,
     pub standardize: bool,
     pub unscaled: bool,
 }
@@ -260,13 +261,13 @@ fn sections<'a>(spec: &'a Spec, diags: &mut Vec<Diagnostic>) -> Parts<'a> {
             Item::Scalar { kind } => parts.scalar = Some(kind),
             Item::Input {
                 name,
-                width,
+                shape,
                 standardize,
                 unscaled,
             } => {
                 parts.input = Some(InputPart {
                     name,
-                    width,
+                    shape,
                     standardize: standardize.is_some(),
                     unscaled: unscaled.is_some(),
                 })
@@ -381,7 +382,8 @@ fn provisional(
         scalar,
         input: ir::Input {
             name: input.name.node.clone(),
-            width: widths.input?,
+            width: widths.input?.len(),
+            shape: widths.input?,
             standardize: input.standardize,
         },
         layers,
@@ -403,22 +405,23 @@ fn assemble(
     activation: impl Fn(usize) -> Option<ir::Activation>,
 ) -> Option<(Vec<ir::Layer>, ir::Scalar)> {
     let output = parts.output?;
-    let mut fan_in = widths.input?;
     let decls = parts
         .layers
         .iter()
         .copied()
         .chain(std::iter::once(output.layer));
     let mut layers = Vec::new();
-    for (i, (decl, width)) in decls.zip(&widths.layers).enumerate() {
-        let width = (*width)?;
+    for (i, (decl, r)) in decls.zip(&widths.layers).enumerate() {
+        let r = (*r)?;
         layers.push(ir::Layer {
             name: decl.name.node.clone(),
-            width,
-            fan_in,
+            kind: r.kind,
+            width: r.width,
+            fan_in: r.fan_in,
+            input: r.input,
+            output: r.output,
             activation: activation(i)?,
         });
-        fan_in = width;
     }
     let scalar = match parts.scalar.map(|s| s.node) {
         Some(ScalarKind::F32) => ir::Scalar::F32,
@@ -448,7 +451,8 @@ fn build(
         scalar,
         input: ir::Input {
             name: input.name.node.clone(),
-            width: widths.input?,
+            width: widths.input?.len(),
+            shape: widths.input?,
             standardize: input.standardize,
         },
         layers,

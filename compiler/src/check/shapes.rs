@@ -6,6 +6,7 @@
 //! overflow (a number too long for 64 bits is simply "too large"), and parameter counts use
 //! 128-bit arithmetic.
 
+use super::geometry::{self, Resolved};
 use super::Parts;
 use crate::diag::{Code, Diagnostic};
 use crate::ir::{self, defaults};
@@ -13,7 +14,7 @@ use crate::syntax::ast::*;
 use crate::text::quote;
 
 /// The largest width of the input or a layer.
-pub const MAX_WIDTH: u64 = 65535;
+pub const MAX_WIDTH: u64 = super::geometry::MAX_WIDTH;
 
 /// The largest total number of parameters: 16 Mi.
 pub const MAX_PARAMETERS: u128 = 16 * 1024 * 1024;
@@ -21,20 +22,20 @@ pub const MAX_PARAMETERS: u128 = 16 * 1024 * 1024;
 /// Batches above this size draw a warning.
 pub const LARGE_BATCH: u64 = 1024;
 
-/// Resolved widths; `None` where the width is invalid.
+/// Resolved shapes; `None` where a size is invalid or depends on one that is.
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) struct Widths {
-    /// The input's width.
-    pub input: Option<usize>,
-    /// Each hidden layer's width in order, then the output's (when there is an output line).
-    pub layers: Vec<Option<usize>>,
+    /// The input's shape.
+    pub input: Option<ir::Shape>,
+    /// Each hidden layer's geometry in order, then the output's (when there is an output line).
+    pub layers: Vec<Option<Resolved>>,
 }
 
 impl Widths {
     /// The output's width, if it is there and valid.
     pub fn output(&self, parts: &Parts<'_>) -> Option<usize> {
         parts.output?;
-        self.layers.last().copied().flatten()
+        self.layers.last().copied().flatten().map(|r| r.width)
     }
 }
 
@@ -48,76 +49,58 @@ fn real(n: &Number) -> f64 {
     n.node.parse::<f64>().unwrap_or(f64::NAN)
 }
 
-fn width(w: &Integer, whose: &str, diags: &mut Vec<Diagnostic>) -> Option<usize> {
-    match whole(w) {
-        Some(0) => {
-            diags.push(
-                Diagnostic::error(Code::S0401, format!("{whose} has width 0"), w.span)
-                    .label("0 units")
-                    .with_help("a width is at least 1"),
-            );
-            None
-        }
-        Some(v) if v <= MAX_WIDTH => usize::try_from(v).ok(),
-        _ => {
-            diags.push(
-                Diagnostic::error(
-                    Code::S0402,
-                    format!(
-                        "{whose} has width {}, above the limit of {MAX_WIDTH}",
-                        quote(&w.node)
-                    ),
-                    w.span,
-                )
-                .label("too wide")
-                .with_help(format!("a width is at most {MAX_WIDTH}")),
-            );
-            None
-        }
-    }
-}
-
-/// Checks every width and the total parameter count.
+/// Checks every shape and the total parameter count.
 pub(crate) fn widths(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Widths {
     let input = parts
         .input
-        .and_then(|i| width(i.width, &format!("input `{}`", i.name.node), diags));
+        .and_then(|i| geometry::input(&i.name.node, i.shape, diags));
     let decls: Vec<&LayerDecl> = parts
         .layers
         .iter()
         .copied()
         .chain(parts.output.map(|o| o.layer))
         .collect();
-    let layers: Vec<Option<usize>> = decls
-        .iter()
-        .map(|d| width(&d.width, &format!("layer `{}`", d.name.node), diags))
-        .collect();
+    let mut before = geometry::Before {
+        shape: input,
+        who: parts
+            .input
+            .map_or_else(|| "the input".to_string(), |i| format!("input `{}`", i.name.node)),
+        at: parts.input.map_or_else(Default::default, |i| i.shape.span),
+        decl: None,
+        vector: parts.input.is_some_and(|i| i.shape.sizes.len() == 1),
+    };
+    let mut layers: Vec<Option<Resolved>> = Vec::new();
+    for d in &decls {
+        let r = geometry::layer(d, &before, diags);
+        layers.push(r);
+        before = geometry::Before {
+            shape: r.map(|r| r.output),
+            who: format!("layer `{}`", d.name.node),
+            at: d.size_span(),
+            decl: Some(d),
+            vector: matches!(d.body, LayerBody::Dense { .. }),
+        };
+    }
 
     // Parameters: width * fan_in + width per layer, in u128 so that no sum can overflow.
-    if let Some(mut fan_in) = input {
+    if layers.iter().all(Option::is_some) && !layers.is_empty() {
         let mut total: u128 = 0;
         let mut largest: Option<(u128, &LayerDecl)> = None;
-        let mut complete = true;
-        for (d, w) in decls.iter().zip(&layers) {
-            let Some(w) = *w else {
-                complete = false;
-                break;
-            };
-            let p = (w as u128) * (fan_in as u128) + w as u128;
+        for (d, r) in decls.iter().zip(layers.iter().flatten()) {
+            let p = (r.width as u128) * (r.fan_in as u128) + r.width as u128;
             total += p;
             if largest.is_none_or(|(q, _)| p > q) {
                 largest = Some((p, d));
             }
-            fan_in = w;
         }
-        if let (true, Some((p, d))) = (complete && total > MAX_PARAMETERS, largest) {
+        if let (true, Some((p, d))) = (total > MAX_PARAMETERS, largest) {
             diags.push(
                 Diagnostic::error(
                     Code::S0403,
                     format!(
                         "the model has {total} parameters, above the limit of {MAX_PARAMETERS} (16 Mi)"
                     ),
-                    d.width.span,
+                    d.size_span(),
                 )
                 .label(format!("layer `{}` alone has {p} parameters", d.name.node))
                 .with_help("make the largest layers narrower"),

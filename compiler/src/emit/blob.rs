@@ -12,7 +12,7 @@ use quote::quote;
 /// The fields of `Params` in blob order, as `self.<field>` slices.
 fn fields(cx: &Ctx, mutable: bool) -> Vec<TokenStream> {
     let mut v = Vec::new();
-    for n in &cx.names.layers {
+    for (_, _, n) in cx.param_layers() {
         let w = ident(&n.weights);
         let b = ident(&n.bias);
         if mutable {

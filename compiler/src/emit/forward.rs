@@ -15,7 +15,7 @@ pub(super) fn methods(cx: &Ctx) -> TokenStream {
         _ => " The loss of one sample (no penalty), computed from the output logits.",
     };
     let loss_doc = super::doc(loss_doc);
-    let penalty_sums = cx.names.layers.iter().map(|n| {
+    let penalty_sums = cx.param_layers().map(|(_, _, n)| {
         let w = ident(&n.weights);
         quote!(sum += Self::PENALTY.sum(self.#w.as_flattened());)
     });

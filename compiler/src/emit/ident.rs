@@ -53,6 +53,21 @@ pub struct LayerNames {
     pub logits: String,
     /// Error buffer (a local), e.g. `d_hidden1`.
     pub errors: String,
+    /// For a sliding-window layer: its geometry constant (`EDGES_WINDOW`), and for a
+    /// convolution the constants of its weights' rows and columns (`EDGES_KERNELS`,
+    /// `EDGES_TAPS`).
+    pub window: Option<WindowNames>,
+}
+
+/// The constants of a sliding-window layer.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct WindowNames {
+    /// The `rt::conv::Window` constant.
+    pub geometry: String,
+    /// Rows of the weights: filters (conv) or channels (depthwise).
+    pub kernels: String,
+    /// Columns of the weights: `taps * channels` (conv) or `taps` (depthwise).
+    pub taps: String,
 }
 
 /// Every generated name of one model.
@@ -75,7 +90,14 @@ impl Names {
             .iter()
             .map(|l| {
                 let width_const = unique(&mut taken, l.name.to_ascii_uppercase(), "_UNITS");
+                let upper = l.name.to_ascii_uppercase();
+                let window = l.kind.window().map(|_| WindowNames {
+                    geometry: unique(&mut taken, format!("{upper}_WINDOW"), "_"),
+                    kernels: unique(&mut taken, format!("{upper}_KERNELS"), "_"),
+                    taps: unique(&mut taken, format!("{upper}_TAPS"), "_"),
+                });
                 LayerNames {
+                    window,
                     width_const,
                     weights: format!("{}_weights", l.name),
                     bias: format!("{}_bias", l.name),

@@ -274,6 +274,11 @@ impl<'a> Ctx<'a> {
             .map(|(i, (l, n))| (i, l, n))
     }
 
+    /// The layers with parameters (every kind but pooling), with their names, in order.
+    pub fn param_layers(&self) -> impl Iterator<Item = (usize, &'a Layer, &LayerNames)> + '_ {
+        self.layers().filter(|(_, l, _)| l.parameters() > 0)
+    }
+
     /// Index of the output layer.
     pub fn last(&self) -> usize {
         self.model.layers.len() - 1
@@ -296,12 +301,39 @@ impl<'a> Ctx<'a> {
         }
     }
 
-    /// True when the matrix kernels of layer `i` are unrolled.
+    /// The constant of the rows of layer `i`'s weights (and its biases): its width for a dense
+    /// layer, `<L>_KERNELS` for a convolution.
+    pub fn rows_const(&self, i: usize) -> Ident {
+        match self.names.layers.get(i).and_then(|n| n.window.as_ref()) {
+            Some(w) => ident(&w.kernels),
+            None => self.width_const(i),
+        }
+    }
+
+    /// The constant of the columns of layer `i`'s weights: its fan-in for a dense layer,
+    /// `<L>_TAPS` for a convolution.
+    pub fn cols_const(&self, i: usize) -> Ident {
+        match self.names.layers.get(i).and_then(|n| n.window.as_ref()) {
+            Some(w) => ident(&w.taps),
+            None => self.fan_in_const(i),
+        }
+    }
+
+    /// The geometry constant of layer `i` (a sliding-window layer).
+    pub fn window_const(&self, i: usize) -> Ident {
+        match self.names.layers.get(i).and_then(|n| n.window.as_ref()) {
+            Some(w) => ident(&w.geometry),
+            None => ident("WINDOW"),
+        }
+    }
+
+    /// True when the matrix kernels of layer `i` are unrolled (dense layers only).
     pub fn unrolled_at(&self, i: usize) -> bool {
-        self.model
-            .layers
-            .get(i)
-            .is_some_and(|l| self.unroll_below > 0 && l.width * l.fan_in < self.unroll_below)
+        self.model.layers.get(i).is_some_and(|l| {
+            l.kind == crate::ir::LayerKind::Dense
+                && self.unroll_below > 0
+                && l.width * l.fan_in < self.unroll_below
+        })
     }
 
     /// The scalar type's name as a token (`f32` / `f64`).

@@ -28,21 +28,72 @@ pub(super) fn consts(cx: &Ctx) -> TokenStream {
     let doc_params = super::doc(&doc_params);
     let layers = cx.layers().map(|(i, l, n)| {
         let c = ident(&n.width_const);
-        let w = usize_lit(l.width);
+        let w = usize_lit(l.size());
         let role = if i == cx.last() {
             "the output layer"
         } else {
             "layer"
         };
-        let doc = format!(
-            " Units of {role} `{}` ({}).",
-            l.name,
-            l.activation.keyword()
-        );
+        let doc = match l.kind.window() {
+            None => format!(
+                " Units of {role} `{}` ({}).",
+                l.name,
+                l.activation.keyword()
+            ),
+            Some(_) => format!(
+                " Values written by {role} `{}` ({}, {} {}): a map of {}, row-major, channel fastest.",
+                l.name,
+                l.kind.words(),
+                l.output.words(),
+                l.activation.keyword(),
+                l.output.words()
+            ),
+        };
         let doc = super::doc(&doc);
+        let window = match (&n.window, l.kind.window()) {
+            (Some(names), Some(g)) => {
+                let (gc, kc, tc) = (ident(&names.geometry), ident(&names.kernels), ident(&names.taps));
+                let f = |v: usize| usize_lit(v);
+                let (rows, cols, ch) = (f(g.rows), f(g.cols), f(g.channels));
+                let (kr, kcol, sr, sc) = (f(g.k_rows), f(g.k_cols), f(g.stride_rows), f(g.stride_cols));
+                let (pt, pl, or, oc) = (f(g.pad_top), f(g.pad_left), f(g.out_rows), f(g.out_cols));
+                let (kernels, taps) = (f(l.width), f(l.fan_in));
+                let gdoc = format!(
+                    " Geometry of `{}`: input {}, kernel {} x {}, stride {} x {}, zeros before {} x {}, output {} x {} positions.",
+                    l.name, l.input.words(), g.k_rows, g.k_cols, g.stride_rows, g.stride_cols,
+                    g.pad_top, g.pad_left, g.out_rows, g.out_cols
+                );
+                let gdoc = super::doc(&gdoc);
+                let params = if l.parameters() > 0 {
+                    let kdoc = super::doc(&format!(" Kernels of `{}` (rows of its weights).", l.name));
+                    let tdoc = super::doc(&format!(" Weights per kernel of `{}` (columns of its weights).", l.name));
+                    quote! {
+                        #kdoc
+                        pub const #kc: usize = #kernels;
+                        #tdoc
+                        pub const #tc: usize = #taps;
+                    }
+                } else {
+                    TokenStream::new()
+                };
+                quote! {
+                    #gdoc
+                    pub const #gc: rt::conv::Window = rt::conv::Window {
+                        rows: #rows, cols: #cols, channels: #ch,
+                        k_rows: #kr, k_cols: #kcol,
+                        stride_rows: #sr, stride_cols: #sc,
+                        pad_top: #pt, pad_left: #pl,
+                        out_rows: #or, out_cols: #oc,
+                    };
+                    #params
+                }
+            }
+            _ => TokenStream::new(),
+        };
         quote! {
             #doc
             pub const #c: usize = #w;
+            #window
         }
     });
     quote! {
@@ -66,15 +117,25 @@ pub(super) fn consts(cx: &Ctx) -> TokenStream {
 pub(super) fn structs(cx: &Ctx) -> TokenStream {
     let mut p_fields = Vec::new();
     let mut g_fields = Vec::new();
-    for (i, l, n) in cx.layers() {
+    for (i, l, n) in cx.param_layers() {
         let w = ident(&n.weights);
         let b = ident(&n.bias);
-        let rows = cx.width_const(i);
-        let cols = cx.fan_in_const(i);
-        let dw = format!(
-            " Weights into `{}`: row `j` holds the {} weights into unit `j`.",
-            l.name, l.fan_in
-        );
+        let rows = cx.rows_const(i);
+        let cols = cx.cols_const(i);
+        let dw = match l.kind {
+            crate::ir::LayerKind::Conv { .. } => format!(
+                " Filters of `{}`: row `f` holds filter `f`'s {} weights, `[rows][cols][channels]` of its kernel.",
+                l.name, l.fan_in
+            ),
+            crate::ir::LayerKind::Depthwise { .. } => format!(
+                " Kernels of `{}`: row `c` holds the {} weights of channel `c`'s kernel, `[rows][cols]`.",
+                l.name, l.fan_in
+            ),
+            _ => format!(
+                " Weights into `{}`: row `j` holds the {} weights into unit `j`.",
+                l.name, l.fan_in
+            ),
+        };
         let dw = super::doc(&dw);
         let db = format!(" Biases of `{}`.", l.name);
         let db = super::doc(&db);
@@ -150,11 +211,11 @@ pub(super) fn line_layout() -> TokenStream {
 /// The body of a `zeroed()` for `Params` (with scaling) or `Gradients` (without).
 pub(super) fn zeroed_body(cx: &Ctx, with_scaling: bool) -> TokenStream {
     let mut fields = Vec::new();
-    for (i, _, n) in cx.layers() {
+    for (i, _, n) in cx.param_layers() {
         let w = ident(&n.weights);
         let b = ident(&n.bias);
-        let rows = cx.width_const(i);
-        let cols = cx.fan_in_const(i);
+        let rows = cx.rows_const(i);
+        let cols = cx.cols_const(i);
         fields.push(quote!(#w: [[0.0; #cols]; #rows], #b: [0.0; #rows],));
     }
     if with_scaling && cx.model.input.standardize {
@@ -260,11 +321,22 @@ fn penalty_const(cx: &Ctx) -> TokenStream {
 
 fn init_in_place(cx: &Ctx) -> TokenStream {
     let mut steps = Vec::new();
-    for (i, _, n) in cx.layers() {
+    for (i, l, n) in cx.param_layers() {
         let w = ident(&n.weights);
         let b = ident(&n.bias);
-        let fan_in = cx.fan_in_const(i);
-        let width = cx.width_const(i);
+        // Dense layers name their sizes; a convolution's fans are its kernel's
+        // (`ir::Layer::fans`).
+        let (fan_in, width) = match l.kind {
+            crate::ir::LayerKind::Dense => {
+                let (a, b) = (cx.fan_in_const(i), cx.width_const(i));
+                (quote!(#a), quote!(#b))
+            }
+            _ => {
+                let (a, b) = l.fans();
+                let (a, b) = (super::usize_lit(a), super::usize_lit(b));
+                (quote!(#a), quote!(#b))
+            }
+        };
         let fill = match cx.model.init {
             Init::Uniform { eps } => {
                 let eps =
@@ -294,6 +366,9 @@ fn init_in_place(cx: &Ctx) -> TokenStream {
 pub(super) fn trained(cx: &Ctx, w: &Trained<'_>) -> TokenStream {
     let mut fields = Vec::new();
     for ((l, n), flat) in cx.model.layers.iter().zip(&cx.names.layers).zip(&w.layers) {
+        if l.parameters() == 0 {
+            continue;
+        }
         let (weights, bias) = (&flat.weights, &flat.bias);
         let wf = ident(&n.weights);
         let bf = ident(&n.bias);
@@ -320,7 +395,7 @@ pub(super) fn trained(cx: &Ctx, w: &Trained<'_>) -> TokenStream {
 /// `impl Gradients`: `zeroed`, `clear`, `finish`.
 pub(super) fn impl_gradients(cx: &Ctx) -> TokenStream {
     let zeroed = zeroed_body(cx, false);
-    let clears = cx.names.layers.iter().map(|n| {
+    let clears = cx.param_layers().map(|(_, _, n)| {
         let w = ident(&n.weights);
         let b = ident(&n.bias);
         quote! {
@@ -328,7 +403,7 @@ pub(super) fn impl_gradients(cx: &Ctx) -> TokenStream {
             self.#b.fill(ZERO);
         }
     });
-    let finishes = cx.names.layers.iter().map(|n| {
+    let finishes = cx.param_layers().map(|(_, _, n)| {
         let w = ident(&n.weights);
         let b = ident(&n.bias);
         quote! {

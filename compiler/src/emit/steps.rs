@@ -7,7 +7,7 @@
 
 use super::{ident, Ctx};
 use crate::ir::Activation;
-use crate::plan::{Buf, Head, Step};
+use crate::plan::{Buf, Head, Step, WindowOp};
 use proc_macro2::{Ident, TokenStream};
 use quote::{format_ident, quote};
 
@@ -54,6 +54,58 @@ fn loss_kernel(head: Head) -> TokenStream {
         Head::SoftmaxCrossEntropy => quote!(rt::loss::softmax_cross_entropy_n),
         Head::Logistic => quote!(rt::loss::logistic_cross_entropy_n),
         Head::SquaredError(_) => quote!(rt::loss::squared_error_n),
+    }
+}
+
+/// `rt::conv::<name>_n`.
+fn conv_kernel(name: &str) -> TokenStream {
+    let f = format_ident!("{}_n", name);
+    quote!(rt::conv::#f)
+}
+
+/// The forward call of a sliding-window layer on one sample (`x`, `o`: the operands).
+fn window_call(cx: &Ctx, layer: usize, op: WindowOp, x: TokenStream, o: TokenStream) -> TokenStream {
+    let f = conv_kernel(op.kernels().0);
+    let g = cx.window_const(layer);
+    if op.has_params() {
+        let n = &cx.names.layers[layer];
+        let (w, b) = (ident(&n.weights), ident(&n.bias));
+        quote!(#f(&self.#w, &self.#b, #x, #o, &#g);)
+    } else {
+        quote!(#f(#x, #o, &#g);)
+    }
+}
+
+/// The gradient accumulation of a convolution on one sample (nothing for a pooling).
+fn window_acc_call(cx: &Ctx, layer: usize, op: WindowOp, d: TokenStream, x: TokenStream) -> TokenStream {
+    let Some(name) = op.kernels().1 else {
+        return TokenStream::new();
+    };
+    let f = conv_kernel(name);
+    let g = cx.window_const(layer);
+    let n = &cx.names.layers[layer];
+    let (w, b) = (ident(&n.weights), ident(&n.bias));
+    quote!(#f(&mut grad.#w, &mut grad.#b, #d, #x, &#g);)
+}
+
+/// The backward call of a sliding-window layer on one sample: its input `x`, errors `d`, and
+/// the errors below `o`.
+fn window_back_call(
+    cx: &Ctx,
+    layer: usize,
+    op: WindowOp,
+    x: TokenStream,
+    d: TokenStream,
+    o: TokenStream,
+) -> TokenStream {
+    let f = conv_kernel(op.kernels().2);
+    let g = cx.window_const(layer);
+    let n = &cx.names.layers[layer];
+    let w = ident(&n.weights);
+    match op {
+        WindowOp::Conv | WindowOp::Depthwise => quote!(#f(&self.#w, #d, #o, &#g);),
+        WindowOp::MaxPool => quote!(#f(#x, #d, #o, &#g);),
+        WindowOp::AveragePool => quote!(#f(#d, #o, &#g);),
     }
 }
 
@@ -227,6 +279,33 @@ pub(super) fn sample(
                 let b = ident(&cx.names.layers[layer].bias);
                 let d = s.r(err);
                 quote!(rt::add_acc_n(&mut grad.#b, #d);)
+            }
+            Step::Window {
+                layer,
+                op,
+                input,
+                out,
+            } => {
+                let d = declare(&s, &mut declared, out);
+                let call = window_call(cx, layer, op, s.r(input), s.m(out));
+                quote!(#d #call)
+            }
+            Step::WindowAcc {
+                layer,
+                op,
+                err,
+                input,
+            } => window_acc_call(cx, layer, op, s.r(err), s.r(input)),
+            Step::WindowBack {
+                layer,
+                op,
+                input,
+                err,
+                out,
+            } => {
+                let d = declare(&s, &mut declared, out);
+                let call = window_back_call(cx, layer, op, s.r(input), s.r(err), s.m(out));
+                quote!(#d #call)
             }
             Step::Back { layer, err, out } => {
                 if cx.unrolled_at(layer) {
@@ -474,6 +553,49 @@ pub(super) fn block(cx: &Ctx, steps: &[Step]) -> TokenStream {
                 let w = ident(&cx.names.layers[layer].weights);
                 let (d, o) = (name(err), name(out));
                 quote!(rt::back_batch_n(&self.#w, #d, #o);)
+            }
+            Step::Window {
+                layer,
+                op,
+                input,
+                out,
+            } => {
+                let (x, o) = (name(input), name(out));
+                let call = window_call(cx, layer, op, quote!(x_row), quote!(o_row));
+                quote! {
+                    for (x_row, o_row) in #x.iter().zip(#o.iter_mut()) {
+                        #call
+                    }
+                }
+            }
+            Step::WindowAcc {
+                layer,
+                op,
+                err,
+                input,
+            } => {
+                let (d, x) = (name(err), name(input));
+                let call = window_acc_call(cx, layer, op, quote!(d_row), quote!(x_row));
+                quote! {
+                    for (d_row, x_row) in #d.iter().zip(#x.iter()) {
+                        #call
+                    }
+                }
+            }
+            Step::WindowBack {
+                layer,
+                op,
+                input,
+                err,
+                out,
+            } => {
+                let (x, d, o) = (name(input), name(err), name(out));
+                let call = window_back_call(cx, layer, op, quote!(x_row), quote!(d_row), quote!(o_row));
+                quote! {
+                    for ((x_row, d_row), o_row) in #x.iter().zip(#d.iter()).zip(#o.iter_mut()) {
+                        #call
+                    }
+                }
             }
         };
         out.extend(code);

@@ -20,12 +20,7 @@ pub(crate) fn model(shape: &[(usize, &str)], out_act: Activation) -> Model {
             } else {
                 Activation::Sigmoid
             };
-            let l = Layer {
-                name: name.into(),
-                width,
-                fan_in,
-                activation,
-            };
+            let l = Layer::dense(name, width, fan_in, activation);
             fan_in = width;
             l
         })
@@ -33,11 +28,7 @@ pub(crate) fn model(shape: &[(usize, &str)], out_act: Activation) -> Model {
     Model {
         name: "pump_health".into(),
         scalar: Scalar::F32,
-        input: Input {
-            name: input.1.into(),
-            width: input.0,
-            standardize: false,
-        },
+        input: Input::vector(input.1, input.0, false),
         layers,
         classes: None,
         loss: if matches!(out_act, Activation::Sigmoid | Activation::Softmax) {

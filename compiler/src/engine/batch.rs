@@ -14,7 +14,8 @@
 //! count.
 
 use super::{
-    activation, batch_samples, sample_loss, LengthMismatch, Net, Operands, Params, Scratch,
+    activation, batch_samples, sample_loss, window, LengthMismatch, Net, Operands, Params,
+    Scratch,
 };
 use crate::ir;
 use crate::plan::{Buf, Buffer, Plan, Step};
@@ -192,7 +193,46 @@ fn deltas<T: Real>(
                     }
                 }
             }
-            Step::OuterAcc { .. } | Step::AddAcc { .. } => {}
+            Step::Window {
+                layer,
+                op,
+                input,
+                out,
+            } => {
+                // Row by row: each row's bits are the per-sample kernel's.
+                let (Some(lp), Some(g)) = (p.layers.get(layer), window::of(net.model, layer))
+                else {
+                    continue;
+                };
+                let (wi, wo) = (width_of(net, input).max(1), width_of(net, out).max(1));
+                if let Some((x, z)) = s.io(ops, input, out) {
+                    for (x, z) in x.chunks_exact(wi).zip(z.chunks_exact_mut(wo)).take(used) {
+                        window::forward(op, lp, &g, x, z)?;
+                    }
+                }
+            }
+            Step::WindowBack {
+                layer,
+                op,
+                input,
+                err,
+                out,
+            } => {
+                let (Some(lp), Some(g)) = (p.layers.get(layer), window::of(net.model, layer))
+                else {
+                    continue;
+                };
+                let (wi, wd) = (width_of(net, input).max(1), width_of(net, err).max(1));
+                s.read2_write(ops, input, err, out, |x, d, o| {
+                    let rows = x.chunks_exact(wi).zip(d.chunks_exact(wd));
+                    for ((x, d), o) in rows.zip(o.chunks_exact_mut(wi)).take(used) {
+                        window::backward(op, lp, &g, x, d, o)?;
+                    }
+                    Ok(())
+                })
+                .transpose()?;
+            }
+            Step::OuterAcc { .. } | Step::AddAcc { .. } | Step::WindowAcc { .. } => {}
         }
     }
     Ok(())
@@ -359,6 +399,26 @@ fn accumulate<T: Real + Send + Sync>(
                         .try_for_each(|(k, rows)| rows_of(k * per_task, rows))?;
                 } else {
                     rows_of(0, &mut g.weights)?;
+                }
+            }
+            Step::WindowAcc {
+                layer,
+                op,
+                err,
+                input,
+            } => {
+                // Sample by sample in order, as the per-sample loop adds them.
+                let (Some(lg), Some(g)) = (grad.layers.get_mut(layer), window::of(net.model, layer))
+                else {
+                    continue;
+                };
+                let (wi, wd) = (width_of(net, input).max(1), width_of(net, err).max(1));
+                for (sb, x) in subs.iter().zip(xb.chunks(SUB_BLOCK * n_in)) {
+                    let a = used_rows(net, input, sb, x);
+                    let d = used_rows(net, err, sb, x);
+                    for (a, d) in a.chunks_exact(wi).zip(d.chunks_exact(wd)) {
+                        window::accumulate(op, lg, &g, d, a)?;
+                    }
                 }
             }
             Step::AddAcc { layer, err } => {

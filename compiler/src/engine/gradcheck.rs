@@ -123,6 +123,10 @@ pub fn check(
     let mut p = params.clone();
     let mut out = Vec::new();
     for (l, layer) in model.layers.iter().enumerate() {
+        // A pooling has no parameters to check.
+        if layer.parameters() == 0 {
+            continue;
+        }
         let n_w = layer.width * layer.fan_in;
         let total = n_w + layer.width;
         let picks: Vec<usize> = if total <= max_per_layer {

@@ -32,6 +32,7 @@ pub mod batch;
 pub mod eval;
 pub mod gradcheck;
 pub mod train;
+mod window;
 
 /// One layer's parameters (or gradients): `weights` is row-major, `width` rows of `fan_in`.
 #[derive(Debug, Clone, PartialEq)]
@@ -99,13 +100,16 @@ impl<T: Real> Params<T> {
         for (l, lp) in model.layers.iter().zip(&mut p.layers) {
             match model.init {
                 Init::Uniform { eps } => rt::rng::fill_uniform(&mut lp.weights, eps, &mut rng),
-                Init::Glorot => rt::rng::fill_uniform(
-                    &mut lp.weights,
-                    rt::rng::glorot_limit(l.fan_in, l.width),
-                    &mut rng,
-                ),
+                Init::Glorot => {
+                    let (fan_in, fan_out) = l.fans();
+                    rt::rng::fill_uniform(
+                        &mut lp.weights,
+                        rt::rng::glorot_limit(fan_in, fan_out),
+                        &mut rng,
+                    )
+                }
                 Init::He => {
-                    rt::rng::fill_normal(&mut lp.weights, rt::rng::he_std(l.fan_in), &mut rng)
+                    rt::rng::fill_normal(&mut lp.weights, rt::rng::he_std(l.fans().0), &mut rng)
                 }
             }
         }
@@ -256,6 +260,28 @@ impl<T: Real> Scratch<T> {
         } else {
             None
         }
+    }
+
+    /// Runs `f` on two buffers read together and the working buffer `write`, which differs
+    /// from both (`write` is moved out and back: no allocation). `None` when `write` is missing.
+    fn read2_write<'a, R>(
+        &'a mut self,
+        ops: Operands<'a, T>,
+        a: Buf,
+        b: Buf,
+        write: Buf,
+        f: impl FnOnce(&[T], &[T], &mut [T]) -> R,
+    ) -> Option<R> {
+        let w = self.slot(write)?;
+        let mut out = std::mem::take(self.bufs.get_mut(w)?);
+        let r = {
+            let (x, y) = self.read2(ops, a, b);
+            f(x, y, &mut out)
+        };
+        if let Some(slot) = self.bufs.get_mut(w) {
+            *slot = out;
+        }
+        Some(r)
     }
 
     /// Two buffers read together (each an operand or a working buffer).
@@ -413,6 +439,49 @@ impl<'m, T: Real> Net<'m, T> {
                     if let (Some(lp), Some((d, o))) = (p.layers.get(layer), s.io(ops, err, out)) {
                         rt::back(&lp.weights, d, o)?;
                     }
+                }
+                Step::Window {
+                    layer,
+                    op,
+                    input,
+                    out,
+                } => {
+                    let (Some(lp), Some(g)) = (p.layers.get(layer), window::of(self.model, layer))
+                    else {
+                        continue;
+                    };
+                    if let Some((x, z)) = s.io(ops, input, out) {
+                        window::forward(op, lp, &g, x, z)?;
+                    }
+                }
+                Step::WindowAcc {
+                    layer,
+                    op,
+                    err,
+                    input,
+                } => {
+                    let g = window::of(self.model, layer);
+                    let lg = grad.as_deref_mut().and_then(|g| g.layers.get_mut(layer));
+                    if let (Some(lg), Some(g)) = (lg, g) {
+                        let (d, x) = s.read2(ops, err, input);
+                        window::accumulate(op, lg, &g, d, x)?;
+                    }
+                }
+                Step::WindowBack {
+                    layer,
+                    op,
+                    input,
+                    err,
+                    out,
+                } => {
+                    let (Some(lp), Some(g)) = (p.layers.get(layer), window::of(self.model, layer))
+                    else {
+                        continue;
+                    };
+                    s.read2_write(ops, input, err, out, |x, d, o| {
+                        window::backward(op, lp, &g, x, d, o)
+                    })
+                    .transpose()?;
                 }
             }
         }

@@ -29,7 +29,7 @@ pub fn dump(model: &Model) -> String {
             Activation::LeakyRelu(a) => format!("leaky_relu {a}"),
             other => other.keyword().to_string(),
         };
-        let _ = writeln!(
+        let _ = write!(
             s,
             "{role} {} {}x{} {act} params={}",
             l.name,
@@ -37,6 +37,22 @@ pub fn dump(model: &Model) -> String {
             l.fan_in,
             l.parameters()
         );
+        if let Some(w) = l.kind.window() {
+            let _ = write!(
+                s,
+                " {} in={} out={} kernel={}x{} stride={}x{} pad={}x{}",
+                l.kind.words(),
+                l.input.words(),
+                l.output.words(),
+                w.k_rows,
+                w.k_cols,
+                w.stride_rows,
+                w.stride_cols,
+                w.pad_top,
+                w.pad_left
+            );
+        }
+        let _ = writeln!(s);
     }
     if let Some(c) = &model.classes {
         let _ = writeln!(s, "classes {}", c.join(", "));

@@ -179,35 +179,286 @@ pub struct Budget {
     pub train_ram: Option<u64>,
 }
 
-/// The input vector.
+/// The shape of a map of values: a vector (`6`), a window of steps (`100 x 6`) or a grid of
+/// rows and columns (`8 x 8 x 1`). Stored row-major, channel fastest: the value of row `r`,
+/// column `c`, channel `k` is at `(r * cols + c) * channels + k`. A vector is one position with
+/// `channels` values; a window has one column.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
+pub struct Shape {
+    /// 1 (vector), 2 (window) or 3 (grid).
+    pub rank: u8,
+    /// Rows (steps of a window; 1 for a vector).
+    pub rows: usize,
+    /// Columns (1 for a vector or a window).
+    pub cols: usize,
+    /// Values per position (the width of a vector).
+    pub channels: usize,
+}
+
+impl Input {
+    /// A vector input of `width` features.
+    pub fn vector(name: &str, width: usize, standardize: bool) -> Input {
+        Input {
+            name: name.to_string(),
+            width,
+            shape: Shape::vector(width),
+            standardize,
+        }
+    }
+}
+
+impl Shape {
+    /// A vector of `n` values.
+    pub fn vector(n: usize) -> Shape {
+        Shape {
+            rank: 1,
+            rows: 1,
+            cols: 1,
+            channels: n,
+        }
+    }
+
+    /// Values in the map: `rows * cols * channels`.
+    pub fn len(&self) -> usize {
+        self.rows * self.cols * self.channels
+    }
+
+    /// True for a vector, which only dense layers read.
+    pub fn is_vector(&self) -> bool {
+        self.rank == 1
+    }
+
+    /// As the spec writes it: `6`, `100 x 6`, `8 x 8 x 1`.
+    pub fn words(&self) -> String {
+        match self.rank {
+            1 => self.channels.to_string(),
+            2 => format!("{} x {}", self.rows, self.channels),
+            _ => format!("{} x {} x {}", self.rows, self.cols, self.channels),
+        }
+    }
+}
+
+/// Padding of a convolution.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Pad {
+    /// No padding: `floor((n - k) / s) + 1` positions.
+    Valid,
+    /// `ceil(n / s)` positions; total zeros `max((out - 1) s + k - n, 0)`, the smaller half
+    /// before.
+    Same,
+}
+
+/// A pooling operation.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum PoolOp {
+    /// The largest value of the window; its gradient goes to the first maximal element in scan
+    /// order.
+    Max,
+    /// The mean of the window: the sum in scan order divided by the number of taps.
+    Average,
+}
+
+/// The geometry of a sliding window over a map (`Window` in the runtime): the input map, the
+/// kernel, stride, zeros before, and the output positions. A window of steps has one column,
+/// `k_cols = 1`, `stride_cols = 1`, `pad_left = 0`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
+pub struct Window {
+    /// Input rows.
+    pub rows: usize,
+    /// Input columns.
+    pub cols: usize,
+    /// Input channels.
+    pub channels: usize,
+    /// Kernel rows.
+    pub k_rows: usize,
+    /// Kernel columns.
+    pub k_cols: usize,
+    /// Stride along rows.
+    pub stride_rows: usize,
+    /// Stride along columns.
+    pub stride_cols: usize,
+    /// Zero rows before the first.
+    pub pad_top: usize,
+    /// Zero columns before the first.
+    pub pad_left: usize,
+    /// Output rows.
+    pub out_rows: usize,
+    /// Output columns.
+    pub out_cols: usize,
+}
+
+impl Window {
+    /// Kernel taps: `k_rows * k_cols`.
+    pub fn taps(&self) -> usize {
+        self.k_rows * self.k_cols
+    }
+
+    /// Output positions: `out_rows * out_cols`.
+    pub fn positions(&self) -> usize {
+        self.out_rows * self.out_cols
+    }
+}
+
+/// What a layer computes.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[serde(rename_all = "snake_case", tag = "kind")]
+pub enum LayerKind {
+    /// `z = W a + b` over the flattened input.
+    Dense,
+    /// `z[p][f] = sum_{taps, c} W[f][tap][c] a[p + tap][c] + b[f]`.
+    Conv {
+        /// The sliding window.
+        window: Window,
+        /// Padding as written.
+        pad: Pad,
+    },
+    /// `z[p][c] = sum_{taps} W[c][tap] a[p + tap][c] + b[c]`: one filter per channel.
+    Depthwise {
+        /// The sliding window.
+        window: Window,
+        /// Padding as written.
+        pad: Pad,
+    },
+    /// Max or average over windows that do not overlap (stride = window); no parameters.
+    Pool {
+        /// Max or average.
+        op: PoolOp,
+        /// The window (`all`: the whole map).
+        window: Window,
+        /// Written as `all`.
+        all: bool,
+    },
+}
+
+impl LayerKind {
+    /// The sliding window, for every kind but dense.
+    pub fn window(&self) -> Option<&Window> {
+        match self {
+            LayerKind::Dense => None,
+            LayerKind::Conv { window, .. }
+            | LayerKind::Depthwise { window, .. }
+            | LayerKind::Pool { window, .. } => Some(window),
+        }
+    }
+
+    /// The spec word: `dense`, `conv`, `depthwise`, `pool max`, `pool average`.
+    pub fn words(&self) -> &'static str {
+        match self {
+            LayerKind::Dense => "dense",
+            LayerKind::Conv { .. } => "conv",
+            LayerKind::Depthwise { .. } => "depthwise",
+            LayerKind::Pool {
+                op: PoolOp::Max, ..
+            } => "pool max",
+            LayerKind::Pool {
+                op: PoolOp::Average,
+                ..
+            } => "pool average",
+        }
+    }
+}
+
+/// The input.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Input {
     /// Name from the spec.
     pub name: String,
-    /// Number of features.
+    /// Number of values: `shape.len()`.
     pub width: usize,
+    /// The input's shape.
+    pub shape: Shape,
     /// When true the model holds a per-feature mean and standard deviation and computes
-    /// `x' = (x - mean) / std` before the first layer.
+    /// `x' = (x - mean) / std` before the first layer (per channel for a window or a grid: one
+    /// mean and std per channel, over every position).
     pub standardize: bool,
 }
 
-/// A dense layer `z = W a_prev + b`, `a = g(z)`. The last layer of a model is its output.
+/// One layer `z = f(W, a_prev) + b`, `a = g(z)`. The last layer of a model is its output, and
+/// is dense. The weights are held as a matrix of `width` rows (units, filters or channels) of
+/// `fan_in` values each: dense `[width][inputs]`, conv `[F][KH][KW][C]` flattened per filter,
+/// depthwise `[C][KH][KW]` flattened per channel; a pooling has none (`width = fan_in = 0`).
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Layer {
     /// Name from the spec (`layer NAME ...` or `output NAME ...`).
     pub name: String,
-    /// Units in this layer (rows of W).
+    /// What it computes.
+    pub kind: LayerKind,
+    /// Rows of W and length of b: dense units, conv filters, depthwise channels; 0 for a pooling.
     pub width: usize,
-    /// Units feeding it (columns of W): the input width or the previous layer's width.
+    /// Columns of W: the flattened input length (dense), `taps * channels` (conv), `taps`
+    /// (depthwise); 0 for a pooling.
     pub fan_in: usize,
-    /// Its activation.
+    /// The shape it reads.
+    pub input: Shape,
+    /// The shape it writes (`output.len()` values per sample).
+    pub output: Shape,
+    /// Its activation (the identity for a pooling).
     pub activation: Activation,
 }
 
 impl Layer {
+    /// A dense layer of `width` units reading a vector of `fan_in` values.
+    pub fn dense(name: &str, width: usize, fan_in: usize, activation: Activation) -> Layer {
+        Layer {
+            name: name.to_string(),
+            kind: LayerKind::Dense,
+            width,
+            fan_in,
+            input: Shape::vector(fan_in),
+            output: Shape::vector(width),
+            activation,
+        }
+    }
+
     /// Weights plus biases.
     pub fn parameters(&self) -> usize {
         self.width * self.fan_in + self.width
+    }
+
+    /// Values it writes per sample.
+    pub fn size(&self) -> usize {
+        self.output.len()
+    }
+
+    /// The fan-in and fan-out of one weight, for `init glorot` and `he`: dense `(inputs,
+    /// units)`; conv `(taps * C, taps * F)`; depthwise `(taps, taps)`.
+    pub fn fans(&self) -> (usize, usize) {
+        match &self.kind {
+            LayerKind::Conv { window, .. } => (self.fan_in, window.taps() * self.width),
+            LayerKind::Depthwise { window, .. } => (window.taps(), window.taps()),
+            _ => (self.fan_in, self.width),
+        }
+    }
+
+    /// Multiply-adds of its forward pass: each output value of a convolution sums the taps that
+    /// fall inside the input (padding adds none), a pooling none counted.
+    pub fn macs(&self) -> u64 {
+        let inside = |w: &Window| -> u64 {
+            // Taps inside the input, summed over the output positions.
+            let axis = |n: usize, k: usize, s: usize, pad: usize, out: usize| -> u64 {
+                (0..out)
+                    .map(|o| {
+                        (0..k)
+                            .filter(|&t| {
+                                (o * s + t).checked_sub(pad).is_some_and(|i| i < n)
+                            })
+                            .count() as u64
+                    })
+                    .sum()
+            };
+            axis(w.rows, w.k_rows, w.stride_rows, w.pad_top, w.out_rows)
+                * axis(w.cols, w.k_cols, w.stride_cols, w.pad_left, w.out_cols)
+        };
+        match &self.kind {
+            LayerKind::Dense => (self.width * self.fan_in) as u64,
+            LayerKind::Conv { window, .. } => {
+                inside(window) * (window.channels * self.width) as u64
+            }
+            LayerKind::Depthwise { window, .. } => inside(window) * window.channels as u64,
+            LayerKind::Pool { .. } => 0,
+        }
     }
 }
 
@@ -354,14 +605,39 @@ impl Model {
     /// layer's width and activation (with its parameter). Names, loss and training settings are
     /// not part of it: weights trained under another loss still fit.
     pub fn signature(&self) -> String {
+        let input = match self.input.shape.rank {
+            1 => self.input.width.to_string(),
+            _ => self.input.shape.words().replace(' ', ""),
+        };
         let mut s = format!(
             "sinew-shape-1;{};in={}{}",
             self.scalar.rust_name(),
-            self.input.width,
+            input,
             if self.input.standardize { "+std" } else { "" }
         );
         for l in &self.layers {
-            s.push_str(&format!(";{}:{}", l.width, l.activation.keyword()));
+            // Dense layers keep the form of version 1, so that its fingerprints stay valid.
+            let geometry = |w: &Window, pad: &str| {
+                format!(
+                    "k{}x{}s{}{pad}",
+                    w.k_rows, w.k_cols, w.stride_rows
+                )
+            };
+            let kind = match &l.kind {
+                LayerKind::Dense => String::new(),
+                LayerKind::Conv { window, pad } => {
+                    format!("conv{}", geometry(window, if *pad == Pad::Same { "same" } else { "valid" }))
+                }
+                LayerKind::Depthwise { window, pad } => {
+                    format!("dw{}", geometry(window, if *pad == Pad::Same { "same" } else { "valid" }))
+                }
+                LayerKind::Pool { op, window, .. } => format!(
+                    "pool{}{}",
+                    if *op == PoolOp::Max { "max" } else { "avg" },
+                    geometry(window, "")
+                ),
+            };
+            s.push_str(&format!(";{kind}{}:{}", l.width, l.activation.keyword()));
             if let Activation::LeakyRelu(a) = l.activation {
                 s.push_str(&format!("({:016x})", a.to_bits()));
             }

@@ -21,7 +21,7 @@
 //! earlier step of its pass or the pass's operands ([`Buf::Input`], [`Buf::Target`]); every
 //! layer index names a layer of the model; steps for the identity activation are left out.
 
-use crate::ir::{Activation, Loss, Model, Optimizer};
+use crate::ir::{Activation, LayerKind, Loss, Model, Optimizer, PoolOp};
 
 /// The output layer's activation and the loss, resolved together.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -102,6 +102,55 @@ pub struct Buffer {
     pub width: usize,
 }
 
+/// The kernel family of a sliding-window layer (`rt::conv::*`), with the layer's
+/// `ir::Window` giving its geometry.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum WindowOp {
+    /// Convolution with `F` filters: `z[p][f] = (sum over taps inside, channels: W[f][tap][c]
+    /// a[p + tap][c]) + b[f]`, one running sum in index order.
+    Conv,
+    /// Depthwise convolution: `z[p][c] = (sum over taps inside: W[c][tap] a[p + tap][c]) + b[c]`.
+    Depthwise,
+    /// Max pooling; the gradient goes to the first maximal element in scan order.
+    MaxPool,
+    /// Average pooling: the sum in scan order divided by the number of taps.
+    AveragePool,
+}
+
+impl WindowOp {
+    /// The kernel family of a layer kind (`None` for dense).
+    pub fn of(kind: &LayerKind) -> Option<WindowOp> {
+        Some(match kind {
+            LayerKind::Dense => return None,
+            LayerKind::Conv { .. } => WindowOp::Conv,
+            LayerKind::Depthwise { .. } => WindowOp::Depthwise,
+            LayerKind::Pool {
+                op: PoolOp::Max, ..
+            } => WindowOp::MaxPool,
+            LayerKind::Pool {
+                op: PoolOp::Average,
+                ..
+            } => WindowOp::AveragePool,
+        })
+    }
+
+    /// True when the layer has weights and biases.
+    pub fn has_params(self) -> bool {
+        matches!(self, WindowOp::Conv | WindowOp::Depthwise)
+    }
+
+    /// The runtime kernel's name in `rt::conv`: forward, accumulation (with parameters) and
+    /// backward.
+    pub fn kernels(self) -> (&'static str, Option<&'static str>, &'static str) {
+        match self {
+            WindowOp::Conv => ("conv", Some("conv_acc"), "conv_back"),
+            WindowOp::Depthwise => ("depthwise", Some("depthwise_acc"), "depthwise_back"),
+            WindowOp::MaxPool => ("pool_max", None, "pool_max_back"),
+            WindowOp::AveragePool => ("pool_average", None, "pool_average_back"),
+        }
+    }
+}
+
 /// One runtime kernel call with its operands.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub enum Step {
@@ -119,6 +168,44 @@ pub enum Step {
         /// Its input (fan-in values).
         input: Buf,
         /// Its output (width values).
+        out: Buf,
+    },
+    /// A sliding-window layer's forward pass (`rt::conv::<op>`): `out` from `input` (and the
+    /// layer's weights and biases for a convolution).
+    Window {
+        /// Layer index.
+        layer: usize,
+        /// The kernel family.
+        op: WindowOp,
+        /// Its input map.
+        input: Buf,
+        /// Its output map.
+        out: Buf,
+    },
+    /// A convolution's gradient terms of one sample (`rt::conv::<op>_acc`): weights and biases
+    /// from the layer's errors and input.
+    WindowAcc {
+        /// Layer index.
+        layer: usize,
+        /// `Conv` or `Depthwise`.
+        op: WindowOp,
+        /// The layer's errors.
+        err: Buf,
+        /// The layer's input.
+        input: Buf,
+    },
+    /// A sliding-window layer's errors sent one map down (`rt::conv::<op>_back`), before `g'`:
+    /// `out` is set, every element.
+    WindowBack {
+        /// Layer index (at least 1).
+        layer: usize,
+        /// The kernel family.
+        op: WindowOp,
+        /// The layer's input (max pooling finds its maxima there).
+        input: Buf,
+        /// The layer's errors.
+        err: Buf,
+        /// The errors of the layer below.
         out: Buf,
     },
     /// `to = from` (the outputs start as a copy of the logits).
@@ -198,7 +285,10 @@ impl Step {
     /// True for the gradient accumulation ([`Step::OuterAcc`], [`Step::AddAcc`]), which the
     /// batch forms may run after the error terms of a whole block.
     pub fn accumulates(&self) -> bool {
-        matches!(self, Step::OuterAcc { .. } | Step::AddAcc { .. })
+        matches!(
+            self,
+            Step::OuterAcc { .. } | Step::AddAcc { .. } | Step::WindowAcc { .. }
+        )
     }
 
     /// The buffer the step writes, if any (the gradient and the loss are not buffers).
@@ -208,10 +298,15 @@ impl Step {
             Step::Affine { out, .. }
             | Step::SoftmaxWithLoss { out, .. }
             | Step::OutputError { err: out, .. }
-            | Step::Back { out, .. } => Some(out),
+            | Step::Back { out, .. }
+            | Step::Window { out, .. }
+            | Step::WindowBack { out, .. } => Some(out),
             Step::Activate { buf, .. } => Some(buf),
             Step::ActivationGrad { err, .. } => Some(err),
-            Step::Loss { .. } | Step::OuterAcc { .. } | Step::AddAcc { .. } => None,
+            Step::Loss { .. }
+            | Step::OuterAcc { .. }
+            | Step::AddAcc { .. }
+            | Step::WindowAcc { .. } => None,
         }
     }
 }
@@ -323,7 +418,7 @@ impl Plan {
         for (l, layer) in model.layers.iter().enumerate() {
             buffers.push(Buffer {
                 buf: Buf::Act(l),
-                width: layer.width,
+                width: layer.size(),
             });
         }
         buffers.push(Buffer {
@@ -333,7 +428,7 @@ impl Plan {
         for (l, layer) in model.layers.iter().enumerate() {
             buffers.push(Buffer {
                 buf: Buf::Err(l),
-                width: layer.width,
+                width: layer.size(),
             });
         }
 
@@ -346,10 +441,18 @@ impl Plan {
             });
         }
         for (l, layer) in model.layers.iter().enumerate().take(output) {
-            hidden.push(Step::Affine {
-                layer: l,
-                input: input_of(l),
-                out: Buf::Act(l),
+            hidden.push(match WindowOp::of(&layer.kind) {
+                None => Step::Affine {
+                    layer: l,
+                    input: input_of(l),
+                    out: Buf::Act(l),
+                },
+                Some(op) => Step::Window {
+                    layer: l,
+                    op,
+                    input: input_of(l),
+                    out: Buf::Act(l),
+                },
             });
             push_activate(&mut hidden, layer.activation, Buf::Act(l));
         }
@@ -405,20 +508,41 @@ impl Plan {
             push_grad(&mut backprop, act, Buf::Act(output), Buf::Err(output));
         }
         for l in (0..=output).rev() {
-            backprop.push(Step::OuterAcc {
-                layer: l,
-                err: Buf::Err(l),
-                input: input_of(l),
-            });
-            backprop.push(Step::AddAcc {
-                layer: l,
-                err: Buf::Err(l),
-            });
-            if let Some(below) = l.checked_sub(1) {
-                backprop.push(Step::Back {
+            let op = model.layers.get(l).and_then(|x| WindowOp::of(&x.kind));
+            match op {
+                None => {
+                    backprop.push(Step::OuterAcc {
+                        layer: l,
+                        err: Buf::Err(l),
+                        input: input_of(l),
+                    });
+                    backprop.push(Step::AddAcc {
+                        layer: l,
+                        err: Buf::Err(l),
+                    });
+                }
+                Some(op) if op.has_params() => backprop.push(Step::WindowAcc {
                     layer: l,
+                    op,
                     err: Buf::Err(l),
-                    out: Buf::Err(below),
+                    input: input_of(l),
+                }),
+                Some(_) => {}
+            }
+            if let Some(below) = l.checked_sub(1) {
+                backprop.push(match op {
+                    None => Step::Back {
+                        layer: l,
+                        err: Buf::Err(l),
+                        out: Buf::Err(below),
+                    },
+                    Some(op) => Step::WindowBack {
+                        layer: l,
+                        op,
+                        input: input_of(l),
+                        err: Buf::Err(l),
+                        out: Buf::Err(below),
+                    },
                 });
                 let act = model
                     .layers
@@ -428,7 +552,9 @@ impl Plan {
             }
         }
 
+        // A pooling has no parameters, hence no arrays.
         let params = (0..model.layers.len())
+            .filter(|&l| model.layers.get(l).is_some_and(|x| x.parameters() > 0))
             .flat_map(|l| [ParamArray::Weights(l), ParamArray::Bias(l)])
             .collect();
         Plan {

@@ -100,8 +100,12 @@ impl Section {
         match self {
             Section::Model => "model NAME",
             Section::Scalar => "scalar f32|f64",
-            Section::Input => "input NAME WIDTH [standardize | unscaled]",
-            Section::Layer => "layer NAME WIDTH ACTIVATION",
+            Section::Input => "input NAME WIDTH | STEPS x CHANNELS | ROWS x COLS x CHANNELS [standardize | unscaled]",
+            Section::Layer => {
+                "layer NAME WIDTH ACTIVATION | layer NAME conv FILTERS kernel K [x K] [stride S] \
+                 [pad valid|same] ACTIVATION | layer NAME depthwise kernel K [x K] [stride S] \
+                 [pad valid|same] ACTIVATION | layer NAME pool max|average N [x N] | all"
+            }
             Section::Output => "output NAME WIDTH ACTIVATION [classes A, B, ...]",
             Section::Loss => "loss cross_entropy|squared_error",
             Section::Penalty => "penalty none | penalty l2 LAMBDA | penalty l1 LAMBDA",
@@ -134,8 +138,8 @@ pub enum Item {
     Input {
         /// The input's name.
         name: Name,
-        /// Number of features.
-        width: Integer,
+        /// Its shape: the number of features, or `STEPS x CHANNELS`, or `ROWS x COLS x CHANNELS`.
+        shape: Dims,
         /// Where `standardize` was written, if it was.
         standardize: Option<Span>,
         /// Where `unscaled` was written, if it was: the features are fed as they are on purpose.
@@ -211,15 +215,121 @@ impl Item {
     }
 }
 
-/// Name, width and activation of a layer.
+/// Sizes separated by `x`, as written: `6`, `100 x 6`, `3 x 3`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Dims {
+    /// From the first size to the last.
+    pub span: Span,
+    /// The sizes in order (at least one).
+    pub sizes: Vec<Integer>,
+}
+
+/// Name, kind and activation of a layer.
 #[derive(Debug, Clone, PartialEq)]
 pub struct LayerDecl {
     /// The layer's name.
     pub name: Name,
-    /// Its number of units.
-    pub width: Integer,
-    /// Its activation.
+    /// What kind of layer, with its sizes.
+    pub body: LayerBody,
+    /// Its activation. A pooling has none: it reads as `identity`, spanned at its `pool` word.
     pub activation: Spanned<ActivationKind>,
+}
+
+impl LayerDecl {
+    /// Where the layer's sizes are written: the width of a dense layer, else from the kind's
+    /// word to the last size.
+    pub fn size_span(&self) -> Span {
+        match &self.body {
+            LayerBody::Dense { width } => width.span,
+            LayerBody::Conv { keyword, window, .. } | LayerBody::Depthwise { keyword, window } => {
+                Span::new(keyword.start, window.kernel.span.end)
+            }
+            LayerBody::Pool { keyword, window, .. } => Span::new(keyword.start, window.span().end),
+        }
+    }
+}
+
+/// The kinds of layer, as written.
+#[derive(Debug, Clone, PartialEq)]
+pub enum LayerBody {
+    /// `WIDTH ACTIVATION`: dense.
+    Dense {
+        /// Its number of units.
+        width: Integer,
+    },
+    /// `conv FILTERS kernel K [x K] [stride S] [pad P] ACTIVATION`.
+    Conv {
+        /// The word `conv`.
+        keyword: Span,
+        /// The number of filters.
+        filters: Integer,
+        /// Kernel, stride and padding.
+        window: WindowDecl,
+    },
+    /// `depthwise kernel K [x K] [stride S] [pad P] ACTIVATION`.
+    Depthwise {
+        /// The word `depthwise`.
+        keyword: Span,
+        /// Kernel, stride and padding.
+        window: WindowDecl,
+    },
+    /// `pool max | average WINDOW | all`.
+    Pool {
+        /// The word `pool`.
+        keyword: Span,
+        /// Max or average.
+        op: Spanned<PoolOp>,
+        /// The window.
+        window: PoolWindow,
+    },
+}
+
+/// The sliding window of a convolution.
+#[derive(Debug, Clone, PartialEq)]
+pub struct WindowDecl {
+    /// `kernel K` or `kernel KH x KW`: the sizes after `kernel`.
+    pub kernel: Dims,
+    /// `stride S`, if given.
+    pub stride: Option<Integer>,
+    /// `pad valid | same`, if given.
+    pub pad: Option<Spanned<Pad>>,
+}
+
+/// A padding as written.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Pad {
+    /// `valid`: no padding.
+    Valid,
+    /// `same`: zeros around the input.
+    Same,
+}
+
+/// A pooling operation as written.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PoolOp {
+    /// `max`
+    Max,
+    /// `average`
+    Average,
+}
+
+/// The window of a pooling as written.
+#[derive(Debug, Clone, PartialEq)]
+pub enum PoolWindow {
+    /// `all`: every position.
+    All(Span),
+    /// `N` or `N x M`.
+    Size(Dims),
+}
+
+impl PoolWindow {
+    /// Where it is written.
+    pub fn span(&self) -> Span {
+        match self {
+            PoolWindow::All(s) => *s,
+            PoolWindow::Size(d) => d.span,
+        }
+    }
 }
 
 /// The `classes` clause of an output line.

@@ -144,7 +144,7 @@ fn build_statement(stmt: Pair<'_, Rule>, off: usize) -> Option<Statement> {
         }
         Rule::input_stmt => {
             let name = text(&it.next()?, off);
-            let width = text(&it.next()?, off);
+            let shape = dims(it.next()?, off);
             let scaling = it.next();
             let (mut standardize, mut unscaled) = (None, None);
             if let Some(p) = scaling {
@@ -156,7 +156,7 @@ fn build_statement(stmt: Pair<'_, Rule>, off: usize) -> Option<Statement> {
             }
             Item::Input {
                 name,
-                width,
+                shape,
                 standardize,
                 unscaled,
             }
@@ -315,10 +315,19 @@ fn second_text(pair: Pair<'_, Rule>, off: usize) -> Option<Spanned<String>> {
     pair.into_inner().nth(1).map(|p| text(&p, off))
 }
 
-fn build_layer<'a>(it: &mut impl Iterator<Item = Pair<'a, Rule>>, off: usize) -> Option<LayerDecl> {
-    let name = text(&it.next()?, off);
-    let width = text(&it.next()?, off);
-    let act = it.next()?;
+/// Sizes separated by `x` (a `dims` pair).
+fn dims(pair: Pair<'_, Rule>, off: usize) -> Dims {
+    let span = span_of(&pair, off);
+    let sizes = pair
+        .into_inner()
+        .filter(|p| p.as_rule() == Rule::width)
+        .map(|p| text(&p, off))
+        .collect();
+    Dims { span, sizes }
+}
+
+/// An activation pair.
+fn activation(act: Pair<'_, Rule>, off: usize) -> Option<Spanned<ActivationKind>> {
     let aspan = span_of(&act, off);
     let inner = act.into_inner().next()?;
     let kind = match inner.as_rule() {
@@ -333,10 +342,103 @@ fn build_layer<'a>(it: &mut impl Iterator<Item = Pair<'a, Rule>>, off: usize) ->
             _ => ActivationKind::Softmax,
         },
     };
+    Some(Spanned::new(kind, aspan))
+}
+
+/// `kernel ... [stride S] [pad P]`, then the activation, from the pairs after the kind's word.
+fn window<'a>(
+    it: &mut std::iter::Peekable<impl Iterator<Item = Pair<'a, Rule>>>,
+    off: usize,
+) -> Option<(WindowDecl, Spanned<ActivationKind>)> {
+    let kernel = dims(it.next()?.into_inner().nth(1)?, off);
+    let mut stride = None;
+    let mut pad = None;
+    while let Some(p) = it.next_if(|p| matches!(p.as_rule(), Rule::stride | Rule::padding)) {
+        let rule = p.as_rule();
+        let value = p.into_inner().nth(1)?;
+        if rule == Rule::stride {
+            stride = Some(text(&value, off));
+        } else {
+            let kind = if value.as_str() == "same" {
+                Pad::Same
+            } else {
+                Pad::Valid
+            };
+            pad = Some(Spanned::new(kind, span_of(&value, off)));
+        }
+    }
+    let act = activation(it.next()?, off)?;
+    Some((
+        WindowDecl {
+            kernel,
+            stride,
+            pad,
+        },
+        act,
+    ))
+}
+
+/// A layer's name and body: a `layer` line's (any kind) or an `output` line's (dense).
+fn build_layer<'a>(it: &mut impl Iterator<Item = Pair<'a, Rule>>, off: usize) -> Option<LayerDecl> {
+    let name = text(&it.next()?, off);
+    let first = it.next()?;
+    let (body, activation) = match first.as_rule() {
+        Rule::width => {
+            let width = text(&first, off);
+            (LayerBody::Dense { width }, activation(it.next()?, off)?)
+        }
+        Rule::dense_layer => {
+            let mut inner = first.into_inner();
+            let width = text(&inner.next()?, off);
+            (LayerBody::Dense { width }, activation(inner.next()?, off)?)
+        }
+        Rule::conv_layer => {
+            let mut inner = first.into_inner().peekable();
+            let keyword = span_of(&inner.next()?, off);
+            let filters = text(&inner.next()?, off);
+            let (window, act) = window(&mut inner, off)?;
+            (
+                LayerBody::Conv {
+                    keyword,
+                    filters,
+                    window,
+                },
+                act,
+            )
+        }
+        Rule::depthwise_layer => {
+            let mut inner = first.into_inner().peekable();
+            let keyword = span_of(&inner.next()?, off);
+            let (window, act) = window(&mut inner, off)?;
+            (LayerBody::Depthwise { keyword, window }, act)
+        }
+        Rule::pool_layer => {
+            let mut inner = first.into_inner();
+            let keyword = span_of(&inner.next()?, off);
+            let opp = inner.next()?;
+            let op = if opp.as_str() == "max" {
+                PoolOp::Max
+            } else {
+                PoolOp::Average
+            };
+            let op = Spanned::new(op, span_of(&opp, off));
+            let w = inner.next()?;
+            let window = if w.as_rule() == Rule::kw_all {
+                PoolWindow::All(span_of(&w, off))
+            } else {
+                PoolWindow::Size(dims(w, off))
+            };
+            (
+                LayerBody::Pool { keyword, op, window },
+                Spanned::new(ActivationKind::Identity, keyword),
+            )
+        }
+        _ => return None,
+    };
     Some(LayerDecl {
         name,
-        width,
-        activation: Spanned::new(kind, aspan),
+        body,
+        activation,
     })
 }
 
@@ -391,6 +493,17 @@ fn expectation(rule: Rule) -> Option<Want> {
         Rule::output_stmt | Rule::kw_output => Word("output"),
         Rule::classes | Rule::kw_classes => Word("classes"),
         Rule::kw_leaky_relu => Word("leaky_relu"),
+        Rule::dims | Rule::dense_layer => Value("a width"),
+        Rule::kw_x => Word("x"),
+        Rule::conv_layer | Rule::kw_conv => Word("conv"),
+        Rule::depthwise_layer | Rule::kw_depthwise => Word("depthwise"),
+        Rule::pool_layer | Rule::kw_pool => Word("pool"),
+        Rule::kw_all => Word("all"),
+        Rule::kernel | Rule::kw_kernel => Word("kernel"),
+        Rule::stride | Rule::kw_stride => Word("stride"),
+        Rule::padding | Rule::kw_pad => Word("pad"),
+        Rule::pad_kind => OneOf("padding", &["valid", "same"]),
+        Rule::pool_kind => OneOf("pooling", &["max", "average"]),
         Rule::loss_stmt | Rule::kw_loss => Word("loss"),
         Rule::penalty_stmt | Rule::kw_penalty => Word("penalty"),
         Rule::kw_none => Word("none"),
@@ -618,6 +731,44 @@ fn syntax_error(
         .with_help("remove the extra comma, or add the missing class name");
         return (d, meant);
     }
+    // `x` out of place: not between two sizes, or sizes written without spaces (`100x6`).
+    let glued = found_text.and_then(|w| {
+        let (a, b) = w.split_once(['x', 'X'])?;
+        let digits = |t: &str| !t.is_empty() && t.chars().all(|c| c.is_ascii_digit());
+        (digits(a) && (digits(b) || b.is_empty())).then(|| format!("{a} x {b}"))
+    });
+    let x_misplaced = found_text == Some("x") && !wants.contains(&Want::Word("x"));
+    let after_x = previous == Some("x") && wants.contains(&Want::Value("a width"));
+    if glued.is_some() || x_misplaced || after_x {
+        let (message, label, help) = if let Some(g) = glued {
+            (
+                format!("sizes must be separated by ` x `, found {}", quote(found_text.unwrap_or(""))),
+                "sizes written together".to_string(),
+                format!("put spaces around `x`: `{}`", g.trim_end()),
+            )
+        } else if x_misplaced {
+            (
+                "`x` must stand between two sizes".to_string(),
+                format!("expected {expected}"),
+                "a shape reads `STEPS x CHANNELS` or `ROWS x COLS x CHANNELS`, a kernel `K` or \
+                 `KH x KW`"
+                    .to_string(),
+            )
+        } else {
+            (
+                format!(
+                    "`x` must be followed by a size, found {}",
+                    found_text.map_or("end of line".to_string(), quote)
+                ),
+                "expected a size".to_string(),
+                "write the size after `x` (e.g. `100 x 6`), or remove the `x`".to_string(),
+            )
+        };
+        let d = Diagnostic::error(Code::S0107, message, found.map_or(eol, at))
+            .label(label)
+            .with_help(help);
+        return (d, meant);
+    }
     let (Some(span), Some(word)) = (found, found_text) else {
         // The line ends too early.
         let help = match previous {
@@ -757,7 +908,15 @@ fn syntax_error(
 }
 
 /// Every fixed word of the language, for "expected X after `rate`" messages.
-const KEYWORDS: [&str; 32] = [
+const KEYWORDS: [&str; 40] = [
+    "x",
+    "conv",
+    "depthwise",
+    "pool",
+    "all",
+    "kernel",
+    "stride",
+    "pad",
     "model",
     "scalar",
     "input",

@@ -82,6 +82,7 @@ pub fn gradient(model: &Model, weights: &Weights, data: &Path) -> Result<Gradien
         .layers
         .iter()
         .zip(grad)
+        .filter(|(l, _)| l.parameters() > 0)
         .map(|(l, g)| LayerGradient {
             name: l.name.clone(),
             weights: g

@@ -101,7 +101,10 @@ fn train_t<T: Real + Send + Sync>(
         None => Params::init(model, model.seed),
     };
     if model.input.standardize {
-        let (mean, std) = data::mean_std(tr);
+        let (mean, std) = match model.input.shape.rank {
+            1 => data::mean_std(tr),
+            _ => data::mean_std_channels(tr, model.input.shape.channels),
+        };
         p.mean = mean.iter().map(|&v| T::from_f64(v)).collect();
         p.std = std.iter().map(|&v| T::from_f64(v)).collect();
     }
