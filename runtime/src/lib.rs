@@ -30,6 +30,7 @@
 //! | [`optim`] | [`optim::sgd`], [`optim::momentum`], [`optim::adam`] |
 //! | [`rng`] | [`rng::SplitMix64`] with uniform and normal draws; [`rng::fill_uniform`], [`rng::fill_normal`], [`rng::glorot_limit`], [`rng::he_std`] |
 //! | [`each`] | [`each::blocks`]: iteration with no panicking path at any optimisation level (and the crate's own forms of it) |
+//! | [`conv`] | sliding windows over row-major `[rows][cols][channels]` maps ([`conv::Window`]): [`conv::conv`] (1-D and 2-D convolution, zero padding, strides), [`conv::depthwise`], [`conv::pool_max`], [`conv::pool_average`], each with its gradient accumulation (`_acc`) or backward pass (`_back`) and an `_n` array form |
 //! | [`blob`] | the device weight blob: [`blob::Values`] (checked decoding), [`blob::Writer`], [`blob::crc32`] |
 //!
 //! # Examples
@@ -98,6 +99,7 @@ mod block;
 
 pub mod act;
 pub mod blob;
+pub mod conv;
 pub mod each;
 pub mod linalg;
 pub mod loss;

@@ -6,6 +6,8 @@
 //! a kernel that returns `Err` has left every output untouched. No kernel truncates: operands
 //! whose lengths disagree are rejected, never paired up to the shortest.
 
+use crate::conv::Window;
+
 /// A slice operand whose length disagrees with the shape the other operands (and any given row
 /// length) call for.
 ///
@@ -209,6 +211,141 @@ pub(crate) fn softmax_cross_entropy_batch<T>(
         ("losses", losses.len(), 1),
     ])
     .map(|_| ())
+}
+
+/// The lengths of `conv(w, b, x, out, g)`: with `F = b.len()` filters, `w` holds
+/// `F * g.filter_len()` values, `x` holds `g.in_len()` and `out` holds `g.positions() * F`.
+#[inline(always)]
+pub(crate) fn conv<T>(
+    w: &[T],
+    b: &[T],
+    x: &[T],
+    out: &[T],
+    g: &Window,
+) -> Result<(), LengthMismatch> {
+    let f = b.len();
+    expect("w", f.saturating_mul(g.filter_len()), w.len())?;
+    expect("x", g.in_len(), x.len())?;
+    expect("out", g.positions().saturating_mul(f), out.len())
+}
+
+/// The lengths of `conv_acc(gw, gb, err, x, g)`: with `F = gb.len()` filters, `gw` holds
+/// `F * g.filter_len()` values, `err` holds `g.positions() * F` and `x` holds `g.in_len()`.
+#[inline(always)]
+pub(crate) fn conv_acc<T>(
+    gw: &[T],
+    gb: &[T],
+    err: &[T],
+    x: &[T],
+    g: &Window,
+) -> Result<(), LengthMismatch> {
+    let f = gb.len();
+    expect("gw", f.saturating_mul(g.filter_len()), gw.len())?;
+    expect("err", g.positions().saturating_mul(f), err.len())?;
+    expect("x", g.in_len(), x.len())
+}
+
+/// The lengths of `conv_back(w, err, dx, g)`, and its number of filters `F`: the rows of
+/// `g.filter_len()` in `w` (whole rows), with `err` holding `g.positions() * F`; when
+/// `g.filter_len()` is 0, `w` must be empty and `F` is the rows of `g.positions()` in `err`
+/// (0 when that is 0 too, with `err` empty). `dx` holds `g.in_len()`.
+#[inline(always)]
+pub(crate) fn conv_back<T>(
+    w: &[T],
+    err: &[T],
+    dx: &[T],
+    g: &Window,
+) -> Result<usize, LengthMismatch> {
+    let (kc, positions) = (g.filter_len(), g.positions());
+    let f = if kc > 0 {
+        let f = rows_of("w", w.len(), kc)?;
+        expect("err", positions.saturating_mul(f), err.len())?;
+        f
+    } else {
+        expect("w", 0, w.len())?;
+        rows_of("err", err.len(), positions)?
+    };
+    expect("dx", g.in_len(), dx.len())?;
+    Ok(f)
+}
+
+/// The lengths of `depthwise(w, b, x, out, g)`: with `C = g.channels`, `w` holds
+/// `C * g.taps()` values, `b` holds `C`, `x` holds `g.in_len()` and `out` holds
+/// `g.positions() * C`.
+#[inline(always)]
+pub(crate) fn depthwise<T>(
+    w: &[T],
+    b: &[T],
+    x: &[T],
+    out: &[T],
+    g: &Window,
+) -> Result<(), LengthMismatch> {
+    let c = g.channels;
+    expect("w", c.saturating_mul(g.taps()), w.len())?;
+    expect("b", c, b.len())?;
+    expect("x", g.in_len(), x.len())?;
+    expect("out", g.positions().saturating_mul(c), out.len())
+}
+
+/// The lengths of `depthwise_acc(gw, gb, err, x, g)`: those of `depthwise` with `gw`, `gb`
+/// and `err` in the places of `w`, `b` and `out`.
+#[inline(always)]
+pub(crate) fn depthwise_acc<T>(
+    gw: &[T],
+    gb: &[T],
+    err: &[T],
+    x: &[T],
+    g: &Window,
+) -> Result<(), LengthMismatch> {
+    let c = g.channels;
+    expect("gw", c.saturating_mul(g.taps()), gw.len())?;
+    expect("gb", c, gb.len())?;
+    expect("err", g.positions().saturating_mul(c), err.len())?;
+    expect("x", g.in_len(), x.len())
+}
+
+/// The lengths of `depthwise_back(w, err, dx, g)`: with `C = g.channels`, `w` holds
+/// `C * g.taps()` values, `err` holds `g.positions() * C` and `dx` holds `g.in_len()`.
+#[inline(always)]
+pub(crate) fn depthwise_back<T>(
+    w: &[T],
+    err: &[T],
+    dx: &[T],
+    g: &Window,
+) -> Result<(), LengthMismatch> {
+    let c = g.channels;
+    expect("w", c.saturating_mul(g.taps()), w.len())?;
+    expect("err", g.positions().saturating_mul(c), err.len())?;
+    expect("dx", g.in_len(), dx.len())
+}
+
+/// The lengths of `pool_max(x, out, g)` and `pool_average(x, out, g)`: `x` holds
+/// `g.in_len()` values and `out` holds `g.positions() * g.channels`.
+#[inline(always)]
+pub(crate) fn pool<T>(x: &[T], out: &[T], g: &Window) -> Result<(), LengthMismatch> {
+    expect("x", g.in_len(), x.len())?;
+    expect("out", g.positions().saturating_mul(g.channels), out.len())
+}
+
+/// The lengths of `pool_max_back(x, err, dx, g)`: `x` and `dx` hold `g.in_len()` values and
+/// `err` holds `g.positions() * g.channels`.
+#[inline(always)]
+pub(crate) fn pool_max_back<T>(
+    x: &[T],
+    err: &[T],
+    dx: &[T],
+    g: &Window,
+) -> Result<(), LengthMismatch> {
+    expect("x", g.in_len(), x.len())?;
+    pool_average_back(err, dx, g)
+}
+
+/// The lengths of `pool_average_back(err, dx, g)`: `err` holds `g.positions() * g.channels`
+/// values and `dx` holds `g.in_len()`.
+#[inline(always)]
+pub(crate) fn pool_average_back<T>(err: &[T], dx: &[T], g: &Window) -> Result<(), LengthMismatch> {
+    expect("err", g.positions().saturating_mul(g.channels), err.len())?;
+    expect("dx", g.in_len(), dx.len())
 }
 
 /// A fixed-size array of `T`, a vector `[T; N]` or a row-major matrix `[[T; I]; O]`, seen as

@@ -5,7 +5,9 @@
 // exported symbol in the object files: none may reach `core::panicking`. Each generic kernel is
 // exported once for `f32` and once for `f64` (`kernels!` below), the const-generic array forms
 // for three shapes: one input and one output, a short row (5 inputs, 3 outputs: the across-samples
-// and inline-fold paths) and a long one (20 inputs, 17 outputs: the chunked paths).
+// and inline-fold paths) and a long one (20 inputs, 17 outputs: the chunked paths); the
+// sliding-window forms (`rt::conv`) for a 1-D and a 2-D map (`windowed!`, `pooled!`), with the
+// geometry a parameter.
 //
 // `#[export_name]` is `#[no_mangle]` under a name built from the scalar: the symbol is global and
 // always compiled. Methods are called in the `Type::method(..)` form, so that the test's
@@ -14,6 +16,7 @@
 use sinew_runtime as rt;
 use sinew_runtime::act::Activation;
 use sinew_runtime::blob::{BlobError, Values, Writer};
+use sinew_runtime::conv::Window;
 use sinew_runtime::penalty::Penalty;
 use sinew_runtime::rng::SplitMix64;
 use sinew_runtime::LengthMismatch;
@@ -128,12 +131,96 @@ macro_rules! shaped {
     };
 }
 
+/// The const-generic array forms of `conv` for one shape: convolution of `$f` filters of `$kc`
+/// weights, depthwise of `$c` channels of `$k` taps, input of `$i` values, outputs of `$o` and
+/// `$od`. The geometry is a parameter, as unknown to the optimiser as the slice forms' lengths.
+macro_rules! windowed {
+    ($t:ty, $tag:literal, $name:literal, $kc:literal, $f:literal, $k:literal, $c:literal, $i:literal, $o:literal, $od:literal) => {
+        const _: () = {
+            type T = $t;
+            #[export_name = concat!("sinew_k_", $tag, "_conv_n_", $name)]
+            fn conv_n(w: &[[T; $kc]; $f], b: &[T; $f], x: &[T; $i], out: &mut [T; $o], g: &Window) {
+                rt::conv::conv_n(w, b, x, out, g)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_conv_acc_n_", $name)]
+            fn conv_acc_n(
+                gw: &mut [[T; $kc]; $f],
+                gb: &mut [T; $f],
+                err: &[T; $o],
+                x: &[T; $i],
+                g: &Window,
+            ) {
+                rt::conv::conv_acc_n(gw, gb, err, x, g)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_conv_back_n_", $name)]
+            fn conv_back_n(w: &[[T; $kc]; $f], err: &[T; $o], dx: &mut [T; $i], g: &Window) {
+                rt::conv::conv_back_n(w, err, dx, g)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_depthwise_n_", $name)]
+            fn depthwise_n(
+                w: &[[T; $k]; $c],
+                b: &[T; $c],
+                x: &[T; $i],
+                out: &mut [T; $od],
+                g: &Window,
+            ) {
+                rt::conv::depthwise_n(w, b, x, out, g)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_depthwise_acc_n_", $name)]
+            fn depthwise_acc_n(
+                gw: &mut [[T; $k]; $c],
+                gb: &mut [T; $c],
+                err: &[T; $od],
+                x: &[T; $i],
+                g: &Window,
+            ) {
+                rt::conv::depthwise_acc_n(gw, gb, err, x, g)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_depthwise_back_n_", $name)]
+            fn depthwise_back_n(w: &[[T; $k]; $c], err: &[T; $od], dx: &mut [T; $i], g: &Window) {
+                rt::conv::depthwise_back_n(w, err, dx, g)
+            }
+        };
+    };
+}
+
+/// The const-generic array forms of the pooling kernels for an input of `$i` values and an
+/// output of `$o`.
+macro_rules! pooled {
+    ($t:ty, $tag:literal, $i:literal, $o:literal) => {
+        const _: () = {
+            type T = $t;
+            #[export_name = concat!("sinew_k_", $tag, "_pool_n_", $i, "x", $o)]
+            fn pool_n(
+                x: &[T; $i],
+                err: &[T; $o],
+                out: &mut [[T; $o]; 2],
+                dx: &mut [[T; $i]; 2],
+                g: &Window,
+            ) {
+                let [max, average] = out;
+                let [dmax, daverage] = dx;
+                rt::conv::pool_max_n(x, max, g);
+                rt::conv::pool_average_n(x, average, g);
+                rt::conv::pool_max_back_n(x, err, dmax, g);
+                rt::conv::pool_average_back_n(err, daverage, g);
+            }
+        };
+    };
+}
+
 /// Every generic kernel for the scalar `$t`, exported as `sinew_k_<$tag>_<name>`.
 macro_rules! kernels {
     ($t:ty, $tag:literal) => {
         shaped!($t, $tag, 1, 1);
         shaped!($t, $tag, 5, 3);
         shaped!($t, $tag, 20, 17);
+        // conv: a 1-D window of 8 steps x 2 channels (3 filters, kernel 3: 6 positions; pooling
+        // by 2: 4) and a 2-D map of 4 x 4 x 2 (2 filters, 3 x 3: 16 positions; pooling 2 x 2: 4).
+        windowed!($t, $tag, "line", 6, 3, 3, 2, 16, 18, 12);
+        windowed!($t, $tag, "square", 18, 2, 9, 2, 32, 32, 32);
+        pooled!($t, $tag, 16, 8);
+        pooled!($t, $tag, 32, 8);
         const _: () = {
             type T = $t;
 
@@ -315,6 +402,91 @@ macro_rules! kernels {
                 rt::linalg::add_acc_batch(g, ds)
             }
 
+            // conv, slice forms
+            #[export_name = concat!("sinew_k_", $tag, "_conv")]
+            fn conv(
+                w: &[T],
+                b: &[T],
+                x: &[T],
+                out: &mut [T],
+                g: &Window,
+            ) -> Result<(), LengthMismatch> {
+                rt::conv::conv(w, b, x, out, g)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_conv_acc")]
+            fn conv_acc(
+                gw: &mut [T],
+                gb: &mut [T],
+                err: &[T],
+                x: &[T],
+                g: &Window,
+            ) -> Result<(), LengthMismatch> {
+                rt::conv::conv_acc(gw, gb, err, x, g)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_conv_back")]
+            fn conv_back(
+                w: &[T],
+                err: &[T],
+                dx: &mut [T],
+                g: &Window,
+            ) -> Result<(), LengthMismatch> {
+                rt::conv::conv_back(w, err, dx, g)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_depthwise")]
+            fn depthwise(
+                w: &[T],
+                b: &[T],
+                x: &[T],
+                out: &mut [T],
+                g: &Window,
+            ) -> Result<(), LengthMismatch> {
+                rt::conv::depthwise(w, b, x, out, g)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_depthwise_acc")]
+            fn depthwise_acc(
+                gw: &mut [T],
+                gb: &mut [T],
+                err: &[T],
+                x: &[T],
+                g: &Window,
+            ) -> Result<(), LengthMismatch> {
+                rt::conv::depthwise_acc(gw, gb, err, x, g)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_depthwise_back")]
+            fn depthwise_back(
+                w: &[T],
+                err: &[T],
+                dx: &mut [T],
+                g: &Window,
+            ) -> Result<(), LengthMismatch> {
+                rt::conv::depthwise_back(w, err, dx, g)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_pool_max")]
+            fn pool_max(x: &[T], out: &mut [T], g: &Window) -> Result<(), LengthMismatch> {
+                rt::conv::pool_max(x, out, g)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_pool_max_back")]
+            fn pool_max_back(
+                x: &[T],
+                err: &[T],
+                dx: &mut [T],
+                g: &Window,
+            ) -> Result<(), LengthMismatch> {
+                rt::conv::pool_max_back(x, err, dx, g)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_pool_average")]
+            fn pool_average(x: &[T], out: &mut [T], g: &Window) -> Result<(), LengthMismatch> {
+                rt::conv::pool_average(x, out, g)
+            }
+            #[export_name = concat!("sinew_k_", $tag, "_pool_average_back")]
+            fn pool_average_back(
+                err: &[T],
+                dx: &mut [T],
+                g: &Window,
+            ) -> Result<(), LengthMismatch> {
+                rt::conv::pool_average_back(err, dx, g)
+            }
+
             // loss
             #[export_name = concat!("sinew_k_", $tag, "_softplus")]
             fn softplus(z: T) -> T {
@@ -478,12 +650,22 @@ macro_rules! kernels {
 kernels!(f32, "f32");
 kernels!(f64, "f64");
 
-// The functions of no scalar: the length rule, the blob's bytes, sinew's own f32 functions, the
-// generator.
+// The functions of no scalar: the length rule, the window's sizes, the blob's bytes, sinew's own
+// f32 functions, the generator.
 
 #[no_mangle]
 fn sinew_k_length_check(expected: usize, found: usize) -> Result<(), LengthMismatch> {
     LengthMismatch::check("operand", expected, found)
+}
+
+#[no_mangle]
+fn sinew_k_window(g: &Window) -> [usize; 4] {
+    [
+        Window::in_len(g),
+        Window::positions(g),
+        Window::taps(g),
+        Window::filter_len(g),
+    ]
 }
 
 #[no_mangle]
