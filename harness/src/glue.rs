@@ -43,7 +43,13 @@ pub fn net_impl(model: &Model, spec: SpecFile<'_>, unrolled: bool) -> String {
     let mut each_mut = String::new();
     let mut each = String::new();
     let mut each_grad = String::new();
-    for l in &names.layers {
+    // A pooling has no parameters, hence no fields.
+    for (l, _) in names
+        .layers
+        .iter()
+        .zip(model.layers())
+        .filter(|(_, ml)| ml.parameters() > 0)
+    {
         let (w, b) = (&l.weights, &l.bias);
         let _ = write!(
             each_mut,

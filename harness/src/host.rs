@@ -7,7 +7,7 @@
 use crate::Net;
 use num_dual::{Dual64, DualNum};
 use sinew::engine;
-use sinew::ir::{Activation, Loss, Model, Penalty, Scalar};
+use sinew::ir::{Activation, LayerKind, Loss, Model, Penalty, PoolOp, Scalar};
 use sinew::weights::{FlatLayer, Standardization};
 use sinew_runtime::rng::SplitMix64;
 use sinew_runtime::Real;
@@ -202,15 +202,22 @@ pub fn reference_cost<D: DualNum<f64> + Copy>(
             let w = &params[offset..offset + layer.width * n];
             let b = &params[offset + layer.width * n..offset + layer.parameters()];
             offset += layer.parameters();
-            let mut z: Vec<D> = (0..layer.width)
-                .map(|j| {
-                    let mut s = b[j];
-                    for i in 0..n {
-                        s += w[j * n + i] * a[i];
-                    }
-                    s
-                })
-                .collect();
+            let mut z: Vec<D> = match layer.kind {
+                LayerKind::Dense => (0..layer.width)
+                    .map(|j| {
+                        let mut s = b[j];
+                        for i in 0..n {
+                            s += w[j * n + i] * a[i];
+                        }
+                        s
+                    })
+                    .collect(),
+                kind => {
+                    let (z, gap) = windowed(kind, w, b, &a);
+                    min_kink = min_kink.min(gap);
+                    z
+                }
+            };
             if matches!(
                 layer.activation,
                 Activation::Relu | Activation::LeakyRelu(_)
@@ -289,6 +296,91 @@ pub fn reference_cost<D: DualNum<f64> + Copy>(
         Penalty::L1(l) => weights_sum * (l / m),
     };
     (total / m + penalty, min_kink)
+}
+
+/// A sliding-window layer written from its formulas (the reference's "Shapes" section), with
+/// the zero padding made explicit by index arithmetic: output position `(oy, ox)` reads input
+/// `(oy s + ky - pad_top, ox s + kx - pad_left)` when that lies inside the map, and zero
+/// otherwise. Maps are `[rows][cols][channels]`, channel fastest; conv weights `[F][KH][KW][C]`,
+/// depthwise `[C][KH][KW]`. Also returns, for max pooling, the smallest gap between a window's
+/// largest and second-largest value (a tie is where the maximum is not differentiable).
+fn windowed<D: DualNum<f64> + Copy>(kind: LayerKind, w: &[D], b: &[D], a: &[D]) -> (Vec<D>, f64) {
+    let g = *kind.window().expect("a sliding-window layer");
+    let at = |oy: usize, ox: usize, ky: usize, kx: usize| -> Option<usize> {
+        let iy = (oy * g.stride_rows + ky) as i64 - g.pad_top as i64;
+        let ix = (ox * g.stride_cols + kx) as i64 - g.pad_left as i64;
+        (iy >= 0 && ix >= 0 && (iy as usize) < g.rows && (ix as usize) < g.cols)
+            .then(|| iy as usize * g.cols + ix as usize)
+    };
+    let c_n = g.channels;
+    let mut out = Vec::new();
+    let mut gap = f64::INFINITY;
+    for oy in 0..g.out_rows {
+        for ox in 0..g.out_cols {
+            match kind {
+                LayerKind::Conv { .. } => {
+                    for f in 0..b.len() {
+                        let mut s = b[f];
+                        for ky in 0..g.k_rows {
+                            for kx in 0..g.k_cols {
+                                if let Some(p) = at(oy, ox, ky, kx) {
+                                    for c in 0..c_n {
+                                        let wi = ((f * g.k_rows + ky) * g.k_cols + kx) * c_n + c;
+                                        s += w[wi] * a[p * c_n + c];
+                                    }
+                                }
+                            }
+                        }
+                        out.push(s);
+                    }
+                }
+                LayerKind::Depthwise { .. } => {
+                    for c in 0..c_n {
+                        let mut s = b[c];
+                        for ky in 0..g.k_rows {
+                            for kx in 0..g.k_cols {
+                                if let Some(p) = at(oy, ox, ky, kx) {
+                                    s += w[(c * g.k_rows + ky) * g.k_cols + kx] * a[p * c_n + c];
+                                }
+                            }
+                        }
+                        out.push(s);
+                    }
+                }
+                LayerKind::Pool { op, .. } => {
+                    for c in 0..c_n {
+                        let taps: Vec<D> = (0..g.k_rows)
+                            .flat_map(|ky| (0..g.k_cols).map(move |kx| (ky, kx)))
+                            .filter_map(|(ky, kx)| at(oy, ox, ky, kx))
+                            .map(|p| a[p * c_n + c])
+                            .collect();
+                        match op {
+                            PoolOp::Average => {
+                                let sum = taps.iter().fold(D::from(0.0), |s, v| s + *v);
+                                out.push(sum / (g.k_rows * g.k_cols) as f64);
+                            }
+                            PoolOp::Max => {
+                                let mut best = taps[0];
+                                for t in &taps[1..] {
+                                    if t.re() > best.re() {
+                                        best = *t;
+                                    }
+                                }
+                                let mut res: Vec<f64> = taps.iter().map(|t| t.re()).collect();
+                                res.sort_by(|x, y| y.total_cmp(x));
+                                if res.len() > 1 {
+                                    gap = gap.min(res[0] - res[1]);
+                                }
+                                out.push(best);
+                            }
+                        }
+                    }
+                }
+                LayerKind::Dense => unreachable!("dense layers are not windows"),
+            }
+        }
+    }
+    (out, gap)
 }
 
 /// Relative error `|a - b| / max(|a| + |b|, floor)`.

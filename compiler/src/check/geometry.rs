@@ -53,7 +53,6 @@ pub(crate) fn size(w: &Integer, whose: &str, what: &str, diags: &mut Vec<Diagnos
             format!("{whose} has {what} {v}")
         }
     };
-    let singular = what.trim_end_matches('s');
     match whole(w) {
         Some(0) => {
             diags.push(

@@ -591,9 +591,18 @@ pub(super) fn block(cx: &Ctx, steps: &[Step]) -> TokenStream {
             } => {
                 let (x, d, o) = (name(input), name(err), name(out));
                 let call = window_back_call(cx, layer, op, quote!(x_row), quote!(d_row), quote!(o_row));
-                quote! {
-                    for ((x_row, d_row), o_row) in #x.iter().zip(#d.iter()).zip(#o.iter_mut()) {
-                        #call
+                // Only max pooling reads the layer's input on the way back.
+                if op == WindowOp::MaxPool {
+                    quote! {
+                        for ((x_row, d_row), o_row) in #x.iter().zip(#d.iter()).zip(#o.iter_mut()) {
+                            #call
+                        }
+                    }
+                } else {
+                    quote! {
+                        for (d_row, o_row) in #d.iter().zip(#o.iter_mut()) {
+                            #call
+                        }
                     }
                 }
             }
