@@ -57,7 +57,7 @@ pub(crate) fn size(w: &Integer, whose: &str, what: &str, diags: &mut Vec<Diagnos
         Some(0) => {
             diags.push(
                 Diagnostic::error(Code::S0401, has("0"), w.span)
-                    .label("0 here")
+                    .label(if what == "width" { "0 units" } else { "0 here" })
                     .with_help(if counted {
                         "every size of a shape is at least 1".to_string()
                     } else {
@@ -74,7 +74,7 @@ pub(crate) fn size(w: &Integer, whose: &str, what: &str, diags: &mut Vec<Diagnos
                     format!("{}, above the limit of {MAX_WIDTH}", has(&quote(&w.node))),
                     w.span,
                 )
-                .label("too large")
+                .label(if what == "width" { "too wide" } else { "too large" })
                 .with_help(if counted {
                     format!("at most {MAX_WIDTH} {what}")
                 } else {

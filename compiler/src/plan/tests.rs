@@ -25,6 +25,10 @@ fn reads(step: &Step) -> Vec<Buf> {
         Step::ActivationGrad { act_of, err, .. } => vec![act_of, err],
         Step::OuterAcc { err, input, .. } => vec![err, input],
         Step::AddAcc { err, .. } | Step::Back { err, .. } => vec![err],
+        Step::Window { input, .. } => vec![input],
+        Step::WindowAcc { err, input, .. } | Step::WindowBack { err, input, .. } => {
+            vec![err, input]
+        }
     }
 }
 
@@ -247,4 +251,83 @@ fn every_pass_of_every_sample_reads_only_what_it_wrote() {
         seen += 1;
     }
     assert!(seen >= 10, "only {seen} specs found");
+}
+
+#[test]
+fn sliding_window_layers_lower_to_window_steps_and_poolings_have_no_parameters() {
+    let m = model(
+        "input w 12 x 2 unscaled\nlayer c conv 3 kernel 3 relu\nlayer p pool max 2\n\
+         layer d depthwise kernel 2 tanh\noutput y 2 softmax\nloss cross_entropy\n",
+    );
+    let plan = Plan::new(&m);
+    for pass in [&plan.inference, &plan.loss, &plan.backprop] {
+        assert_well_formed(&plan, pass);
+    }
+    // Buffers hold the maps: 10 x 3, 5 x 3, 4 x 3.
+    assert_eq!(plan.width(Buf::Act(0)), Some(30));
+    assert_eq!(plan.width(Buf::Act(1)), Some(15));
+    assert_eq!(plan.width(Buf::Err(2)), Some(12));
+    assert_eq!(
+        plan.inference[..3],
+        [
+            Step::Window {
+                layer: 0,
+                op: WindowOp::Conv,
+                input: Buf::Input,
+                out: Buf::Act(0)
+            },
+            Step::Activate {
+                act: Relu,
+                buf: Buf::Act(0)
+            },
+            Step::Window {
+                layer: 1,
+                op: WindowOp::MaxPool,
+                input: Buf::Act(0),
+                out: Buf::Act(1)
+            },
+        ]
+    );
+    // From the top: the pooling sends its errors down (reading its input for the maxima) and
+    // has nothing to accumulate; the first layer sends nothing below it.
+    let tail: Vec<Step> = plan
+        .backprop
+        .iter()
+        .copied()
+        .skip_while(|s| !matches!(s, Step::WindowBack { layer: 1, .. }))
+        .collect();
+    assert_eq!(
+        tail,
+        [
+            Step::WindowBack {
+                layer: 1,
+                op: WindowOp::MaxPool,
+                input: Buf::Act(0),
+                err: Buf::Err(1),
+                out: Buf::Err(0)
+            },
+            Step::ActivationGrad {
+                act: Relu,
+                act_of: Buf::Act(0),
+                err: Buf::Err(0)
+            },
+            Step::WindowAcc {
+                layer: 0,
+                op: WindowOp::Conv,
+                err: Buf::Err(0),
+                input: Buf::Input
+            },
+        ]
+    );
+    assert_eq!(
+        plan.params,
+        [
+            ParamArray::Weights(0),
+            ParamArray::Bias(0),
+            ParamArray::Weights(2),
+            ParamArray::Bias(2),
+            ParamArray::Weights(3),
+            ParamArray::Bias(3),
+        ]
+    );
 }

@@ -317,12 +317,17 @@ fn second_text(pair: Pair<'_, Rule>, off: usize) -> Option<Spanned<String>> {
 
 /// Sizes separated by `x` (a `dims` pair).
 fn dims(pair: Pair<'_, Rule>, off: usize) -> Dims {
-    let span = span_of(&pair, off);
-    let sizes = pair
+    let sizes: Vec<Spanned<String>> = pair
+        .clone()
         .into_inner()
         .filter(|p| p.as_rule() == Rule::width)
         .map(|p| text(&p, off))
         .collect();
+    // From the first size to the last (the pair may hold the spaces after them).
+    let span = match (sizes.first(), sizes.last()) {
+        (Some(a), Some(b)) => Span::new(a.span.start, b.span.end),
+        _ => span_of(&pair, off),
+    };
     Dims { span, sizes }
 }
 
