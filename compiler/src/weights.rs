@@ -309,7 +309,23 @@ impl Weights {
         }
     }
 
-    /// Per-layer [`FlatLayer`]s, the layout [`Weights::from_params`] takes.
+    /// One [`FlatLayer`] per layer of `model`, in its order: the file's layers, with an empty
+    /// entry for each pooling (which has no parameters and no entry in the file). The layout the
+    /// engine's `Params::from_f64`, [`crate::emit::Trained`] and [`Weights::from_params`] take.
+    pub fn layers_of(&self, model: &Model) -> Vec<FlatLayer> {
+        let mut file = self.layers_flat().into_iter();
+        model
+            .layers
+            .iter()
+            .map(|l| match l.parameters() {
+                0 => FlatLayer::default(),
+                _ => file.next().unwrap_or_default(),
+            })
+            .collect()
+    }
+
+    /// The file's layers as [`FlatLayer`]s (a pooling has none), in the order of the device
+    /// blob.
     pub fn layers_flat(&self) -> Vec<FlatLayer> {
         self.layers
             .iter()
@@ -540,19 +556,9 @@ impl Weights {
     /// to make a [`crate::emit::Trained`], so the emitter never checks shapes again.
     pub fn fit<'m>(&self, model: &'m Model) -> Result<crate::emit::Trained<'m>, WeightsError> {
         self.check_against(model)?;
-        // One entry per layer of the model: a pooling's is empty.
-        let mut file = self.layers_flat().into_iter();
-        let layers = model
-            .layers
-            .iter()
-            .map(|l| match l.parameters() {
-                0 => FlatLayer::default(),
-                _ => file.next().unwrap_or_default(),
-            })
-            .collect();
         Ok(crate::emit::Trained {
             model,
-            layers,
+            layers: self.layers_of(model),
             standardization: self.standardization.clone(),
         })
     }
@@ -619,9 +625,14 @@ impl Weights {
             return Err(err(
                 Code::F08,
                 format!(
-                    "the file has {} layers, the spec declares {} with parameters ({})",
+                    "the file has {} layers, the spec declares {}{} ({})",
                     self.layers.len(),
                     layers.len(),
+                    if layers.len() < model.layers.len() {
+                        " with parameters (a pooling has no entry)"
+                    } else {
+                        ""
+                    },
                     names.join(", ")
                 ),
             ));

@@ -12,7 +12,7 @@ use sinew_runtime::Real;
 /// The engine parameters of a weights file. A model declared `standardize` whose file holds no
 /// statistics gets the neutral ones (mean 0, std 1) of [`Params::zeroed`].
 pub fn params_of<T: Real>(model: &Model, w: &Weights) -> Params<T> {
-    let layers = w.layers_flat();
+    let layers = w.layers_of(model);
     let mut p = Params::<T>::from_f64(&layers, w.standardization.as_ref());
     if model.input.standardize && p.mean.is_empty() {
         let z = Params::<T>::zeroed(model);
