@@ -9,6 +9,8 @@ use std::path::{Path, PathBuf};
 
 const SPEC: &str = "../pump_health.sinew";
 const WEIGHTS: &str = "pump_health.weights.json";
+const WINDOW_SPEC: &str = "../gearbox_window.sinew";
+const WINDOW_WEIGHTS: &str = "gearbox_window.weights.json";
 
 /// The memory map (for the `memory.x` of cortex-m-rt and riscv-rt) of each supported target's
 /// emulated board.
@@ -30,8 +32,10 @@ fn main() -> Result<(), Box<dyn Error>> {
     }
 
     // The model with its trained weights baked in as `pump_health::TRAINED`: OUT_DIR/pump_health.rs.
+    // The shaped model (a window classifier) the same way: OUT_DIR/gearbox_window.rs.
     sinew::Builder::new()
         .spec_with_weights(SPEC, WEIGHTS)
+        .spec_with_weights(WINDOW_SPEC, WINDOW_WEIGHTS)
         .compile()?;
 
     // The same weights as a device weight blob, the bytes `sinew pack` writes.

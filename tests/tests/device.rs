@@ -350,6 +350,7 @@ fn host() -> Host {
         saved.len(),
         stored_crc(&saved)
     ));
+    lines.extend(window_lines(&dir));
     lines.push("done ok=1".into());
     let report = Report::of(&model);
     Host {
@@ -357,6 +358,48 @@ fn host() -> Host {
         report,
         lines,
     }
+}
+
+/// What the shaped model prints on the device (`run_window` of `samples/device/src/lib.rs`),
+/// recomputed with the engine: inference on the raw windows with the committed weights, the
+/// on-device training steps from them, the outputs after training.
+fn window_lines(dir: &Path) -> Vec<String> {
+    let spec = std::fs::read_to_string(repo().join("samples/gearbox_window.sinew")).expect("spec");
+    let model = sinew::check_source(&spec).model.expect("the spec checks");
+    let weights =
+        sinew::weights::Weights::load_checked(&dir.join("gearbox_window.weights.json"), &model)
+            .expect("the committed weights fit the spec");
+    let s = weights.standardization.as_ref().expect("standardized");
+    let params = Params::<f32>::from_f64(&weights.layers_of(&model), Some(s));
+    let net = Net::new(&model);
+    let mut scratch = Scratch::new(&model);
+    let outputs = model.output().width;
+    let mut lines = Vec::new();
+    for (i, x) in demo::WINDOWS.iter().enumerate() {
+        let mut out = vec![0.0f32; outputs];
+        net.predict(&params, x, &mut scratch, &mut out)
+            .expect("operands of the model's widths");
+        lines.push(format!("window {i} {}", classified(&model, &out)));
+    }
+    let xs: Vec<f32> = demo::WINDOW_NEW.iter().flatten().copied().collect();
+    let ys: Vec<f32> = demo::WINDOW_LABELS
+        .iter()
+        .flat_map(|&l| (0..outputs).map(move |k| if k == l { 1.0 } else { 0.0 }))
+        .collect();
+    let mut trainer = Trainer::new(&model, params);
+    for step in 0..demo::WINDOW_STEPS {
+        let cost = trainer
+            .step(&xs, &ys)
+            .expect("operands of the model's widths");
+        lines.push(format!("window_train {step} cost={}", bits(cost)));
+    }
+    for (i, x) in demo::WINDOW_NEW.iter().enumerate() {
+        let mut out = vec![0.0f32; outputs];
+        net.predict(&trainer.params, x, &mut scratch, &mut out)
+            .expect("operands of the model's widths");
+        lines.push(format!("window_after {i} {}", classified(&model, &out)));
+    }
+    lines
 }
 
 // ---------------------------------------------------------------------------------------------

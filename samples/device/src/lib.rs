@@ -18,6 +18,7 @@
 #![deny(missing_docs)]
 
 include!(concat!(env!("OUT_DIR"), "/pump_health.rs"));
+include!(concat!(env!("OUT_DIR"), "/gearbox_window.rs"));
 
 pub mod line;
 pub mod stack;
@@ -210,8 +211,9 @@ fn load_result(r: Result<(), sinew_runtime::blob::BlobError>) -> &'static str {
 /// after I class=C:NAME p=H out=H,H,H                  one per confirmed sample
 /// saved written=N crc=HHHHHHHH
 /// stack predict=N step=N painted=N
-/// done ok=1
 /// ```
+///
+/// The shaped model's lines ([`run_window`]) and `done ok=1` ([`done`]) follow.
 pub fn run(target: &str, out: &mut impl Console, ws: &mut Workspace) -> bool {
     let trained = &pump_health::TRAINED;
     let mut ok = true;
@@ -354,8 +356,84 @@ pub fn run(target: &str, out: &mut impl Console, ws: &mut Workspace) -> bool {
         .dec(predict.1.min(step.1))
         .send(out);
 
-    line.text("done ok=").dec(usize::from(ok)).send(out);
     ok
+}
+
+/// One inference of the shaped model: the function whose instructions the figures report.
+#[inline(never)]
+pub fn infer_window(
+    params: &gearbox_window::Params,
+    x: &[f32; gearbox_window::INPUTS],
+) -> [f32; gearbox_window::OUTPUTS] {
+    params.predict(x)
+}
+
+/// One on-device training step of the shaped model.
+#[inline(never)]
+pub fn train_window_step(
+    trainer: &mut gearbox_window::Trainer,
+    xs: &[[f32; gearbox_window::INPUTS]],
+    ys: &[[f32; gearbox_window::OUTPUTS]],
+) -> f32 {
+    trainer.step(xs, ys)
+}
+
+fn classified_window(line: &mut Line, params: &gearbox_window::Params, x: &[f32; gearbox_window::INPUTS]) {
+    let out = infer_window(params, x);
+    let (class, p) = params.classify(x);
+    line.text(" class=")
+        .dec(class.index())
+        .text(":")
+        .text(class.name())
+        .text(" p=")
+        .bits(p)
+        .text(" out=")
+        .bits_list(&out);
+}
+
+/// The shaped model (`samples/gearbox_window.sinew`: a convolution over 48 steps of three
+/// axes, a depthwise convolution, both poolings, dense layers) on the device, with `trainer`
+/// started from its baked weights. Lines (`H` an `f32` bit pattern):
+///
+/// ```text
+/// window I class=C:NAME p=H out=H,H,H                 one per raw window
+/// window_train S cost=H                               one per step, the cost before the step
+/// window_after I class=C:NAME p=H out=H,H,H           one per confirmed window
+/// ```
+///
+/// Returns whether the cost fell.
+pub fn run_window(out: &mut impl Console, trainer: &mut gearbox_window::Trainer) -> bool {
+    let mut line = Line::new();
+    for (i, x) in demo::WINDOWS.iter().enumerate() {
+        line.text("window ").dec(i);
+        classified_window(&mut line, &gearbox_window::TRAINED, x);
+        line.send(out);
+    }
+    let mut ys = [[0.0f32; gearbox_window::OUTPUTS]; demo::WINDOW_LABELS.len()];
+    for (y, &label) in ys.iter_mut().zip(demo::WINDOW_LABELS.iter()) {
+        *y = gearbox_window::Class::from_index(label).map_or(*y, gearbox_window::Class::target);
+    }
+    let mut first = 0.0f32;
+    let mut last = 0.0f32;
+    for s in 0..demo::WINDOW_STEPS {
+        let cost = train_window_step(trainer, &demo::WINDOW_NEW, &ys);
+        if s == 0 {
+            first = cost;
+        }
+        last = cost;
+        line.text("window_train ").dec(s).text(" cost=").bits(cost).send(out);
+    }
+    for (i, x) in demo::WINDOW_NEW.iter().enumerate() {
+        line.text("window_after ").dec(i);
+        classified_window(&mut line, &trainer.params, x);
+        line.send(out);
+    }
+    last < first
+}
+
+/// The last line: `done ok=1` when every check passed.
+pub fn done(out: &mut impl Console, ok: bool) {
+    Line::new().text("done ok=").dec(usize::from(ok)).send(out);
 }
 
 /// `(bytes used, bytes painted)` of a call; `(0, 0)` off the boards.
