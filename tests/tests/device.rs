@@ -248,6 +248,8 @@ fn emulate(board: &Board, elf: &Path, extra: &[&str]) -> Result<(Option<i32>, St
 struct Host {
     model: Model,
     report: Report,
+    /// The report of the shaped model.
+    window_report: Report,
     /// Every line after the header, but the stack line.
     lines: Vec<String>,
 }
@@ -350,12 +352,14 @@ fn host() -> Host {
         saved.len(),
         stored_crc(&saved)
     ));
-    lines.extend(window_lines(&dir));
+    let (window, window_report) = window_lines(&dir);
+    lines.extend(window);
     lines.push("done ok=1".into());
     let report = Report::of(&model);
     Host {
         model,
         report,
+        window_report,
         lines,
     }
 }
@@ -363,7 +367,7 @@ fn host() -> Host {
 /// What the shaped model prints on the device (`run_window` of `samples/device/src/lib.rs`),
 /// recomputed with the engine: inference on the raw windows with the committed weights, the
 /// on-device training steps from them, the outputs after training.
-fn window_lines(dir: &Path) -> Vec<String> {
+fn window_lines(dir: &Path) -> (Vec<String>, Report) {
     let spec = std::fs::read_to_string(repo().join("samples/gearbox_window.sinew")).expect("spec");
     let model = sinew::check_source(&spec).model.expect("the spec checks");
     let weights =
@@ -399,7 +403,7 @@ fn window_lines(dir: &Path) -> Vec<String> {
             .expect("operands of the model's widths");
         lines.push(format!("window_after {i} {}", classified(&model, &out)));
     }
-    lines
+    (lines, Report::of(&model))
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -679,6 +683,9 @@ fn frames(img: &Image) -> Frames {
 struct Counts {
     infer: u64,
     step: u64,
+    /// The shaped model (`gearbox_window`): one inference, one training step.
+    window_infer: u64,
+    window_step: u64,
 }
 
 /// The QEMU options for one guest instruction per translation block: `-accel
@@ -714,6 +721,8 @@ fn count_instructions(board: &Board, elf: &Path, img: &Image) -> Result<Counts, 
         (mark("mark_empty_begin")?, mark("mark_empty_end")?),
         (mark("mark_infer_begin")?, mark("mark_infer_end")?),
         (mark("mark_step_begin")?, mark("mark_step_end")?),
+        (mark("mark_window_begin")?, mark("mark_window_end")?),
+        (mark("mark_window_step_begin")?, mark("mark_window_step_end")?),
     ];
     let log = std::env::temp_dir().join(format!(
         "sinew-device-exec-{}-{}.log",
@@ -731,7 +740,7 @@ fn count_instructions(board: &Board, elf: &Path, img: &Image) -> Result<Counts, 
     let file = std::fs::File::open(&log).map_err(|e| format!("{log_s}: {e}"))?;
     let lines = std::io::BufRead::lines(std::io::BufReader::new(file));
     // Each line is one executed instruction: `Trace 0: HOST [CS_BASE/PC/FLAGS/CFLAGS] SYMBOL`.
-    let mut counts = [0u64; 3];
+    let mut counts = [0u64; 5];
     let mut k = 0;
     let mut open = false;
     for line in lines {
@@ -767,6 +776,8 @@ fn count_instructions(board: &Board, elf: &Path, img: &Image) -> Result<Counts, 
     Ok(Counts {
         infer: counts[1] - counts[0],
         step: counts[2] - counts[0],
+        window_infer: counts[3] - counts[0],
+        window_step: counts[4] - counts[0],
     })
 }
 
@@ -1061,6 +1072,27 @@ fn figures(host: &Host, rows: &[Row]) -> String {
             f.weights,
             row.counts.infer,
             row.counts.step
+        );
+    }
+    let w = &host.window_report;
+    let _ = writeln!(
+        t,
+        "\nModel `gearbox_window` (48 x 3 window, conv 8 kernel 5 stride 2, depthwise 3, max pool 2, \
+         average pool, dense 8, softmax 3; f32, Adam): {} parameters, {} multiply-adds per \
+         inference and {} per training sample (report); flash for the weights and the input's \
+         mean and std {} B.\n",
+        w.parameters, w.macs_inference, w.macs_training, w.flash_bytes
+    );
+    let _ = writeln!(
+        t,
+        "| target | opt-level | instructions per inference | instructions per training step (6 windows) |"
+    );
+    let _ = writeln!(t, "| --- | --- | ---: | ---: |");
+    for row in rows {
+        let _ = writeln!(
+            t,
+            "| {} | {} | {} | {} |",
+            row.board.core, row.opt, row.counts.window_infer, row.counts.window_step
         );
     }
     let _ = writeln!(

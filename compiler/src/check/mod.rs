@@ -365,6 +365,17 @@ fn provisional(
 ) -> Option<ir::Model> {
     parts.budget?;
     let input = parts.input?;
+    // Figures only for a model within the limits (a larger one is an error already, and its
+    // byte counts could overflow).
+    let total: u128 = widths
+        .layers
+        .iter()
+        .flatten()
+        .map(|r| (r.width as u128) * (r.fan_in as u128) + r.width as u128)
+        .sum();
+    if total > shapes::MAX_PARAMETERS {
+        return None;
+    }
     let identity = |i: usize| {
         Some(
             activations

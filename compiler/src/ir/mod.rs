@@ -433,32 +433,34 @@ impl Layer {
     }
 
     /// Multiply-adds of its forward pass: each output value of a convolution sums the taps that
-    /// fall inside the input (padding adds none), a pooling none counted.
+    /// fall inside the input (padding adds none), a pooling none counted. Saturates at
+    /// `u64::MAX` (a checked model is far below).
     pub fn macs(&self) -> u64 {
-        let inside = |w: &Window| -> u64 {
-            // Taps inside the input, summed over the output positions.
-            let axis = |n: usize, k: usize, s: usize, pad: usize, out: usize| -> u64 {
-                (0..out)
-                    .map(|o| {
-                        (0..k)
-                            .filter(|&t| {
-                                (o * s + t).checked_sub(pad).is_some_and(|i| i < n)
-                            })
-                            .count() as u64
-                    })
-                    .sum()
-            };
+        // Taps inside the input along one axis, summed over its output positions: for output
+        // `o` the taps `t` with `0 <= o s + t - pad < n`, counted in closed form.
+        let axis = |n: usize, k: usize, s: usize, pad: usize, out: usize| -> u128 {
+            (0..out)
+                .map(|o| {
+                    let start = o * s;
+                    let lo = pad.saturating_sub(start);
+                    let hi = k.min((n + pad).saturating_sub(start));
+                    hi.saturating_sub(lo) as u128
+                })
+                .sum()
+        };
+        let inside = |w: &Window| {
             axis(w.rows, w.k_rows, w.stride_rows, w.pad_top, w.out_rows)
                 * axis(w.cols, w.k_cols, w.stride_cols, w.pad_left, w.out_cols)
         };
-        match &self.kind {
-            LayerKind::Dense => (self.width * self.fan_in) as u64,
+        let macs: u128 = match &self.kind {
+            LayerKind::Dense => self.width as u128 * self.fan_in as u128,
             LayerKind::Conv { window, .. } => {
-                inside(window) * (window.channels * self.width) as u64
+                inside(window) * window.channels as u128 * self.width as u128
             }
-            LayerKind::Depthwise { window, .. } => inside(window) * window.channels as u64,
+            LayerKind::Depthwise { window, .. } => inside(window) * window.channels as u128,
             LayerKind::Pool { .. } => 0,
-        }
+        };
+        u64::try_from(macs).unwrap_or(u64::MAX)
     }
 }
 

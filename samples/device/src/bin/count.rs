@@ -8,7 +8,9 @@
 #![deny(unsafe_code)]
 
 use core::hint::black_box;
-use sinew_device_sample::{board, demo, infer, pump_health, train_step};
+use sinew_device_sample::{
+    board, demo, gearbox_window, infer, infer_window, pump_health, train_step, train_window_step,
+};
 
 // Distinct bodies, so that no two markers are merged into one address.
 
@@ -48,6 +50,53 @@ pub fn mark_step_end() {
     black_box(6u32);
 }
 
+/// Start of the shaped model's inference.
+#[inline(never)]
+pub fn mark_window_begin() {
+    black_box(7u32);
+}
+
+/// End of the shaped model's inference.
+#[inline(never)]
+pub fn mark_window_end() {
+    black_box(8u32);
+}
+
+/// Start of the shaped model's training step.
+#[inline(never)]
+pub fn mark_window_step_begin() {
+    black_box(9u32);
+}
+
+/// End of the shaped model's training step.
+#[inline(never)]
+pub fn mark_window_step_end() {
+    black_box(10u32);
+}
+
+/// The shaped model's inference and one training step, in a frame of their own.
+#[inline(never)]
+fn window() {
+    let [x, ..] = demo::WINDOWS;
+    let x = black_box(x);
+    let params = black_box(&gearbox_window::TRAINED);
+    let mut ys = [[0.0f32; gearbox_window::OUTPUTS]; demo::WINDOW_LABELS.len()];
+    for (y, &label) in ys.iter_mut().zip(demo::WINDOW_LABELS.iter()) {
+        *y = gearbox_window::Class::from_index(label).map_or(*y, gearbox_window::Class::target);
+    }
+    let mut trainer = gearbox_window::Trainer::new(gearbox_window::TRAINED.clone());
+
+    mark_window_begin();
+    let out = infer_window(params, &x);
+    mark_window_end();
+
+    mark_window_step_begin();
+    let cost = train_window_step(&mut trainer, &demo::WINDOW_NEW, &ys);
+    mark_window_step_end();
+
+    black_box((out, cost));
+}
+
 #[cfg_attr(target_arch = "arm", cortex_m_rt::entry)]
 #[cfg_attr(target_arch = "riscv32", riscv_rt::entry)]
 fn main() -> ! {
@@ -72,5 +121,6 @@ fn main() -> ! {
     mark_step_end();
 
     black_box((out, cost));
+    window();
     board::exit(true)
 }
