@@ -12,7 +12,7 @@ pub fn dump(model: &Model) -> String {
         s,
         "input {} {}{}",
         model.input.name,
-        model.input.width,
+        model.input.shape.words(),
         if model.input.standardize {
             " standardize"
         } else {
