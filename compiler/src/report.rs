@@ -7,8 +7,11 @@
 //!   `standardize`, the per-feature mean and standard deviation. Machine code is measured on the
 //!   compiled firmware, not estimated here.
 //! - **inference RAM** (`ram_inference_bytes`): the buffers (`buffer_inference_bytes`: the
-//!   standardized input copy with `standardize`, and one activation buffer per layer; activations
-//!   are applied in place over `z`) plus the call frames of `predict` and the runtime kernels and
+//!   output, and the two halves that the other buffers alternate between: the standardized input
+//!   with `standardize`, then each hidden layer's activations, layer `k` written into one half
+//!   while layer `k - 1` is read from the other, each half as long as the longest buffer it holds
+//!   (`plan::Plan::inference_halves`); so only the largest buffers alive together count, not the
+//!   sum of all; activations are applied in place over `z`) plus the call frames of `predict` and the runtime kernels and
 //!   libm functions it calls (`frames_inference_bytes`, [`INFERENCE_FRAMES_F32`] for `f32`, twice
 //!   that for `f64`). The frames do not grow with the widths (the kernels loop over slices); their
 //!   allowance is the largest stack the device test (`tests/tests/device.rs`) paints on three
@@ -145,8 +148,12 @@ impl Report {
             Optimizer::Sgd { .. } => 1,
             Optimizer::Adam { .. } => 2,
         };
-        let inference_values = std_values + widths;
-        let training_values = parameters * (2 + optimizer_copies) + inference_values + out + widths;
+        // Inference holds two halves that the buffers alternate between, and the output
+        // (`plan::Plan::inference_halves`); training holds every buffer of a sample.
+        let (even, odd) = crate::plan::Plan::new(model).inference_halves();
+        let inference_values = (even + odd) as u64 + out;
+        let sample_values = std_values + widths;
+        let training_values = parameters * (2 + optimizer_copies) + sample_values + out + widths;
         // The frames hold scalars (accumulators, padded tails): they scale with the scalar size.
         let frames_inference = INFERENCE_FRAMES_F32 * b / 4;
         let frames_training = TRAINING_FRAMES_F32 * b / 4;

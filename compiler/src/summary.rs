@@ -126,7 +126,14 @@ pub fn table(model: &Model) -> String {
     let shaped = !model.input.shape.is_vector();
     let mut rows: Vec<Vec<String>> = Vec::new();
     let head: &[&str] = if shaped {
-        &["layer", "kind", "shape", "activation", "parameters", "mult-adds"]
+        &[
+            "layer",
+            "kind",
+            "shape",
+            "activation",
+            "parameters",
+            "mult-adds",
+        ]
     } else {
         &["layer", "units", "activation", "parameters", "mult-adds"]
     };
@@ -195,7 +202,13 @@ pub fn table(model: &Model) -> String {
             .iter()
             .zip(&widths)
             .zip(right)
-            .map(|((c, &w), &r)| if r { format!("{c:>w$}") } else { format!("{c:<w$}") })
+            .map(|((c, &w), &r)| {
+                if r {
+                    format!("{c:>w$}")
+                } else {
+                    format!("{c:<w$}")
+                }
+            })
             .collect();
         let _ = writeln!(s, "  {}", cells.join("  ").trim_end());
         if i == 0 {

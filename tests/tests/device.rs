@@ -414,6 +414,8 @@ struct DeviceRun {
     lines: Vec<String>,
     /// Painted stack of one inference and one training step, and the painted span.
     stack: (usize, usize, usize),
+    /// The same for the shaped model, and the bytes of its trainer.
+    window_stack: (usize, usize, usize, usize),
 }
 
 fn field(line: &str, key: &str) -> Option<usize> {
@@ -425,9 +427,18 @@ fn parse_run(out: &str) -> Result<DeviceRun, String> {
     let mut header = None;
     let mut lines = Vec::new();
     let mut stack = None;
+    let mut window_stack = None;
     for l in out.lines() {
         if l.starts_with("sinew-device ") {
             header = Some(l.to_string());
+        } else if l.starts_with("window_stack ") {
+            let get = |k| field(l, k).ok_or_else(|| format!("no {k} in `{l}`"));
+            window_stack = Some((
+                get("predict")?,
+                get("step")?,
+                get("painted")?,
+                get("trainer")?,
+            ));
         } else if l.starts_with("stack ") {
             let get = |k| field(l, k).ok_or_else(|| format!("no {k} in `{l}`"));
             stack = Some((get("predict")?, get("step")?, get("painted")?));
@@ -439,6 +450,7 @@ fn parse_run(out: &str) -> Result<DeviceRun, String> {
         header: header.ok_or_else(|| format!("no header line in:\n{out}"))?,
         lines,
         stack: stack.ok_or_else(|| format!("no stack line in:\n{out}"))?,
+        window_stack: window_stack.ok_or_else(|| format!("no window_stack line in:\n{out}"))?,
     })
 }
 
@@ -722,7 +734,10 @@ fn count_instructions(board: &Board, elf: &Path, img: &Image) -> Result<Counts, 
         (mark("mark_infer_begin")?, mark("mark_infer_end")?),
         (mark("mark_step_begin")?, mark("mark_step_end")?),
         (mark("mark_window_begin")?, mark("mark_window_end")?),
-        (mark("mark_window_step_begin")?, mark("mark_window_step_end")?),
+        (
+            mark("mark_window_step_begin")?,
+            mark("mark_window_step_end")?,
+        ),
     ];
     let log = std::env::temp_dir().join(format!(
         "sinew-device-exec-{}-{}.log",
@@ -790,6 +805,7 @@ struct Row {
     opt: &'static str,
     flash: Flash,
     stack: (usize, usize, usize),
+    window_stack: (usize, usize, usize, usize),
     frames: Option<Frames>,
     counts: Counts,
     trainer_bytes: usize,
@@ -835,6 +851,7 @@ fn firmware_on_emulated_boards_matches_the_workstation() {
                         opt,
                         flash: run.flash,
                         stack: run.stack,
+                        window_stack: run.window_stack,
                         frames: None,
                         counts: run.counts,
                         trainer_bytes: run.trainer_bytes,
@@ -902,6 +919,7 @@ struct Checked {
     header: String,
     flash: Flash,
     stack: (usize, usize, usize),
+    window_stack: (usize, usize, usize, usize),
     counts: Counts,
     trainer_bytes: usize,
     problems: Vec<String>,
@@ -1012,12 +1030,36 @@ fn check_run(board: &Board, dir: &Path, host: &Host) -> Result<Checked, String> 
             r.ram_training_bytes
         ));
     }
+    // The same bounds for the shaped model, whose inference holds two halves of working
+    // memory rather than every buffer.
+    let w = &host.window_report;
+    let (predict, step, painted, trainer) = got.window_stack;
+    if predict >= painted || step >= painted {
+        problems.push(format!(
+            "the shaped model's stack went below the {painted} painted bytes"
+        ));
+    }
+    if predict as u64 > w.ram_inference_bytes {
+        problems.push(format!(
+            "one inference of the shaped model used {predict} B of stack, more than the report's \
+             {} B",
+            w.ram_inference_bytes
+        ));
+    }
+    if (trainer + step) as u64 > w.ram_training_bytes {
+        problems.push(format!(
+            "training the shaped model used {trainer} B of trainer and {step} B of stack, more \
+             than the report's {} B",
+            w.ram_training_bytes
+        ));
+    }
     let count_elf = dir.join("count");
     let counts = count_instructions(board, &count_elf, &read_image(&count_elf, board.thumb))?;
     Ok(Checked {
         header: got.header,
         flash,
         stack: got.stack,
+        window_stack: got.window_stack,
         counts,
         trainer_bytes,
         problems,
@@ -1085,14 +1127,21 @@ fn figures(host: &Host, rows: &[Row]) -> String {
     );
     let _ = writeln!(
         t,
-        "| target | opt-level | instructions per inference | instructions per training step (6 windows) |"
+        "| target | opt-level | instructions per inference | instructions per training step (6 windows) | inference: report / painted stack | training: report / trainer + painted stack |"
     );
-    let _ = writeln!(t, "| --- | --- | ---: | ---: |");
+    let _ = writeln!(t, "| --- | --- | ---: | ---: | ---: | ---: |");
     for row in rows {
+        let (predict, step, _, trainer) = row.window_stack;
         let _ = writeln!(
             t,
-            "| {} | {} | {} | {} |",
-            row.board.core, row.opt, row.counts.window_infer, row.counts.window_step
+            "| {} | {} | {} | {} | {} B / {predict} B | {} B / {} B |",
+            row.board.core,
+            row.opt,
+            row.counts.window_infer,
+            row.counts.window_step,
+            w.ram_inference_bytes,
+            w.ram_training_bytes,
+            trainer + step
         );
     }
     let _ = writeln!(

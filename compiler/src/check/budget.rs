@@ -153,11 +153,7 @@ pub(crate) fn check(model: &Model, parts: &Parts<'_>, diags: &mut Vec<Diagnostic
                 size.span,
             )
             .label(format!("budget of {}", figure(limit)));
-            let widest = report
-                .layers
-                .iter()
-                .zip(&decls)
-                .max_by_key(|(l, _)| l.size);
+            let widest = report.layers.iter().zip(&decls).max_by_key(|(l, _)| l.size);
             if let Some((l, d_)) = widest {
                 d = d.with_secondary(
                     d_.size_span(),

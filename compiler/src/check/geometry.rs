@@ -43,7 +43,12 @@ pub(crate) struct Resolved {
 }
 
 /// One size: `S0401` for 0, `S0402` above [`MAX_WIDTH`].
-pub(crate) fn size(w: &Integer, whose: &str, what: &str, diags: &mut Vec<Diagnostic>) -> Option<usize> {
+pub(crate) fn size(
+    w: &Integer,
+    whose: &str,
+    what: &str,
+    diags: &mut Vec<Diagnostic>,
+) -> Option<usize> {
     // Counted nouns read "has 0 channels"; the others "has width 0".
     let counted = matches!(what, "steps" | "channels" | "rows" | "columns" | "filters");
     let has = |v: &str| {
@@ -74,7 +79,11 @@ pub(crate) fn size(w: &Integer, whose: &str, what: &str, diags: &mut Vec<Diagnos
                     format!("{}, above the limit of {MAX_WIDTH}", has(&quote(&w.node))),
                     w.span,
                 )
-                .label(if what == "width" { "too wide" } else { "too large" })
+                .label(if what == "width" {
+                    "too wide"
+                } else {
+                    "too large"
+                })
                 .with_help(if counted {
                     format!("at most {MAX_WIDTH} {what}")
                 } else {
@@ -92,7 +101,9 @@ fn map_limit(len: u128, whose: &str, words: &str, at: Span, diags: &mut Vec<Diag
         diags.push(
             Diagnostic::error(
                 Code::S0408,
-                format!("{whose} holds {words} = {len} values, above the limit of {MAX_MAP} (1 Mi)"),
+                format!(
+                    "{whose} holds {words} = {len} values, above the limit of {MAX_MAP} (1 Mi)"
+                ),
                 at,
             )
             .label("too many values")
@@ -110,7 +121,10 @@ pub(crate) fn input(name: &str, dims: &Dims, diags: &mut Vec<Diagnostic>) -> Opt
         diags.push(
             Diagnostic::error(
                 Code::S0409,
-                format!("{whose} has {} sizes; an input has at most 3", dims.sizes.len()),
+                format!(
+                    "{whose} has {} sizes; an input has at most 3",
+                    dims.sizes.len()
+                ),
                 dims.span,
             )
             .label("too many sizes")
@@ -150,7 +164,11 @@ pub(crate) fn input(name: &str, dims: &Dims, diags: &mut Vec<Diagnostic>) -> Opt
         _ => return None,
     };
     let len = sizes.iter().map(|&s| s as u128).product();
-    let words = sizes.iter().map(usize::to_string).collect::<Vec<_>>().join(" x ");
+    let words = sizes
+        .iter()
+        .map(usize::to_string)
+        .collect::<Vec<_>>()
+        .join(" x ");
     map_limit(len, &whose, &words, dims.span, diags).then_some(shape)
 }
 
@@ -170,7 +188,11 @@ pub(crate) struct Before<'a> {
 }
 
 /// The geometry of one layer after `before`.
-pub(crate) fn layer(decl: &LayerDecl, before: &Before<'_>, diags: &mut Vec<Diagnostic>) -> Option<Resolved> {
+pub(crate) fn layer(
+    decl: &LayerDecl,
+    before: &Before<'_>,
+    diags: &mut Vec<Diagnostic>,
+) -> Option<Resolved> {
     let whose = format!("layer `{}`", decl.name.node);
     match &decl.body {
         LayerBody::Dense { width } => {
@@ -247,20 +269,27 @@ pub(crate) fn layer(decl: &LayerDecl, before: &Before<'_>, diags: &mut Vec<Diagn
                 Some(s) => kernel_rank(s, input, window.span(), &whose, "pooling window", diags)?,
             };
             let mut ok = true;
-            for (k, n, axis) in [(k_rows, input.rows, rows_word(input)), (k_cols, input.cols, "columns")] {
+            for (k, n, axis) in [
+                (k_rows, input.rows, rows_word(input)),
+                (k_cols, input.cols, "columns"),
+            ] {
                 if k > n {
                     ok = false;
                     diags.push(
                         Diagnostic::error(
                             Code::S0406,
-                            format!(
-                                "{whose} pools windows of {k} {axis}, but its input has {n}"
-                            ),
+                            format!("{whose} pools windows of {k} {axis}, but its input has {n}"),
                             window.span(),
                         )
                         .label(format!("{k} {axis}"))
-                        .with_secondary(before.at, format!("{} gives {}", before.who, input.words()))
-                        .with_help(format!("use a window of at most {n}, or `pool {} all`", op_word(op.node))),
+                        .with_secondary(
+                            before.at,
+                            format!("{} gives {}", before.who, input.words()),
+                        )
+                        .with_help(format!(
+                            "use a window of at most {n}, or `pool {} all`",
+                            op_word(op.node)
+                        )),
                     );
                 }
             }
@@ -321,7 +350,12 @@ fn rows_word(s: Shape) -> &'static str {
 }
 
 /// The shape before a sliding-window layer: `S0407` when it is a vector.
-fn shaped(keyword: Span, word: &str, before: &Before<'_>, diags: &mut Vec<Diagnostic>) -> Option<Shape> {
+fn shaped(
+    keyword: Span,
+    word: &str,
+    before: &Before<'_>,
+    diags: &mut Vec<Diagnostic>,
+) -> Option<Shape> {
     if before.vector || before.shape.is_some_and(|s| s.is_vector()) {
         let of = before
             .shape
@@ -376,7 +410,10 @@ fn kernel_rank(
             diags.push(
                 Diagnostic::error(
                     Code::S0409,
-                    format!("{whose} has a {what} of {} sizes; it needs {want}", sizes.len()),
+                    format!(
+                        "{whose} has a {what} of {} sizes; it needs {want}",
+                        sizes.len()
+                    ),
                     at,
                 )
                 .label(format!("{} sizes", sizes.len()))
@@ -413,7 +450,9 @@ fn sliding(
             diags.push(
                 Diagnostic::error(Code::S0405, format!("{whose} has stride 0"), s.span)
                     .label("stride 0")
-                    .with_help("a stride is at least 1 (1 visits every position; it is the default)"),
+                    .with_help(
+                        "a stride is at least 1 (1 visits every position; it is the default)",
+                    ),
             );
             None
         }

@@ -62,9 +62,10 @@ pub(crate) fn widths(parts: &Parts<'_>, diags: &mut Vec<Diagnostic>) -> Widths {
         .collect();
     let mut before = geometry::Before {
         shape: input,
-        who: parts
-            .input
-            .map_or_else(|| "the input".to_string(), |i| format!("input `{}`", i.name.node)),
+        who: parts.input.map_or_else(
+            || "the input".to_string(),
+            |i| format!("input `{}`", i.name.node),
+        ),
         at: parts.input.map_or_else(Default::default, |i| i.shape.span),
         decl: None,
         vector: parts.input.is_some_and(|i| i.shape.sizes.len() == 1),

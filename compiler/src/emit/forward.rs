@@ -8,7 +8,7 @@ use quote::quote;
 
 /// `predict`, `predict_into`, `loss`, `penalty_cost`, `cost`.
 pub(super) fn methods(cx: &Ctx) -> TokenStream {
-    let predict = steps::sample(cx, &cx.plan.inference, true, false);
+    let predict = steps::scoped(cx, &cx.plan.inference);
     let loss = steps::sample(cx, &cx.plan.loss, false, true);
     let loss_doc = match cx.plan.head {
         Head::SquaredError(_) => " The loss of one sample (no penalty): `1/2 sum_j (a_j - y_j)^2`.",

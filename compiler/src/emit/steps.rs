@@ -64,7 +64,13 @@ fn conv_kernel(name: &str) -> TokenStream {
 }
 
 /// The forward call of a sliding-window layer on one sample (`x`, `o`: the operands).
-fn window_call(cx: &Ctx, layer: usize, op: WindowOp, x: TokenStream, o: TokenStream) -> TokenStream {
+fn window_call(
+    cx: &Ctx,
+    layer: usize,
+    op: WindowOp,
+    x: TokenStream,
+    o: TokenStream,
+) -> TokenStream {
     let f = conv_kernel(op.kernels().0);
     let g = cx.window_const(layer);
     if op.has_params() {
@@ -77,7 +83,13 @@ fn window_call(cx: &Ctx, layer: usize, op: WindowOp, x: TokenStream, o: TokenStr
 }
 
 /// The gradient accumulation of a convolution on one sample (nothing for a pooling).
-fn window_acc_call(cx: &Ctx, layer: usize, op: WindowOp, d: TokenStream, x: TokenStream) -> TokenStream {
+fn window_acc_call(
+    cx: &Ctx,
+    layer: usize,
+    op: WindowOp,
+    d: TokenStream,
+    x: TokenStream,
+) -> TokenStream {
     let Some(name) = op.kernels().1 else {
         return TokenStream::new();
     };
@@ -115,10 +127,17 @@ struct Sample<'c, 'a> {
     cx: &'c Ctx<'a>,
     /// Inference writes the outputs to the `out` parameter.
     outputs_param: bool,
+    /// Every working buffer is a reference bound by the caller (the two halves of inference).
+    refs: bool,
 }
 
 impl Sample<'_, '_> {
     fn name(&self, buf: Buf) -> (Ident, bool) {
+        let (n, param) = self.own_name(buf);
+        (n, param || self.refs)
+    }
+
+    fn own_name(&self, buf: Buf) -> (Ident, bool) {
         let layers = &self.cx.names.layers;
         let layer = |l: usize| layers.get(l);
         let output = self.cx.plan.output;
@@ -193,7 +212,22 @@ pub(super) fn sample(
     outputs_param: bool,
     tail_loss: bool,
 ) -> TokenStream {
-    let s = Sample { cx, outputs_param };
+    sample_with(cx, steps, outputs_param, tail_loss, false)
+}
+
+/// [`sample`], with every working buffer a reference bound by the caller when `refs`.
+fn sample_with(
+    cx: &Ctx,
+    steps: &[Step],
+    outputs_param: bool,
+    tail_loss: bool,
+    refs: bool,
+) -> TokenStream {
+    let s = Sample {
+        cx,
+        outputs_param,
+        refs,
+    };
     let mut declared: Vec<Buf> = Vec::new();
     let mut out = TokenStream::new();
     let mut k = 0;
@@ -325,6 +359,87 @@ pub(super) fn sample(
     out
 }
 
+/// The inference pass over two halves of working memory, `even` and `odd`, written in turn. A
+/// stage is the steps that write one buffer (its kernel call, then its activation in place);
+/// stage `k` reads the buffer of stage `k - 1` from one half and writes its own into the first
+/// values of the other, as fixed-size views (`first_chunk`, whose lengths fit by construction:
+/// each half is as long as the longest buffer it holds). So inference holds the two halves and
+/// no other buffer: what `report` counts (`Plan::inference_halves`). The first stage reads `x`,
+/// the last writes the `out` parameter.
+pub(super) fn scoped(cx: &Ctx, steps: &[Step]) -> TokenStream {
+    let s = Sample {
+        cx,
+        outputs_param: true,
+        refs: false,
+    };
+    let mut stages: Vec<&[Step]> = Vec::new();
+    let mut start = 0;
+    for (i, step) in steps.iter().enumerate() {
+        if i > start && starts_stage(step) {
+            stages.extend(steps.get(start..i));
+            start = i;
+        }
+    }
+    stages.extend(steps.get(start..));
+    let half = |k: usize| {
+        if k % 2 == 0 {
+            ident("even")
+        } else {
+            ident("odd")
+        }
+    };
+    let mut out = TokenStream::new();
+    let (even, odd) = cx.plan.inference_halves();
+    for (k, n) in [even, odd].into_iter().enumerate() {
+        if n > 0 {
+            let (h, n) = (half(k), super::usize_lit(n));
+            out.extend(quote!(let mut #h = [ZERO; #n];));
+        }
+    }
+    for (k, stage) in stages.iter().enumerate() {
+        let body = sample_with(cx, stage, true, false, true);
+        let written = stage.first().and_then(Step::writes);
+        let read = stage.first().and_then(Step::reads_buffer);
+        let mut views = Vec::new();
+        if let Some(r) = read.filter(|&r| !s.name(r).1) {
+            let (n, w) = (s.name(r).0, s.width(r));
+            let h = half(k + 1);
+            views.push((quote!(#n), quote!(#h.first_chunk::<#w>())));
+        }
+        if let Some(wb) = written.filter(|&wb| !s.name(wb).1) {
+            let (n, w) = (s.name(wb).0, s.width(wb));
+            let h = half(k);
+            views.push((quote!(#n), quote!(#h.first_chunk_mut::<#w>())));
+        }
+        out.extend(match views.as_slice() {
+            [] => body,
+            [(n, v)] => quote! {
+                if let Some(#n) = #v {
+                    #body
+                }
+            },
+            _ => {
+                let names = views.iter().map(|(n, _)| quote!(Some(#n)));
+                let vals = views.iter().map(|(_, v)| v);
+                quote! {
+                    if let (#(#names),*) = (#(#vals),*) {
+                        #body
+                    }
+                }
+            }
+        });
+    }
+    out
+}
+
+/// True for a step that writes a buffer anew (the start of a stage of [`scoped`]).
+fn starts_stage(step: &Step) -> bool {
+    matches!(
+        step,
+        Step::Standardize { .. } | Step::Affine { .. } | Step::Window { .. } | Step::Copy { .. }
+    )
+}
+
 /// `z_j = lane_sum(w_j, u) + b_j` of layer `layer`, as an array expression over destructured
 /// elements, in the runtime's order (see [`lane_sum`]).
 fn affine_unrolled(cx: &Ctx, s: &Sample, layer: usize, input: Buf) -> TokenStream {
@@ -448,6 +563,7 @@ pub(super) fn block_name(cx: &Ctx, buf: Buf) -> Ident {
     let s = Sample {
         cx,
         outputs_param: false,
+        refs: false,
     };
     match buf {
         Buf::Input => ident("xb"),
@@ -590,7 +706,8 @@ pub(super) fn block(cx: &Ctx, steps: &[Step]) -> TokenStream {
                 out,
             } => {
                 let (x, d, o) = (name(input), name(err), name(out));
-                let call = window_back_call(cx, layer, op, quote!(x_row), quote!(d_row), quote!(o_row));
+                let call =
+                    window_back_call(cx, layer, op, quote!(x_row), quote!(d_row), quote!(o_row));
                 // Only max pooling reads the layer's input on the way back.
                 if op == WindowOp::MaxPool {
                     quote! {

@@ -14,8 +14,7 @@
 //! count.
 
 use super::{
-    activation, batch_samples, sample_loss, window, LengthMismatch, Net, Operands, Params,
-    Scratch,
+    activation, batch_samples, sample_loss, window, LengthMismatch, Net, Operands, Params, Scratch,
 };
 use crate::ir;
 use crate::plan::{Buf, Buffer, Plan, Step};
@@ -408,7 +407,8 @@ fn accumulate<T: Real + Send + Sync>(
                 input,
             } => {
                 // Sample by sample in order, as the per-sample loop adds them.
-                let (Some(lg), Some(g)) = (grad.layers.get_mut(layer), window::of(net.model, layer))
+                let (Some(lg), Some(g)) =
+                    (grad.layers.get_mut(layer), window::of(net.model, layer))
                 else {
                     continue;
                 };

@@ -620,18 +620,21 @@ impl Model {
         for l in &self.layers {
             // Dense layers keep the form of version 1, so that its fingerprints stay valid.
             let geometry = |w: &Window, pad: &str| {
-                format!(
-                    "k{}x{}s{}{pad}",
-                    w.k_rows, w.k_cols, w.stride_rows
-                )
+                format!("k{}x{}s{}{pad}", w.k_rows, w.k_cols, w.stride_rows)
             };
             let kind = match &l.kind {
                 LayerKind::Dense => String::new(),
                 LayerKind::Conv { window, pad } => {
-                    format!("conv{}", geometry(window, if *pad == Pad::Same { "same" } else { "valid" }))
+                    format!(
+                        "conv{}",
+                        geometry(window, if *pad == Pad::Same { "same" } else { "valid" })
+                    )
                 }
                 LayerKind::Depthwise { window, pad } => {
-                    format!("dw{}", geometry(window, if *pad == Pad::Same { "same" } else { "valid" }))
+                    format!(
+                        "dw{}",
+                        geometry(window, if *pad == Pad::Same { "same" } else { "valid" })
+                    )
                 }
                 LayerKind::Pool { op, window, .. } => format!(
                     "pool{}{}",

@@ -291,6 +291,16 @@ impl Step {
         )
     }
 
+    /// The buffer the step's kernel reads as its input, for the steps that start a new buffer
+    /// ([`Step::Standardize`], [`Step::Affine`], [`Step::Window`], [`Step::Copy`]).
+    pub fn reads_buffer(&self) -> Option<Buf> {
+        match *self {
+            Step::Standardize { from, .. } | Step::Copy { from, .. } => Some(from),
+            Step::Affine { input, .. } | Step::Window { input, .. } => Some(input),
+            _ => None,
+        }
+    }
+
     /// The buffer the step writes, if any (the gradient and the loss are not buffers).
     pub fn writes(&self) -> Option<Buf> {
         match *self {
@@ -567,6 +577,32 @@ impl Plan {
             params,
             update: Update::of(model.train.optimizer),
         }
+    }
+
+    /// The lengths of the two halves of inference's working memory: the buffers of the
+    /// inference pass but the output (the standardized input, then each hidden layer's
+    /// activations) alternate between them, the first in the even half; each half is as long as
+    /// the longest buffer it holds (0 when it holds none). The generated `predict_into` holds
+    /// these two arrays and nothing else; the caller holds the output.
+    pub fn inference_halves(&self) -> (usize, usize) {
+        let mut halves = [0usize, 0];
+        let chain = self
+            .inference
+            .iter()
+            .filter(|s| {
+                matches!(
+                    s,
+                    Step::Standardize { .. } | Step::Affine { .. } | Step::Window { .. }
+                )
+            })
+            .filter_map(Step::writes)
+            .filter(|&b| b != Buf::Act(self.output));
+        for (k, b) in chain.enumerate() {
+            if let Some(h) = halves.get_mut(k % 2) {
+                *h = (*h).max(self.width(b).unwrap_or(0));
+            }
+        }
+        (halves[0], halves[1])
     }
 
     /// The width of a working buffer (`None` for the operands and for buffers the model lacks).

@@ -241,10 +241,15 @@ impl LayerDecl {
     pub fn size_span(&self) -> Span {
         match &self.body {
             LayerBody::Dense { width } => width.span,
-            LayerBody::Conv { keyword, window, .. } | LayerBody::Depthwise { keyword, window } => {
+            LayerBody::Conv {
+                keyword, window, ..
+            }
+            | LayerBody::Depthwise { keyword, window } => {
                 Span::new(keyword.start, window.kernel.span.end)
             }
-            LayerBody::Pool { keyword, window, .. } => Span::new(keyword.start, window.span().end),
+            LayerBody::Pool {
+                keyword, window, ..
+            } => Span::new(keyword.start, window.span().end),
         }
     }
 }

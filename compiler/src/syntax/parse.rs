@@ -434,7 +434,11 @@ fn build_layer<'a>(it: &mut impl Iterator<Item = Pair<'a, Rule>>, off: usize) ->
                 PoolWindow::Size(dims(w, off))
             };
             (
-                LayerBody::Pool { keyword, op, window },
+                LayerBody::Pool {
+                    keyword,
+                    op,
+                    window,
+                },
                 Spanned::new(ActivationKind::Identity, keyword),
             )
         }
@@ -747,7 +751,10 @@ fn syntax_error(
     if glued.is_some() || x_misplaced || after_x {
         let (message, label, help) = if let Some(g) = glued {
             (
-                format!("sizes must be separated by ` x `, found {}", quote(found_text.unwrap_or(""))),
+                format!(
+                    "sizes must be separated by ` x `, found {}",
+                    quote(found_text.unwrap_or(""))
+                ),
                 "sizes written together".to_string(),
                 format!("put spaces around `x`: `{}`", g.trim_end()),
             )

@@ -399,6 +399,7 @@ fn classified_window(line: &mut Line, params: &gearbox_window::Params, x: &[f32;
 /// window I class=C:NAME p=H out=H,H,H                 one per raw window
 /// window_train S cost=H                               one per step, the cost before the step
 /// window_after I class=C:NAME p=H out=H,H,H           one per confirmed window
+/// window_stack predict=N step=N painted=N trainer=N
 /// ```
 ///
 /// Returns whether the cost fell.
@@ -428,6 +429,27 @@ pub fn run_window(out: &mut impl Console, trainer: &mut gearbox_window::Trainer)
         classified_window(&mut line, &trainer.params, x);
         line.send(out);
     }
+
+    // Stack high-water marks (the measured step is one more training step).
+    let [x0, ..] = demo::WINDOWS;
+    let predict = stack_of(&mut || {
+        core::hint::black_box(infer_window(
+            core::hint::black_box(&gearbox_window::TRAINED),
+            core::hint::black_box(&x0),
+        ));
+    });
+    let step = stack_of(&mut || {
+        core::hint::black_box(train_window_step(trainer, &demo::WINDOW_NEW, &ys));
+    });
+    line.text("window_stack predict=")
+        .dec(predict.0)
+        .text(" step=")
+        .dec(step.0)
+        .text(" painted=")
+        .dec(predict.1.min(step.1))
+        .text(" trainer=")
+        .dec(core::mem::size_of::<gearbox_window::Trainer>())
+        .send(out);
     last < first
 }
 

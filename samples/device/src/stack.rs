@@ -11,7 +11,7 @@
 const PATTERN: u32 = 0xC5A3_5A3C;
 
 /// Bytes painted at most (less when the statics end closer to the stack pointer).
-pub const SPAN: usize = 4096;
+pub const SPAN: usize = 8192;
 
 /// The stack a call used.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
