@@ -19,6 +19,27 @@ code:
     J = (1/m) sum loss + P,  P = lambda/(2m) sum W^2 (l2), lambda/m sum |W| (l1), 0 (none);
     biases are never penalised.
 
+Shaped networks (REFERENCE.md, "Shapes: windows and grids") hold their maps as arrays
+(samples, rows, cols, channels), a window of steps having one column; a dense layer reads the
+map flattened in C order, that is row-major with the channel fastest. Each axis of `n` values
+under a kernel `k` with stride `s` has
+
+    pad valid:  floor((n - k) / s) + 1 positions, no zeros
+    pad same:   ceil(n / s) positions, max((out - 1) s + k - n, 0) zeros, the smaller half before
+    pool:       floor(n / k) positions, stride k, no zeros (`all`: k = n)
+
+and the layers compute, from the zero-padded input `P` and its patches
+`T[p][t][c] = P[p * s + t][c]` (tap t = (i, j) of the kernel, in row-major order):
+
+    conv:       z[p][f] = sum_{t, c} W[f][t][c] T[p][t][c] + b[f]   (W row f: [KH][KW][C])
+    depthwise:  z[p][c] = sum_t W[c][t] T[p][t][c] + b[c]          (W row c: [KH][KW])
+    pool max:   max_t T[p][t][c];  pool average: sum_t T[p][t][c] / taps  (no parameters)
+    standardize: one mean and std per channel, over every position.
+
+autograd's derivative of `max` shares the gradient equally among tied maxima, where sinew sends
+it to the first; the generator redraws inputs until no window of a max pooling has its two
+largest values within KINK_MARGIN, so the two rules agree on every golden.
+
 Usage:
 
     autograd_reference.py CASE.json       evaluate one case (keys `network`, `params`,
@@ -72,39 +93,180 @@ def activation(kind, alpha, z):
     raise ValueError(f"unknown activation {kind!r}")
 
 
+def input_map(network):
+    """(rows, cols, channels) of a shaped input (a window of steps has one column), or None
+    for a vector input."""
+    shape = network.get("shape")
+    if shape is None:
+        return None
+    if len(shape) == 2:
+        return (shape[0], 1, shape[1])
+    return tuple(shape)
+
+
+def axis_positions(n, k, s, pad):
+    """(positions, zeros before, zeros after) of one axis, from the reference's rules."""
+    if pad == "valid":
+        if k > n:
+            raise ValueError(f"kernel {k} longer than the axis {n}")
+        return (n - k) // s + 1, 0, 0
+    if pad == "same":
+        out = -(-n // s)
+        total = max((out - 1) * s + k - n, 0)
+        return out, total // 2, total - total // 2
+    raise ValueError(f"unknown padding {pad!r}")
+
+
+def geometry(network):
+    """Per layer: its kind, the rank of what it writes, the map it reads and the map it writes
+    as [rows, cols, channels] (a vector of n values is [1, 1, n]), and for a conv, depthwise or
+    pooling layer its kernel, stride and zeros before and after, as [rows, cols]. Computed from
+    the reference's formulas alone."""
+    shape = input_map(network)
+    rank = len(network["shape"]) if shape is not None else 1
+    if shape is None:
+        shape = (1, 1, network["inputs"])
+    out = []
+    for layer in network["layers"]:
+        kind = layer.get("kind", "dense")
+        rows, cols, ch = shape
+        window = {}
+        if kind == "dense":
+            rank, new = 1, (1, 1, layer["width"])
+        else:
+            if rank == 1:
+                raise ValueError(f"{layer['name']}: {kind} reads a window or a grid")
+            if kind == "pool":
+                if layer["size"] == "all":
+                    kernel = (rows, cols)
+                else:
+                    kernel = square(layer["size"], rank)
+                stride, pad = kernel, "valid"
+                out_r, out_c = rows // kernel[0], cols // kernel[1]
+                if out_r < 1 or out_c < 1:
+                    raise ValueError(f"{layer['name']}: pooling window larger than its map")
+                before, after = (0, 0), (0, 0)
+                filters = ch
+            else:
+                kernel = square(layer["kernel"], rank)
+                s = layer.get("stride", 1)
+                stride = (s, s) if rank == 3 else (s, 1)
+                pad = layer.get("pad", "valid")
+                out_r, top, bottom = axis_positions(rows, kernel[0], stride[0], pad)
+                out_c, left, right = axis_positions(cols, kernel[1], stride[1], pad)
+                before, after = (top, left), (bottom, right)
+                filters = layer["filters"] if kind == "conv" else ch
+            new = (out_r, out_c, filters)
+            window = dict(kernel=list(kernel), stride=list(stride), pad_before=list(before),
+                          pad_after=list(after))
+        out.append(dict(kind=kind, rank=rank, input=list(shape), output=list(new), **window))
+        shape = new
+    return out
+
+
+def square(sizes, rank):
+    """A kernel or pooling window as (rows, cols): one size on a window (one column), one
+    (square) or two on a grid."""
+    if rank == 2:
+        if len(sizes) != 1:
+            raise ValueError("a window takes one size")
+        return (sizes[0], 1)
+    if len(sizes) == 1:
+        return (sizes[0], sizes[0])
+    return (sizes[0], sizes[1])
+
+
+def weight_shapes(network):
+    """Per layer, the (rows, columns) of its weight matrix in sinew's layout, or None for a
+    pooling: dense (units, inputs), conv (filters, taps * channels), depthwise (channels, taps)."""
+    out = []
+    for layer, g in zip(network["layers"], geometry(network)):
+        rows, cols, ch = g["input"]
+        if g["kind"] == "dense":
+            out.append((layer["width"], rows * cols * ch))
+        elif g["kind"] == "conv":
+            out.append((layer["filters"], g["kernel"][0] * g["kernel"][1] * ch))
+        elif g["kind"] == "depthwise":
+            out.append((ch, g["kernel"][0] * g["kernel"][1]))
+        else:
+            out.append(None)
+    return out
+
+
 def unpack(flat, network):
-    """(W, b) per layer from the flat parameter vector (per layer: W row-major, then b)."""
+    """(W, b) per layer from the flat parameter vector (per layer with parameters: W row-major,
+    then b); None for a pooling, which has none."""
     out = []
     k = 0
-    fan_in = network["inputs"]
-    for layer in network["layers"]:
-        width = layer["width"]
+    for shape in weight_shapes(network):
+        if shape is None:
+            out.append(None)
+            continue
+        width, fan_in = shape
         w = anp.reshape(flat[k : k + width * fan_in], (width, fan_in))
         k += width * fan_in
         b = flat[k : k + width]
         k += width
         out.append((w, b))
-        fan_in = width
     return out
 
 
+def patches(a, g):
+    """The taps every output position reads, shape (samples, out_rows, out_cols, taps, channels),
+    taps in row-major kernel order: the input zero-padded by `pad_before` / `pad_after`, then
+    for tap (i, j) the strided view starting at row i, column j."""
+    (kr, kc), (sr, sc) = g["kernel"], g["stride"]
+    out_r, out_c = g["output"][0], g["output"][1]
+    (top, left), (bottom, right) = g["pad_before"], g["pad_after"]
+    if top or left or bottom or right:
+        a = anp.pad(a, ((0, 0), (top, bottom), (left, right), (0, 0)), "constant")
+    taps = [
+        a[:, i : i + sr * (out_r - 1) + 1 : sr, j : j + sc * (out_c - 1) + 1 : sc, :]
+        for i in range(kr)
+        for j in range(kc)
+    ]
+    return anp.stack(taps, axis=3)
+
+
 def forward(flat, network, scaling, x):
-    """Per-layer (z, a) for a batch x of shape (samples, inputs)."""
-    a = x
+    """Per layer (input, z, a) for a batch x of shape (samples, inputs); a pooling's z is its
+    output."""
+    shape = input_map(network)
+    m = x.shape[0]
+    a = x if shape is None else anp.reshape(x, (m,) + shape)
     if network["standardize"]:
         mean, std = scaling
         a = (a - mean) / std
     steps = []
-    for (w, b), layer in zip(unpack(flat, network), network["layers"]):
-        z = anp.dot(a, anp.transpose(w)) + b
-        a = activation(layer["activation"], layer.get("alpha", 0.0), z)
-        steps.append((z, a))
+    for wb, layer, g in zip(unpack(flat, network), network["layers"], geometry(network)):
+        kind = g["kind"]
+        if kind == "dense":
+            w, b = wb
+            z = anp.dot(anp.reshape(a, (m, -1)), anp.transpose(w)) + b
+        elif kind == "conv":
+            w, b = wb
+            kr, kc = g["kernel"]
+            w4 = anp.reshape(w, (w.shape[0], kr * kc, g["input"][2]))
+            z = anp.einsum("mrqtc,ftc->mrqf", patches(a, g), w4) + b
+        elif kind == "depthwise":
+            w, b = wb
+            z = anp.einsum("mrqtc,ct->mrqc", patches(a, g), w) + b
+        elif layer["op"] == "max":
+            z = anp.max(patches(a, g), axis=3)
+        elif layer["op"] == "average":
+            kr, kc = g["kernel"]
+            z = anp.sum(patches(a, g), axis=3) / (kr * kc)
+        else:
+            raise ValueError(f"unknown pooling {layer['op']!r}")
+        a_in = a
+        a = z if kind == "pool" else activation(layer["activation"], layer.get("alpha", 0.0), z)
+        steps.append((a_in, z, a))
     return steps
 
 
 def sample_losses(flat, network, scaling, x, y):
     """The loss of every sample, shape (samples,)."""
-    z, a = forward(flat, network, scaling, x)[-1]
+    _, z, a = forward(flat, network, scaling, x)[-1]
     out = network["layers"][-1]["activation"]
     if network["loss"] == "cross_entropy":
         if out == "softmax":
@@ -124,7 +286,7 @@ def penalty(flat, network, m):
     if kind == "none":
         return 0.0
     lam = network["penalty"]["lambda"]
-    weights = [w for w, _ in unpack(flat, network)]
+    weights = [wb[0] for wb in unpack(flat, network) if wb is not None]
     if kind == "l2":
         return lam / (2.0 * m) * sum(anp.sum(w**2) for w in weights)
     if kind == "l1":
@@ -140,7 +302,7 @@ def cost(flat, network, scaling, x, y):
 
 def flatten(params):
     parts = []
-    for layer in params["layers"]:
+    for layer in params["layers"]:  # layers with parameters only
         parts.append(np.asarray(layer["weights"], dtype=np.float64).ravel())
         parts.append(np.asarray(layer["bias"], dtype=np.float64))
     return np.concatenate(parts)
@@ -159,20 +321,24 @@ def evaluate(case):
     x = np.asarray(case["samples"]["inputs"], dtype=np.float64)
     y = np.asarray(case["samples"]["targets"], dtype=np.float64)
     m = x.shape[0]
-    outputs = forward(flat, network, scaling, x)[-1][1]
+    outputs = forward(flat, network, scaling, x)[-1][2]
     losses = sample_losses(flat, network, scaling, x, y)
     j = cost(flat, network, scaling, x, y)
     grad = autograd.grad(cost)(flat, network, scaling, x, y)
     layers = []
-    for (gw, gb) in unpack(grad, network):
-        layers.append({"weights": floats(gw), "bias": floats(gb)})
-    return {
+    for gwb in unpack(grad, network):
+        if gwb is not None:
+            layers.append({"weights": floats(gwb[0]), "bias": floats(gwb[1])})
+    expected = {
         "outputs": floats(outputs),
         "losses": floats(losses),
         "penalty": float(penalty(flat, network, m)),
         "cost": float(j),
         "gradients": {"layers": layers},
     }
+    if "shape" in network:
+        expected["geometry"] = geometry(network)
+    return expected
 
 
 def floats(a):
@@ -183,6 +349,124 @@ def floats(a):
 # ----------------------------------------------------------------------------------------------
 # The golden cases
 # ----------------------------------------------------------------------------------------------
+
+# Shaped networks: `shape` is [steps, channels] (a window) or [rows, cols, channels] (a grid),
+# and each layer a dict written by the helpers below, keys as the spec's clauses (`stride` and
+# `pad` only where the spec writes them, so the defaults are exercised too).
+
+
+def conv(name, filters, kernel, activation, stride=None, pad=None, alpha=None):
+    return shaped_layer(dict(name=name, kind="conv", filters=filters, kernel=kernel),
+                        stride, pad, activation, alpha)
+
+
+def depthwise(name, kernel, activation, stride=None, pad=None, alpha=None):
+    return shaped_layer(dict(name=name, kind="depthwise", kernel=kernel), stride, pad,
+                        activation, alpha)
+
+
+def pool(name, op, size):
+    """`size`: a list of one or two sizes, or "all"."""
+    return dict(name=name, kind="pool", op=op, size=size)
+
+
+def dense(name, width, activation, alpha=None):
+    return shaped_layer(dict(name=name, kind="dense", width=width), None, None, activation, alpha)
+
+
+def shaped_layer(layer, stride, pad, activation, alpha):
+    if stride is not None:
+        layer["stride"] = stride
+    if pad is not None:
+        layer["pad"] = pad
+    layer["activation"] = activation
+    if activation == "leaky_relu":
+        layer["alpha"] = alpha
+    return layer
+
+
+SHAPED_CASES = [
+    # --- mirrors of the f64 shaped fixtures (engine and generated code) ---
+    dict(name="vibration_window", fixture="vibration_window", shape=[12, 2], standardize=True,
+         layers=[conv("edges", 3, [3], "tanh", stride=2, pad="same"),
+                 depthwise("spread", [2], "sigmoid"),
+                 pool("shrink", "max", [2]),
+                 pool("squeeze", "average", "all"),
+                 dense("mix", 4, "tanh"),
+                 dense("fault", 3, "softmax")],
+         loss="cross_entropy", penalty=("l2", 0.01), m=4, targets="onehot", gain=1.5),
+    dict(name="thermal_grid", fixture="thermal_grid", shape=[6, 5, 2], standardize=False,
+         layers=[conv("blobs", 3, [3, 2], "sigmoid", pad="same"),
+                 pool("smooth", "average", [2]),
+                 depthwise("detail", [2], "tanh", stride=1),
+                 pool("peak", "max", [2, 1]),
+                 dense("mix", 4, "leaky_relu", alpha=0.1),
+                 dense("heat", 2, "identity")],
+         loss="squared_error", penalty=("l1", 0.01), m=4, targets="signed", gain=1.5),
+    dict(name="pressure_steps", fixture="pressure_steps", shape=[9, 4, 1], standardize=False,
+         layers=[pool("coarse", "max", [3, 2]),
+                 conv("edges", 2, [2, 1], "relu", stride=2),
+                 dense("valve", 1, "sigmoid")],
+         loss="cross_entropy", penalty=("none", 0.0), m=5, targets="binary", gain=1.5),
+    # --- further shaped networks (engine only) ---
+    dict(name="window_conv_valid", fixture=None, shape=[10, 3], standardize=True,
+         layers=[conv("edges", 4, [3], "relu", pad="valid"),
+                 pool("halve", "average", [2]),
+                 dense("flags", 2, "sigmoid")],
+         loss="cross_entropy", penalty=("l1", 0.05), m=4, targets="binary", gain=1.5),
+    # An even kernel under `same`: 3 zeros, 1 before and 2 after.
+    dict(name="window_conv_same_even_kernel", fixture=None, shape=[9, 2], standardize=False,
+         layers=[conv("edges", 3, [4], "leaky_relu", pad="same", alpha=0.2),
+                 pool("peak", "max", "all"),
+                 dense("kind", 3, "softmax")],
+         loss="cross_entropy", penalty=("none", 0.0), m=4, targets="onehot", gain=1.5),
+    # Valid with stride 2 leaves the last step unread: floor((12 - 3) / 2) + 1 = 5 positions
+    # cover steps 0 to 10; then a depthwise with stride 2: floor((5 - 2) / 2) + 1 = 2.
+    dict(name="window_conv_valid_stride2", fixture=None, shape=[12, 2], standardize=False,
+         layers=[conv("edges", 2, [3], "tanh", stride=2),
+                 depthwise("thin", [2], "sigmoid", stride=2, pad="valid"),
+                 dense("level", 2, "identity")],
+         loss="squared_error", penalty=("l2", 0.2), m=4, targets="signed", gain=1.5),
+    # A stride longer than the kernel under `same`: ceil(10 / 3) = 4 positions, 1 zero after;
+    # then a depthwise `same` with an odd kernel (1 zero each side).
+    dict(name="window_strided_same_depthwise", fixture=None, shape=[10, 2], standardize=True,
+         layers=[conv("edges", 3, [2], "sigmoid", stride=3, pad="same"),
+                 depthwise("spread", [3], "tanh", pad="same"),
+                 pool("shrink", "max", [2]),
+                 dense("mix", 2, "softmax")],
+         loss="squared_error", penalty=("l2", 0.05), m=4, targets="unit", gain=1.5),
+    # Pooling straight on a standardized window.
+    dict(name="window_pool_on_input", fixture=None, shape=[8, 3], standardize=True,
+         layers=[pool("halve", "average", [2]),
+                 conv("edges", 2, [2], "leaky_relu", alpha=0.1),
+                 dense("alarm", 1, "sigmoid")],
+         loss="cross_entropy", penalty=("l1", 0.02), m=4, targets="binary", gain=1.5),
+    dict(name="grid_conv_3x3_valid", fixture=None, shape=[7, 6, 2], standardize=True,
+         layers=[conv("edges", 3, [3], "sigmoid"),
+                 pool("shrink", "max", [2]),
+                 dense("digit", 3, "softmax")],
+         loss="cross_entropy", penalty=("l2", 0.1), m=3, targets="onehot", gain=1.5),
+    # Rows: ceil(6 / 2) = 3, 1 zero after; columns: ceil(7 / 2) = 4, 1 zero each side. Then a
+    # 2 x 3 depthwise `same` (1 zero after the rows, 1 each side of the columns).
+    dict(name="grid_conv_3x3_same_stride2", fixture=None, shape=[6, 7, 1], standardize=False,
+         layers=[conv("edges", 2, [3, 3], "tanh", stride=2, pad="same"),
+                 depthwise("spread", [2, 3], "sigmoid", pad="same"),
+                 pool("squeeze", "average", "all"),
+                 dense("level", 1, "identity")],
+         loss="squared_error", penalty=("l1", 0.1), m=4, targets="signed", gain=1.5),
+    # Valid 3 x 2 kernel, then a pooling that drops a short tail: 3 x 5 -> 1 x 2.
+    dict(name="grid_conv_3x2_valid", fixture=None, shape=[5, 6, 3], standardize=False,
+         layers=[conv("edges", 2, [3, 2], "sigmoid", pad="valid"),
+                 pool("coarse", "average", [3, 2]),
+                 dense("flags", 2, "sigmoid")],
+         loss="cross_entropy", penalty=("l2", 0.3), m=3, targets="probability", gain=1.5),
+    dict(name="grid_depthwise_stride2", fixture=None, shape=[7, 7, 2], standardize=True,
+         layers=[depthwise("spread", [3], "leaky_relu", stride=2, alpha=0.1),
+                 pool("peak", "max", "all"),
+                 dense("kind", 3, "softmax")],
+         loss="cross_entropy", penalty=("none", 0.0), m=4, targets="onehot", gain=1.5),
+]
+
 
 # Each case: a network, how to draw its values, and (where a generated fixture of the tests
 # crate has exactly this shape, loss and penalty) the fixture's model name, so the Rust test
@@ -260,12 +544,22 @@ CASES = [
     dict(name="saturated_sigmoid", fixture=None, inputs=2, standardize=False,
          layers=[("h", 3, "tanh"), ("y", 2, "sigmoid", None, 100.0)],
          loss="cross_entropy", penalty=("l1", 0.01), m=6, targets="binary", gain=1.5),
-]
+] + SHAPED_CASES
 
 KINK_MARGIN = 1e-3
 
 
 def network_of(spec):
+    if "shape" in spec:
+        kind, lam = spec["penalty"]
+        return {
+            "inputs": int(np.prod(spec["shape"])),
+            "shape": spec["shape"],
+            "standardize": spec["standardize"],
+            "layers": [dict(layer) for layer in spec["layers"]],
+            "loss": spec["loss"],
+            "penalty": {"kind": kind, "lambda": lam} if kind != "none" else {"kind": "none"},
+        }
     layers = []
     for entry in spec["layers"]:
         layer = {"name": entry[0], "width": entry[1], "activation": entry[2]}
@@ -285,7 +579,12 @@ def network_of(spec):
 def draw_params(spec, rng):
     """Weights uniform on +-gain * sqrt(6 / (fan_in + fan_out)) (times a per-layer scale for the
     saturated cases), biases uniform on [-0.5, 0.5], and with `standardize` a mean uniform on
-    [-1, 1] and a std uniform on [0.5, 2]."""
+    [-1, 1] and a std uniform on [0.5, 2] (one per channel for a window or a grid).
+
+    Shaped networks use each layer's fans as `init glorot` does: conv (taps * C, taps * F),
+    depthwise (taps, taps), dense (inputs, units); a pooling draws nothing."""
+    if "shape" in spec:
+        return draw_shaped_params(spec, rng)
     layers = []
     fan_in = spec["inputs"]
     for entry in spec["layers"]:
@@ -303,9 +602,40 @@ def draw_params(spec, rng):
     return params
 
 
+def draw_shaped_params(spec, rng):
+    network = network_of(spec)
+    layers = []
+    for shape, g in zip(weight_shapes(network), geometry(network)):
+        if shape is None:
+            continue
+        width, fan_in = shape
+        taps = g["kernel"][0] * g["kernel"][1] if g["kind"] != "dense" else 1
+        fans = {"dense": (fan_in, width), "conv": (fan_in, taps * width),
+                "depthwise": (taps, taps)}[g["kind"]]
+        limit = spec["gain"] * math.sqrt(6.0 / (fans[0] + fans[1]))
+        w = rng.uniform(-limit, limit, size=(width, fan_in))
+        b = rng.uniform(-0.5, 0.5, size=width)
+        layers.append({"weights": floats(w), "bias": floats(b)})
+    params = {"layers": layers}
+    if spec["standardize"]:
+        channels = spec["shape"][-1]
+        params["mean"] = floats(rng.uniform(-1.0, 1.0, size=channels))
+        params["std"] = floats(rng.uniform(0.5, 2.0, size=channels))
+    return params
+
+
 def draw_inputs(spec, params, rng):
     """Inputs uniform on [-2, 2] (mapped through the scaling with `standardize`, so the
     standardized values are on [-2, 2])."""
+    if "shape" in spec:
+        channels = spec["shape"][-1]
+        u = rng.uniform(-2.0, 2.0, size=(spec["m"], int(np.prod(spec["shape"]))))
+        if spec["standardize"]:
+            # Channel fastest: the value at flat index i belongs to channel i mod C.
+            u = np.reshape(u, (spec["m"], -1, channels))
+            u = np.asarray(params["mean"]) + u * np.asarray(params["std"])
+            u = np.reshape(u, (spec["m"], -1))
+        return u
     u = rng.uniform(-2.0, 2.0, size=(spec["m"], spec["inputs"]))
     if spec["standardize"]:
         u = np.asarray(params["mean"]) + u * np.asarray(params["std"])
@@ -314,7 +644,8 @@ def draw_inputs(spec, params, rng):
 
 def draw_targets(spec, rng):
     m = spec["m"]
-    width = spec["layers"][-1][1]
+    last = spec["layers"][-1]
+    width = last["width"] if isinstance(last, dict) else last[1]
     kind = spec["targets"]
     if kind == "onehot":
         return np.eye(width)[rng.integers(0, width, size=m)]
@@ -331,22 +662,28 @@ def draw_targets(spec, rng):
 
 
 def min_kink_distance(network, params, x):
-    """The smallest |z| met at a relu or leaky_relu unit."""
+    """The smallest |z| met at a relu or leaky_relu unit, and the smallest gap between the two
+    largest values of a max pooling's window (where sinew's first-maximum rule and autograd's
+    equal sharing of ties would part)."""
     scaling = None
     if network["standardize"]:
         scaling = (np.asarray(params["mean"]), np.asarray(params["std"]))
     steps = forward(flatten(params), network, scaling, x)
     best = math.inf
-    for (z, _), layer in zip(steps, network["layers"]):
-        if layer["activation"] in ("relu", "leaky_relu"):
+    for (a_in, z, _), layer, g in zip(steps, network["layers"], geometry(network)):
+        if layer.get("activation") in ("relu", "leaky_relu"):
             best = min(best, float(np.min(np.abs(z))))
+        if layer.get("op") == "max":
+            taps = np.sort(patches(np.asarray(a_in), g), axis=3)
+            best = min(best, float(np.min(taps[:, :, :, -1, :] - taps[:, :, :, -2, :])))
     return best
 
 
 def generate_case(index, spec):
     """One golden case, drawn from numpy's PCG64 generator seeded with 1000 + index. Inputs
     are redrawn (from the same stream) until every relu / leaky_relu pre-activation is at
-    least KINK_MARGIN away from 0, where the derivative is not defined."""
+    least KINK_MARGIN away from 0, where the derivative is not defined, and every window of a
+    max pooling has a unique maximum with the same margin."""
     rng = np.random.default_rng(1000 + index)
     network = network_of(spec)
     params = draw_params(spec, rng)
@@ -355,7 +692,7 @@ def generate_case(index, spec):
         if min_kink_distance(network, params, x) >= KINK_MARGIN:
             break
     else:
-        raise RuntimeError(f"{spec['name']}: no inputs away from the relu kinks")
+        raise RuntimeError(f"{spec['name']}: no inputs away from the kinks and ties")
     y = draw_targets(spec, rng)
     case = {
         "format": FORMAT,

@@ -45,10 +45,26 @@
 //!   floor keeps entries that are nearly zero (a saturated unit's `a - y` of about 1e-18, which
 //!   sinew rounds to exactly 0) from failing on their relative error. A wrong formula (a missing
 //!   `1/m`, a wrong derivative) changes entries by orders of magnitude more than either bound.
+//! - Gradients of the shaped goldens: `REL = 1e-10`, `FLOOR = 1e-12`. These networks are small
+//!   (at most a few hundred parameters and four samples) and their largest measured difference
+//!   is 3.7e-13 relative (an entry of a conv gradient summed over positions and samples), so
+//!   the bound is ten times tighter than the dense one and still leaves over two orders of
+//!   margin. The oracle sums a convolution over taps and channels at once (`einsum`) where sinew
+//!   adds tap by tap, channel by channel.
+//!
+//! # Shaped networks
+//!
+//! A golden with a `shape` describes a window or grid input and `conv`, `depthwise` and `pool`
+//! layers (REFERENCE.md, "Shapes: windows and grids"). The oracle computes every layer's
+//! positions and zeros from the reference's rules and pads, gathers and contracts the taps in
+//! numpy; its parameters follow sinew's layout (conv `[F][KH][KW][C]`, depthwise `[C][KH][KW]`,
+//! no entry for a pooling) and its mean and std are per channel, which this test repeats for
+//! every position. Besides the values above, [`shaped_geometry_matches_the_reference_rules`]
+//! asserts that the shapes, kernels, strides and paddings sinew infers are the oracle's.
 
 use serde_json::Value;
 use sinew::engine::{batch, Net, Params, Scratch};
-use sinew::ir::{Activation, Loss, Model, Penalty};
+use sinew::ir::{Activation, LayerKind, Loss, Model, Pad, Penalty};
 use sinew::weights::{FlatLayer, Standardization};
 use sinew_harness::host::{backprop_gradient, is_f64, model_of, set_flat};
 use sinew_harness::Visit;
@@ -64,6 +80,9 @@ const VALUE_FLOOR: f64 = 1e-15;
 const GRAD_REL: f64 = 1e-9;
 /// Absolute floor of gradients.
 const GRAD_FLOOR: f64 = 1e-12;
+/// Relative tolerance of the gradients of the shaped goldens (window or grid inputs); their
+/// floor is [`GRAD_FLOOR`].
+const SHAPED_GRAD_REL: f64 = 1e-10;
 
 /// One golden file, read.
 struct Golden {
@@ -82,6 +101,10 @@ struct Golden {
     cost: f64,
     /// Every gradient entry in model order (per layer: weights row-major, then bias).
     gradient: Vec<f64>,
+    /// The network has a window or grid input.
+    shaped: bool,
+    /// The oracle's per-layer geometry (shaped goldens).
+    geometry: Option<Value>,
 }
 
 fn goldens_dir() -> PathBuf {
@@ -109,7 +132,19 @@ fn rows(v: &Value, what: &str) -> Vec<Vec<f64>> {
         .collect()
 }
 
-/// The spec text of a golden's network (f64; the names of its layers; `x` for the input).
+/// Sizes as the spec writes them: `12`, `3 x 2`.
+fn sizes(v: &Value) -> String {
+    numbers(v, "sizes")
+        .iter()
+        .map(|n| format!("{n}"))
+        .collect::<Vec<_>>()
+        .join(" x ")
+}
+
+/// The spec text of a golden's network (f64; the names of its layers; `x` for the input). A
+/// shaped golden's `shape` becomes `input x 12 x 2` or `input x 6 x 5 x 2`, and its layers the
+/// clauses of REFERENCE.md, "Shapes: windows and grids", `stride` and `pad` only where the
+/// golden gives them.
 fn spec_text(name: &str, net: &Value) -> String {
     let mut s = format!("model {name}\nscalar f64\n");
     let std = if net["standardize"].as_bool() == Some(true) {
@@ -117,24 +152,52 @@ fn spec_text(name: &str, net: &Value) -> String {
     } else {
         " unscaled"
     };
-    s += &format!("input x {}{std}\n", net["inputs"]);
+    let input = match net.get("shape") {
+        Some(shape) => sizes(shape),
+        None => net["inputs"].to_string(),
+    };
+    s += &format!("input x {input}{std}\n");
     let layers = net["layers"].as_array().expect("layers");
     for (i, l) in layers.iter().enumerate() {
-        let kind = if i + 1 == layers.len() {
+        let place = if i + 1 == layers.len() {
             "output"
         } else {
             "layer"
         };
+        let layer_name = l["name"].as_str().expect("name");
+        let kind = l.get("kind").and_then(Value::as_str).unwrap_or("dense");
+        if kind == "pool" {
+            let size = match &l["size"] {
+                Value::String(all) => all.clone(),
+                v => sizes(v),
+            };
+            let op = l["op"].as_str().expect("op");
+            s += &format!("{place} {layer_name} pool {op} {size}\n");
+            continue;
+        }
         let act = l["activation"].as_str().expect("activation");
         let act = match l.get("alpha").and_then(Value::as_f64) {
             Some(alpha) => format!("{act} {alpha}"),
             None => act.to_string(),
         };
-        s += &format!(
-            "{kind} {} {} {act}\n",
-            l["name"].as_str().expect("name"),
-            l["width"]
-        );
+        let what = match kind {
+            "dense" => l["width"].to_string(),
+            "conv" | "depthwise" => {
+                let mut w = match kind {
+                    "conv" => format!("conv {} kernel {}", l["filters"], sizes(&l["kernel"])),
+                    _ => format!("depthwise kernel {}", sizes(&l["kernel"])),
+                };
+                if let Some(stride) = l.get("stride") {
+                    w += &format!(" stride {stride}");
+                }
+                if let Some(pad) = l.get("pad").and_then(Value::as_str) {
+                    w += &format!(" pad {pad}");
+                }
+                w
+            }
+            other => panic!("unknown layer kind {other:?}"),
+        };
+        s += &format!("{place} {layer_name} {what} {act}\n");
     }
     s += &format!("loss {}\n", net["loss"].as_str().expect("loss"));
     match net["penalty"]["kind"].as_str().expect("penalty kind") {
@@ -169,7 +232,9 @@ fn load(path: &std::path::Path) -> Golden {
             checked.diagnostics
         )
     });
-    let layers: Vec<FlatLayer> = v["params"]["layers"]
+    // The golden lists the layers with parameters (a pooling has none, as in a weights file);
+    // the engine takes one entry per layer, empty for a pooling.
+    let mut file_layers = v["params"]["layers"]
         .as_array()
         .expect("params.layers")
         .iter()
@@ -178,8 +243,21 @@ fn load(path: &std::path::Path) -> Golden {
                 rows(&l["weights"], "weights").concat(),
                 numbers(&l["bias"], "bias"),
             )
+        });
+    let layers: Vec<FlatLayer> = model
+        .layers()
+        .iter()
+        .map(|l| match l.parameters() {
+            0 => FlatLayer::default(),
+            _ => file_layers
+                .next()
+                .unwrap_or_else(|| panic!("{file}: fewer parameter layers than the model")),
         })
         .collect();
+    assert!(
+        file_layers.next().is_none(),
+        "{file}: more parameter layers than the model"
+    );
     let e = &v["expected"];
     let gradient = e["gradients"]["layers"]
         .as_array()
@@ -191,14 +269,30 @@ fn load(path: &std::path::Path) -> Golden {
             g
         })
         .collect();
+    // A shaped golden holds one mean and std per channel; the model stores them repeated for
+    // every position, channel fastest (REFERENCE.md, "Shapes: windows and grids").
+    let per_position = |values: Vec<f64>| -> Vec<f64> {
+        let positions = model.input().width / values.len().max(1);
+        (0..positions)
+            .flat_map(|_| values.iter().copied())
+            .collect()
+    };
     let (mean, std) = if model.input().standardize {
         (
-            numbers(&v["params"]["mean"], "mean"),
-            numbers(&v["params"]["std"], "std"),
+            per_position(numbers(&v["params"]["mean"], "mean")),
+            per_position(numbers(&v["params"]["std"], "std")),
         )
     } else {
         (Vec::new(), Vec::new())
     };
+    assert_eq!(
+        mean.len(),
+        if model.input().standardize {
+            model.input().width
+        } else {
+            0
+        }
+    );
     Golden {
         file,
         fixture: v["fixture"].as_str().map(str::to_string),
@@ -213,6 +307,8 @@ fn load(path: &std::path::Path) -> Golden {
         penalty: e["penalty"].as_f64().expect("penalty"),
         cost: e["cost"].as_f64().expect("cost"),
         gradient,
+        shaped: v["network"].get("shape").is_some(),
+        geometry: e.get("geometry").cloned(),
     }
 }
 
@@ -312,7 +408,7 @@ fn compare_all(label: &str, g: &Golden, c: &Computed, failures: &mut Vec<String>
         &format!("{label} {}: gradient", g.file),
         &c.gradient,
         &g.gradient,
-        GRAD_REL,
+        if g.shaped { SHAPED_GRAD_REL } else { GRAD_REL },
         GRAD_FLOOR,
         failures,
     );
@@ -468,6 +564,192 @@ fn goldens_cover_every_activation_loss_and_penalty() {
     assert!(missing.is_empty(), "not covered by any golden: {missing:?}");
 }
 
+fn ints(v: &Value, what: &str) -> Vec<usize> {
+    v.as_array()
+        .unwrap_or_else(|| panic!("{what}: not an array"))
+        .iter()
+        .map(|x| {
+            x.as_u64()
+                .unwrap_or_else(|| panic!("{what}: not a whole number: {x}")) as usize
+        })
+        .collect()
+}
+
+/// The shapes sinew infers agree with the ones the oracle computed from REFERENCE.md's rules
+/// (`valid`: `floor((n - k) / s) + 1` positions; `same`: `ceil(n / s)` positions and
+/// `max((out - 1) s + k - n, 0)` zeros, the smaller half before; pooling: `floor(n / k)`
+/// positions, stride `k`; `all`: the whole map). The zeros after an axis are not stored by sinew;
+/// they are what its windows read past the end: `max((out - 1) s + k - n - pad_before, 0)`.
+#[test]
+fn shaped_geometry_matches_the_reference_rules() {
+    let mut checked = 0;
+    for g in goldens().iter().filter(|g| g.shaped) {
+        let geometry = g.geometry.as_ref().expect("a shaped golden has a geometry");
+        let geometry = geometry.as_array().expect("geometry");
+        let layers = g.model.layers();
+        assert_eq!(geometry.len(), layers.len(), "{}: layers", g.file);
+        for (l, want) in layers.iter().zip(geometry) {
+            let at = format!("{} layer `{}`", g.file, l.name);
+            let kind = match l.kind {
+                LayerKind::Dense => "dense",
+                LayerKind::Conv { .. } => "conv",
+                LayerKind::Depthwise { .. } => "depthwise",
+                LayerKind::Pool { .. } => "pool",
+            };
+            assert_eq!(Some(kind), want["kind"].as_str(), "{at}: kind");
+            let dims = |s: &sinew::ir::Shape| vec![s.rows, s.cols, s.channels];
+            assert_eq!(dims(&l.input), ints(&want["input"], "input"), "{at}: input");
+            assert_eq!(
+                dims(&l.output),
+                ints(&want["output"], "output"),
+                "{at}: output"
+            );
+            assert_eq!(
+                Some(u64::from(l.output.rank)),
+                want["rank"].as_u64(),
+                "{at}: rank"
+            );
+            let Some(w) = l.kind.window() else {
+                assert!(
+                    want.get("kernel").is_none(),
+                    "{at}: the oracle has a window"
+                );
+                continue;
+            };
+            let after = |n: usize, k: usize, s: usize, before: usize, out: usize| {
+                ((out - 1) * s + k).saturating_sub(n + before)
+            };
+            let got = [
+                vec![w.rows, w.cols, w.channels],
+                vec![w.out_rows, w.out_cols, l.output.channels],
+                vec![w.k_rows, w.k_cols],
+                vec![w.stride_rows, w.stride_cols],
+                vec![w.pad_top, w.pad_left],
+                vec![
+                    after(w.rows, w.k_rows, w.stride_rows, w.pad_top, w.out_rows),
+                    after(w.cols, w.k_cols, w.stride_cols, w.pad_left, w.out_cols),
+                ],
+            ];
+            let keys = [
+                "input",
+                "output",
+                "kernel",
+                "stride",
+                "pad_before",
+                "pad_after",
+            ];
+            for (key, got) in keys.iter().zip(got) {
+                assert_eq!(got, ints(&want[*key], key), "{at}: {key}");
+            }
+            checked += 1;
+        }
+    }
+    assert!(checked >= 25, "{checked} windowed layers checked");
+}
+
+/// The shaped goldens cover what REFERENCE.md, "Shapes: windows and grids", defines: conv and
+/// depthwise on windows and grids with both paddings and strides 1 and above, square, non-square
+/// and even kernels, max and average pooling on windows and grids (also `all`, and straight on
+/// the input), `standardize` per channel, each loss head and each penalty.
+#[test]
+fn shaped_goldens_cover_the_shape_rules() {
+    let all = goldens();
+    let mut seen: BTreeSet<String> = BTreeSet::new();
+    for g in all.iter().filter(|g| g.shaped) {
+        let m = &g.model;
+        let rank = |r: u8| if r == 2 { "window" } else { "grid" };
+        seen.insert(format!("{} input", rank(m.input().shape.rank)));
+        seen.insert(format!(
+            "standardize {} {}",
+            m.input().standardize,
+            rank(m.input().shape.rank)
+        ));
+        for (i, l) in m.layers().iter().enumerate() {
+            let on = rank(l.input.rank);
+            match &l.kind {
+                LayerKind::Conv { window, pad } | LayerKind::Depthwise { window, pad } => {
+                    let stride = if window.stride_rows > 1 {
+                        "strided"
+                    } else {
+                        "stride 1"
+                    };
+                    seen.insert(format!("{} {on} {pad:?} {stride}", l.kind.words()));
+                    if window.k_rows % 2 == 0 && *pad == Pad::Same {
+                        seen.insert("even kernel same".into());
+                    }
+                    if window.stride_rows > window.k_rows && *pad == Pad::Same {
+                        seen.insert("stride above kernel same".into());
+                    }
+                    if on == "grid" && window.k_rows != window.k_cols {
+                        seen.insert(format!("{} non-square kernel", l.kind.words()));
+                    }
+                }
+                LayerKind::Pool { all, .. } => {
+                    let size = if *all { "all" } else { "sized" };
+                    seen.insert(format!("{} {on} {size}", l.kind.words()));
+                    if i == 0 {
+                        seen.insert(format!("{} on the input", l.kind.words()));
+                    }
+                }
+                LayerKind::Dense => {}
+            }
+        }
+        seen.insert(format!(
+            "loss {} with {} output",
+            m.loss().keyword(),
+            m.output().activation.keyword()
+        ));
+        seen.insert(match m.penalty() {
+            Penalty::None => "penalty none".into(),
+            Penalty::L2(_) => "penalty l2".into(),
+            Penalty::L1(_) => "penalty l1".into(),
+        });
+    }
+    let mut want: Vec<String> = Vec::new();
+    for kind in ["conv", "depthwise"] {
+        for on in ["window", "grid"] {
+            want.push(format!("{kind} {on} Valid stride 1"));
+            want.push(format!("{kind} {on} Same stride 1"));
+            want.push(format!("{kind} {on} Valid strided"));
+        }
+        want.push(format!("{kind} non-square kernel"));
+    }
+    want.extend(
+        [
+            "conv window Same strided",
+            "conv grid Same strided",
+            "even kernel same",
+            "stride above kernel same",
+            "window input",
+            "grid input",
+            "standardize true window",
+            "standardize true grid",
+            "standardize false window",
+            "standardize false grid",
+            "loss cross_entropy with sigmoid output",
+            "loss cross_entropy with softmax output",
+            "loss squared_error with identity output",
+            "penalty none",
+            "penalty l2",
+            "penalty l1",
+        ]
+        .map(String::from),
+    );
+    for op in ["pool max", "pool average"] {
+        for on in ["window", "grid"] {
+            for size in ["sized", "all"] {
+                want.push(format!("{op} {on} {size}"));
+            }
+        }
+        want.push(format!("{op} on the input"));
+    }
+    let missing: Vec<&String> = want.iter().filter(|w| !seen.contains(*w)).collect();
+    assert!(
+        missing.is_empty(),
+        "not covered by any shaped golden: {missing:?}"
+    );
+}
+
 /// Runs the generated code of every fixture that a golden names.
 struct Generated<'a> {
     goldens: &'a [Golden],
@@ -492,8 +774,12 @@ fn same_shape(a: &Model, b: &Model) -> bool {
         && a.loss() == b.loss()
         && a.penalty() == b.penalty()
         && a.layers().len() == b.layers().len()
+        && a.input().shape == b.input().shape
         && a.layers().iter().zip(b.layers()).all(|(x, y)| {
-            x.width == y.width && x.fan_in == y.fan_in && x.activation == y.activation
+            x.kind == y.kind
+                && x.width == y.width
+                && x.fan_in == y.fan_in
+                && x.activation == y.activation
         })
 }
 
