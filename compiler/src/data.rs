@@ -900,7 +900,7 @@ pub fn mean_std_channels(ds: &Dataset, channels: usize) -> (Vec<f64>, Vec<f64>) 
     let n = (ds.len() * width.div_ceil(c)) as f64;
     let mut mean = vec![0.0; c];
     let mut var = vec![0.0; c];
-    if ds.len() > 0 {
+    if !ds.is_empty() {
         for row in &ds.inputs {
             for (i, x) in row.iter().enumerate() {
                 mean[i % c] += x;
@@ -918,7 +918,7 @@ pub fn mean_std_channels(ds: &Dataset, channels: usize) -> (Vec<f64>, Vec<f64>) 
     }
     let std: Vec<f64> = var
         .iter()
-        .map(|v| if ds.len() > 0 { (v / n).sqrt() } else { 0.0 })
+        .map(|v| if ds.is_empty() { 0.0 } else { (v / n).sqrt() })
         .map(|s| if s > 0.0 { s } else { 1.0 })
         .collect();
     let spread = |v: &[f64]| (0..width).map(|i| v[i % c]).collect::<Vec<f64>>();

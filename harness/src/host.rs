@@ -319,8 +319,8 @@ fn windowed<D: DualNum<f64> + Copy>(kind: LayerKind, w: &[D], b: &[D], a: &[D]) 
         for ox in 0..g.out_cols {
             match kind {
                 LayerKind::Conv { .. } => {
-                    for f in 0..b.len() {
-                        let mut s = b[f];
+                    for (f, &bias) in b.iter().enumerate() {
+                        let mut s = bias;
                         for ky in 0..g.k_rows {
                             for kx in 0..g.k_cols {
                                 if let Some(p) = at(oy, ox, ky, kx) {

@@ -382,7 +382,7 @@ pub(super) fn scoped(cx: &Ctx, steps: &[Step]) -> TokenStream {
     }
     stages.extend(steps.get(start..));
     let half = |k: usize| {
-        if k % 2 == 0 {
+        if k.is_multiple_of(2) {
             ident("even")
         } else {
             ident("odd")

@@ -223,6 +223,11 @@ impl Shape {
         self.rows * self.cols * self.channels
     }
 
+    /// True when the map holds no value (never for a checked model: every size is at least 1).
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
     /// True for a vector, which only dense layers read.
     pub fn is_vector(&self) -> bool {
         self.rank == 1
