@@ -1,4 +1,4 @@
-//! Generates N1 and N2 from `../specs` with the public build API, as a user's firmware crate
+//! Generates N1, N2 and C1 from `../specs` with the public build API, as a user's firmware crate
 //! would, and hands the board's memory map to cortex-m-rt's linker script.
 
 use std::error::Error;
@@ -12,7 +12,7 @@ fn main() -> Result<(), Box<dyn Error>> {
 
     let spec = |name: &str| manifest.join("../specs").join(format!("{name}.sinew"));
     sinew::Builder::new()
-        .specs(["bench_n1", "bench_n2"].map(spec))
+        .specs(["bench_n1", "bench_n2", "bench_c1"].map(spec))
         .compile()?;
 
     std::fs::copy(manifest.join("memory.x"), out.join("memory.x"))?;

@@ -1,6 +1,7 @@
 #!/usr/bin/env bash
-# Instructions per single-sample inference of N1 and N2 on a Cortex-M4F (QEMU mps2-an386):
-# (a) the code sinew generates against (b) the same network written with nalgebra.
+# Instructions per single-sample inference of N1, N2 and the conv network C1 on a Cortex-M4F
+# (QEMU mps2-an386): (a) the code sinew generates against (b) the same network written with
+# nalgebra, and for C1 also (c) written as plain loops over arrays.
 #
 #   bash bench/device/run.sh              both profiles: release (opt-level 3) and size ("z")
 #   bash bench/device/run.sh release      one profile only
@@ -8,8 +9,8 @@
 # Builds the firmware of this folder for thumbv7em-none-eabihf (target folder
 # target/bench-device), runs it under QEMU with one instruction per translation block and
 # `-d exec,nochain` (every executed instruction is one log line), counts the lines between each
-# pair of marker functions, subtracts the empty pair, checks that (a) and (b) print outputs within
-# 1e-5 of each other, and prints a Markdown table. Needs qemu-system-arm and the target
+# pair of marker functions, subtracts the empty pair, checks that (a), (b) and (c) print outputs
+# within 1e-5 of each other, and prints a Markdown table. Needs qemu-system-arm and the target
 # (`bash tests/device/run.sh --install` installs them) and llvm-nm from rustup's llvm-tools.
 # These are instructions, not cycles.
 set -euo pipefail
@@ -53,13 +54,13 @@ marker() {
     printf '%x\n' "$(( 0x$addr & ~1 ))"
 }
 
-PAIRS=(empty n1_sinew n1_nalg n2_sinew n2_nalg)
+PAIRS=(empty n1_sinew n1_nalg n2_sinew n2_nalg c1_sinew c1_nalg c1_plain)
 log="$(mktemp)"
 out="$(mktemp)"
 trap 'rm -f "$log" "$out"' EXIT
 
-table="| network | opt-level | (a) sinew | (b) nalgebra | (a)/(b) |
-| --- | :---: | ---: | ---: | ---: |"
+table="| network | opt-level | (a) sinew | (b) nalgebra | (c) plain loops | (a)/(b) | (a)/(c) |
+| --- | :---: | ---: | ---: | ---: | ---: | ---: |"
 # One guest instruction per translation block: `-accel tcg,one-insn-per-tb=on` from QEMU 8.1 on,
 # `-singlestep` before (Debian 12 ships 7.2).
 qemu_version="$(qemu-system-arm --version | sed -n 's/.*version \([0-9]*\)\.\([0-9]*\).*/\1 \2/p' | head -1)"
@@ -108,28 +109,34 @@ for profile in "${profiles[@]}"; do
         exit 1
     fi
 
-    # (a) and (b) agree within 1e-5 for each network.
-    for net in n1 n2; do
-        awk -v net="$net" '
+    # (a) and each hand-written form agree within 1e-5.
+    for pair in n1_nalgebra n2_nalgebra c1_nalgebra c1_plain; do
+        net="${pair%%_*}"
+        awk -v net="$net" -v other="$pair" '
             $2 == net "_sinew" { for (i = 3; i <= NF; i++) a[i] = $i; na = NF }
-            $2 == net "_nalgebra" { for (i = 3; i <= NF; i++) b[i] = $i; nb = NF }
+            $2 == other { for (i = 3; i <= NF; i++) b[i] = $i; nb = NF }
             END {
-                if (!na || na != nb) { print net ": outputs missing or of different widths"; exit 1 }
+                if (!na || na != nb) { print other ": outputs missing or of different widths"; exit 1 }
                 m = 0
                 for (i = 3; i <= na; i++) { d = a[i] - b[i]; if (d < 0) d = -d; if (d > m) m = d }
-                if (m > 1e-5) { printf "%s: outputs differ by %g > 1e-5\n", net, m; exit 1 }
-                printf "%s (%s): outputs agree, largest difference %.3g\n", net, prof, m
+                if (m > 1e-5) { printf "%s: outputs differ by %g > 1e-5\n", other, m; exit 1 }
+                printf "%s (%s): outputs agree with %s_sinew, largest difference %.3g\n", other, prof, net, m
             }' prof="$profile" "$out" >&2
     done
 
     empty="${counts[0]}"
-    row() {
-        local a=$(( $2 - empty )) b=$(( $3 - empty ))
-        printf '| %s | %s | %d | %d | %s |\n' "$1" "$(opt_level "$profile")" "$a" "$b" \
-            "$(awk -v a="$a" -v b="$b" 'BEGIN { printf "%.3f", a / b }')"
+    row() { # NAME A B [C]: instructions of (a), (b) and (c), the empty pair not yet subtracted
+        local a=$(( $2 - empty )) b=$(( $3 - empty )) c="" ac=""
+        if [ $# -gt 3 ]; then
+            c=$(( $4 - empty ))
+            ac="$(awk -v a="$a" -v c="$c" 'BEGIN { printf "%.3f", a / c }')"
+        fi
+        printf '| %s | %s | %d | %d | %s | %s | %s |\n' "$1" "$(opt_level "$profile")" "$a" "$b" \
+            "$c" "$(awk -v a="$a" -v b="$b" 'BEGIN { printf "%.3f", a / b }')" "$ac"
     }
     table+=$'\n'"$(row "N1 6-10-8-3" "${counts[1]}" "${counts[2]}")"
     table+=$'\n'"$(row "N2 64-32-10" "${counts[3]}" "${counts[4]}")"
+    table+=$'\n'"$(row "C1 conv 128 x 3" "${counts[5]}" "${counts[6]}" "${counts[7]}")"
 done
 
 echo

@@ -7,7 +7,7 @@
 //! the finished gradient of all [`BATCH`] samples per call.
 
 use crate::nalg::{self, LibmMath, Relu, Sigmoid, StdMath, Tanh};
-use crate::{generated as g, plain, unrolled as u, Data, Shape, BATCH, N1, N2, N3};
+use crate::{generated as g, plain, unrolled as u, Data, Shape, BATCH, C1, N1, N2, N3};
 use sinew::engine::{self, batch, Scratch};
 use std::hint::black_box;
 
@@ -63,6 +63,19 @@ pub const IMPLS: [(&str, &str); 7] = [
     ("plain", "(c) plain Vec<f32> loops"),
     ("engine", "(d) sinew engine"),
 ];
+
+/// The table's description of implementation `imp` on network `net`: C1's hand-written forms
+/// differ from the dense networks' (im2col, arrays, libm's `expf` for the four softmax terms).
+pub fn describe(net: Shape, imp: &str) -> &'static str {
+    match (net.name, imp) {
+        ("c1", "nalgebra") => "(b) nalgebra SMatrix, im2col",
+        ("c1", "plain") => "(c) plain loops over arrays",
+        _ => IMPLS
+            .iter()
+            .find(|(i, _)| *i == imp)
+            .map_or("?", |(_, d)| d),
+    }
+}
 
 /// One benchmark case.
 pub struct Case {
@@ -309,6 +322,58 @@ fn engine_cases(v: &mut Vec<Case>, shape: Shape, layers: &crate::Layers) {
     }));
 }
 
+/// C1's hand-written cases: (b) nalgebra im2col and (c) plain loops over arrays.
+fn conv_cases(v: &mut Vec<Case>, layers: &crate::Layers) {
+    use crate::conv_plain::{IN, O};
+    let data: &'static Data = Box::leak(Box::new(Data::new(C1, BATCH, 17)));
+    let nn: &'static crate::conv_nalg::Net = Box::leak(Box::new(crate::c1_nalg(layers)));
+    let ys: &'static [_] = Box::leak(nalg::vectors::<O>(&data.ys).into_boxed_slice());
+    v.push(case(C1, Op::Inference, "nalgebra", move |iters| {
+        for k in 0..iters as usize {
+            let s = k % BATCH;
+            black_box(nn.predict(black_box(&data.xs[s * IN..(s + 1) * IN])));
+        }
+    }));
+    v.push(case(C1, Op::Backprop, "nalgebra", move |iters| {
+        let mut grad = Box::new(crate::conv_nalg::Net::zeroed());
+        for k in 0..iters as usize {
+            let s = k % BATCH;
+            black_box(nn.backprop(black_box(&data.xs[s * IN..(s + 1) * IN]), &ys[s], &mut grad));
+        }
+        black_box(&grad);
+    }));
+    v.push(case(C1, Op::Batch, "nalgebra", move |iters| {
+        let mut grad = Box::new(crate::conv_nalg::Net::zeroed());
+        for _ in 0..iters {
+            black_box(nn.gradient(black_box(&data.xs), ys, 1e-3, &mut grad));
+        }
+        black_box(&grad);
+    }));
+    let pn: &'static crate::conv_plain::Net = Box::leak(Box::new(crate::c1_plain(layers)));
+    v.push(case(C1, Op::Inference, "plain", move |iters| {
+        for k in 0..iters as usize {
+            let s = k % BATCH;
+            black_box(pn.predict(black_box(&data.xs[s * IN..(s + 1) * IN])));
+        }
+    }));
+    v.push(case(C1, Op::Backprop, "plain", move |iters| {
+        let mut grad = Box::new(crate::conv_plain::Net::zeroed());
+        for k in 0..iters as usize {
+            let s = k % BATCH;
+            let (x, y) = (&data.xs[s * IN..(s + 1) * IN], &data.ys[s * O..(s + 1) * O]);
+            black_box(pn.backprop(black_box(x), y, &mut grad));
+        }
+        black_box(&grad);
+    }));
+    v.push(case(C1, Op::Batch, "plain", move |iters| {
+        let mut grad = Box::new(crate::conv_plain::Net::zeroed());
+        for _ in 0..iters {
+            black_box(pn.gradient(black_box(&data.xs), &data.ys, 1e-3, &mut grad));
+        }
+        black_box(&grad);
+    }));
+}
+
 /// Every case, in table order. The engine runs on the calling thread: call
 /// [`single_thread`] first so that its batch gradient uses one core like every other form.
 pub fn all() -> Vec<Case> {
@@ -350,6 +415,11 @@ pub fn all() -> Vec<Case> {
         &[plain::Act::Relu, plain::Act::Relu, plain::Act::Softmax],
     );
     engine_cases(&mut v, N3, &l3);
+
+    let p4 = generated_cases!(v, C1, g::bench_c1, "generated", 4, false);
+    let l4 = crate::c1_layers(p4);
+    conv_cases(&mut v, &l4);
+    engine_cases(&mut v, C1, &l4);
     v
 }
 

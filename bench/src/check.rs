@@ -1,10 +1,11 @@
 //! Before anything is timed: the implementations compute the same thing. Probabilities agree
-//! across (a), (b), (c), (d) to 1e-4; generated code and engine agree bit for bit (inference,
+//! across (a), (b), (c), (d) to 1e-4 (for the conv network C1 also the batch cost, to 1e-4, and
+//! the hand-written gradients, to 1e-3); generated code and engine agree bit for bit (inference,
 //! per-sample gradient, batch cost and gradient), and the generated blocked batch gradient equals
 //! the generated per-sample loop bit for bit.
 
 use crate::nalg::{self, Relu, Sigmoid, StdMath, Tanh};
-use crate::{generated as g, plain, Data, Shape, BATCH, N1, N2, N3};
+use crate::{generated as g, plain, Data, Shape, BATCH, C1, N1, N2, N3};
 use sinew::engine::{self, batch, Scratch};
 
 fn close(what: &str, a: &[f32], b: &[f32], tol: f32) -> Result<(), String> {
@@ -120,11 +121,12 @@ macro_rules! generated_run {
 
 /// Checks every network; the first disagreement is the error.
 pub fn agree() -> Result<(), String> {
-    for shape in [N1, N2, N3] {
+    for shape in [N1, N2, N3, C1] {
         let data = Data::new(shape, BATCH, 17);
         let (layers, preds, per_sample, cost, grad) = match shape.name {
             "n1" => generated_run!(g::bench_n1, 1, crate::n1_layers, crate::n1_grad, data),
             "n2" => generated_run!(g::bench_n2, 2, crate::n2_layers, crate::n2_grad, data),
+            "c1" => generated_run!(g::bench_c1, 4, crate::c1_layers, crate::c1_grad, data),
             _ => generated_run!(g::bench_n3, 3, crate::n3_layers, crate::n3_grad, data),
         };
         let name = shape.name;
@@ -150,6 +152,10 @@ pub fn agree() -> Result<(), String> {
             &e_grad,
         )?;
 
+        if name == "c1" {
+            conv_hand_written(&layers, &data, &preds, cost, &grad)?;
+            continue;
+        }
         // Hand-written forms: same values up to rounding.
         let (n_in, n_out) = (shape.inputs(), shape.outputs());
         let acts: &[plain::Act] = match name {
@@ -243,5 +249,58 @@ pub fn agree() -> Result<(), String> {
         )?;
         let _ = n_out;
     }
+    Ok(())
+}
+
+/// C1's hand-written forms against the generated code: probabilities of the first 8 samples
+/// and the batch cost within 1e-4, the batch gradient within 1e-3 (relative to 1 + |value|).
+fn conv_hand_written(
+    layers: &crate::Layers,
+    data: &Data,
+    preds: &[f32],
+    cost: f32,
+    grad: &[f32],
+) -> Result<(), String> {
+    use crate::conv_plain::{IN, O};
+    let pn = crate::c1_plain(layers);
+    let p_preds: Vec<f32> = data
+        .xs
+        .chunks_exact(IN)
+        .take(8)
+        .flat_map(|x| pn.predict(x))
+        .collect();
+    close("c1: plain vs generated predictions", &p_preds, preds, 1e-4)?;
+    let mut pg = Box::new(crate::conv_plain::Net::zeroed());
+    let p_cost = pn.gradient(&data.xs, &data.ys, 1e-3, &mut pg);
+    close("c1: plain vs generated cost", &[p_cost], &[cost], 1e-4)?;
+    close(
+        "c1: plain vs generated gradient",
+        &flat(&crate::c1_plain_grad(&pg)),
+        grad,
+        1e-3,
+    )?;
+    let nn = crate::c1_nalg(layers);
+    let n_preds: Vec<f32> = data
+        .xs
+        .chunks_exact(IN)
+        .take(8)
+        .flat_map(|x| nn.predict(x).iter().copied().collect::<Vec<_>>())
+        .collect();
+    close(
+        "c1: nalgebra vs generated predictions",
+        &n_preds,
+        preds,
+        1e-4,
+    )?;
+    let ys = nalg::vectors::<O>(&data.ys);
+    let mut ng = Box::new(crate::conv_nalg::Net::zeroed());
+    let n_cost = nn.gradient(&data.xs, &ys, 1e-3, &mut ng);
+    close("c1: nalgebra vs generated cost", &[n_cost], &[cost], 1e-4)?;
+    close(
+        "c1: nalgebra vs generated gradient",
+        &flat(&crate::c1_nalg_grad(&ng)),
+        grad,
+        1e-3,
+    )?;
     Ok(())
 }

@@ -17,7 +17,7 @@
     clippy::op_ref
 )]
 use serde_json::Value;
-use sinew_bench::cases::{Op, IMPLS};
+use sinew_bench::cases::{describe, Op, IMPLS};
 use sinew_bench::{Shape, BATCH, SHAPES};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
@@ -149,10 +149,11 @@ fn print_build(b: &Build, peak: f64, numpy: Option<&Value>) {
     for s in SHAPES {
         for op in Op::ALL {
             let base = b.get(s.name, op, "nalgebra");
-            for (imp, desc) in IMPLS {
+            for (imp, _) in IMPLS {
                 let Some(t) = b.get(s.name, op, imp) else {
                     continue;
                 };
+                let desc = describe(s, imp);
                 let gflops = 2.0 * op.macs(s) as f64 / t;
                 let ratio = base.map_or("".to_string(), |bt| format!("{:.2}x", t / bt));
                 println!(
@@ -274,6 +275,33 @@ fn print_goals(b: &Build, numpy: Option<&Value>) {
                 |v| v <= 1.2,
             );
         }
+    }
+}
+
+/// The conv network's ratios (no goal was set for it): generated against each hand-written form
+/// and the engine against the generated code, per operation.
+fn print_conv(b: &Build) {
+    println!("\n#### Conv network C1, build `{}`\n", b.label);
+    println!("| operation | generated / nalgebra | generated / plain | engine / generated | generated / its per-sample loop |");
+    println!("| --- | ---: | ---: | ---: | ---: |");
+    let r = |op: Op, a: &str, c: &str| {
+        b.get("c1", op, a)
+            .zip(b.get("c1", op, c))
+            .map_or("n/a".to_string(), |(x, y)| format!("{:.2}", x / y))
+    };
+    for op in Op::ALL {
+        println!(
+            "| {} | {} | {} | {} | {} |",
+            op.name(),
+            r(op, "generated", "nalgebra"),
+            r(op, "generated", "plain"),
+            r(op, "engine", "generated"),
+            if op == Op::Batch {
+                r(op, "generated", "generated_loop")
+            } else {
+                "".to_string()
+            }
+        );
     }
 }
 
@@ -416,6 +444,11 @@ fn main() {
     for b in &loaded {
         if !b.times.is_empty() {
             print_goals(b, numpy.as_ref());
+        }
+    }
+    for b in &loaded {
+        if !b.times.is_empty() {
+            print_conv(b);
         }
     }
     if compile {
