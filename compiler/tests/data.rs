@@ -427,3 +427,24 @@ fn a_class_column_not_headed_label_says_what_is_expected() {
         "{help}"
     );
 }
+
+/// A window's CSV holds its values row-major, step by step, the channel fastest; a header of the
+/// wrong length says how the columns of the shape add up (`4 x 2 = 8`).
+#[test]
+fn a_window_reads_row_major_and_a_short_header_counts_the_shape() {
+    let m = spec(
+        "model w\ninput sig 4 x 2 unscaled\nlayer c conv 2 kernel 2 relu\noutput y 2 softmax\n\
+         loss cross_entropy\n",
+    );
+    let header: Vec<String> = (0..8).map(|i| format!("v{i}")).collect();
+    let text = format!("{},label\n0,1,2,3,4,5,6,7,1\n", header.join(","));
+    let ds = sinew::data::read_csv_str("w.csv", &text, &m).unwrap();
+    assert_eq!(ds.inputs, vec![vec![0.0, 1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0]]);
+    assert_eq!(ds.targets, vec![vec![0.0, 1.0]]);
+
+    let short = "v0,v1,v2,v3,v4,v5,v6,label\n0,1,2,3,4,5,6,1\n";
+    let e = sinew::data::read_csv_str("w.csv", short, &m).unwrap_err();
+    let text = e.to_string();
+    assert!(text.contains("D04"), "{text}");
+    assert!(text.contains("4 x 2 = 8 input columns"), "{text}");
+}

@@ -378,7 +378,11 @@ pub fn train_window_step(
     trainer.step(xs, ys)
 }
 
-fn classified_window(line: &mut Line, params: &gearbox_window::Params, x: &[f32; gearbox_window::INPUTS]) {
+fn classified_window(
+    line: &mut Line,
+    params: &gearbox_window::Params,
+    x: &[f32; gearbox_window::INPUTS],
+) {
     let out = infer_window(params, x);
     let (class, p) = params.classify(x);
     line.text(" class=")
@@ -422,7 +426,11 @@ pub fn run_window(out: &mut impl Console, trainer: &mut gearbox_window::Trainer)
             first = cost;
         }
         last = cost;
-        line.text("window_train ").dec(s).text(" cost=").bits(cost).send(out);
+        line.text("window_train ")
+            .dec(s)
+            .text(" cost=")
+            .bits(cost)
+            .send(out);
     }
     for (i, x) in demo::WINDOW_NEW.iter().enumerate() {
         line.text("window_after ").dec(i);
