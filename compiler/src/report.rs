@@ -153,7 +153,9 @@ impl Report {
         let (even, odd) = crate::plan::Plan::new(model).inference_halves();
         let inference_values = (even + odd) as u64 + out;
         let sample_values = std_values + widths;
-        let training_values = parameters * (2 + optimizer_copies) + sample_values + out + widths;
+        // The trainer's parameters carry the input's mean and std too.
+        let training_values =
+            parameters * (2 + optimizer_copies) + 2 * std_values + sample_values + out + widths;
         // The frames hold scalars (accumulators, padded tails): they scale with the scalar size.
         let frames_inference = INFERENCE_FRAMES_F32 * b / 4;
         let frames_training = TRAINING_FRAMES_F32 * b / 4;
@@ -265,9 +267,10 @@ mod tests {
         assert_eq!(r.ram_inference_bytes, 1364);
         // training: params 185 + gradients 185 + Adam m and v 2*185 = 740 values
         //           + inference 27 + output logits 3 + deltas 10 + 8 + 3 = 51 values
-        //           = 791 values * 4 B = 3164 B, plus 1792 B of frames = 4956 B
-        assert_eq!(r.buffer_training_bytes, 3164);
-        assert_eq!(r.ram_training_bytes, 3164 + 1792);
+        //           + the trainer's input mean and std 12 values
+        //           = 803 values * 4 B = 3212 B, plus 1792 B of frames = 5004 B
+        assert_eq!(r.buffer_training_bytes, 3212);
+        assert_eq!(r.ram_training_bytes, 3212 + 1792);
     }
 
     #[test]

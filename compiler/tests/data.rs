@@ -439,7 +439,10 @@ fn a_window_reads_row_major_and_a_short_header_counts_the_shape() {
     let header: Vec<String> = (0..8).map(|i| format!("v{i}")).collect();
     let text = format!("{},label\n0,1,2,3,4,5,6,7,1\n", header.join(","));
     let ds = sinew::data::read_csv_str("w.csv", &text, &m).unwrap();
-    assert_eq!(ds.inputs, vec![vec![0.0, 1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0]]);
+    assert_eq!(
+        ds.inputs,
+        vec![vec![0.0, 1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0]]
+    );
     assert_eq!(ds.targets, vec![vec![0.0, 1.0]]);
 
     let short = "v0,v1,v2,v3,v4,v5,v6,label\n0,1,2,3,4,5,6,1\n";

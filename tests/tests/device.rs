@@ -1002,10 +1002,10 @@ fn check_run(board: &Board, dir: &Path, host: &Host) -> Result<Checked, String> 
     let per_sample =
         m.input().width * usize::from(m.input().standardize) + 2 * widths(m) + m.output().width;
     let state = r.buffer_training_bytes as usize - per_sample * r.scalar_bytes as usize;
-    if trainer_bytes != state + r.scaling_bytes as usize + 4 {
+    if trainer_bytes != state + 4 {
         problems.push(format!(
-            "the trainer holds {trainer_bytes} bytes; the report's state is {state}, plus {} of \
-             input scaling and 4 of step count",
+            "the trainer holds {trainer_bytes} bytes; the report's state is {state} (with {} of \
+             input scaling), plus 4 of step count",
             r.scaling_bytes
         ));
     }

@@ -20,7 +20,10 @@ fn pump(console: &mut impl Console) -> bool {
 /// 5.3 KiB), so that the two never share the 16 KiB of the smallest board.
 #[inline(never)]
 fn window(console: &mut impl Console) -> bool {
-    let mut trainer = gearbox_window::Trainer::new(gearbox_window::TRAINED.clone());
+    // Built in place: zeroed, then the baked weights copied over its parameters (no temporary
+    // copy of the parameters on the stack).
+    let mut trainer = gearbox_window::Trainer::zeroed();
+    trainer.params.clone_from(&gearbox_window::TRAINED);
     run_window(console, &mut trainer)
 }
 
